@@ -1,0 +1,320 @@
+//! Noise spectra: Welch PSD estimation, analytic design curves, resampling onto a
+//! filter's frequency grid, inverse spectrum truncation and whitening.
+//!
+//! PSDs of real strain are ~1e-47 / Hz, below float32's smallest normal number, so
+//! every spectrum here is float64.
+
+use crate::error::{ensure, Error, Result};
+use crate::fft::RealScratch;
+use rayon::prelude::*;
+
+/// How periodograms of the Welch segments are combined.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Average {
+    Mean,
+    /// Median divided by its bias for exponentially distributed bins.
+    Median,
+}
+
+/// Expected median of `n` unit-mean exponential variables, as used by scipy:
+/// `1 + sum_{i=1}^{(n-1)/2} (1/(2i+1) - 1/(2i))`. For odd `n` this is the exact
+/// alternating harmonic sum; for even `n` (median = mean of the two middle values)
+/// the exact value is the one for `n - 1`, which the same expression gives.
+pub fn median_bias(n: usize) -> f64 {
+    let half = n.saturating_sub(1) / 2;
+    let mut b = 1.0;
+    for i in 1..=half {
+        let ii = 2.0 * i as f64;
+        b += 1.0 / (ii + 1.0) - 1.0 / ii;
+    }
+    b
+}
+
+/// One-sided Welch PSD of `x`: periodograms of segments of `window.len()` samples
+/// stepping by `step`, scaled to a density in 1/Hz and combined by `average`.
+pub fn welch(x: &[f64], sample_rate: f64, step: usize, window: &[f64], detrend: bool, average: Average) -> Result<Vec<f64>> {
+    let nperseg = window.len();
+    ensure(nperseg >= 2, "segment_duration", || format!("a segment must hold at least 2 samples, got {nperseg}"))?;
+    ensure(x.len() >= nperseg, "x", || format!("{} samples are fewer than one segment of {nperseg}", x.len()))?;
+    ensure(step >= 1, "overlap", || "segments must advance by at least one sample".into())?;
+    let n_seg = (x.len() - nperseg) / step + 1;
+    let n_freq = nperseg / 2 + 1;
+    let wsum2: f64 = window.iter().map(|w| w * w).sum();
+    ensure(wsum2 > 0.0, "window", || "window is identically zero".into())?;
+    let scale = 1.0 / (sample_rate * wsum2);
+
+    // One periodogram per segment, row-major (segment, frequency).
+    let mut grams = vec![0.0f64; n_seg * n_freq];
+    grams.par_chunks_mut(n_freq).enumerate().for_each_init(
+        || RealScratch::<f64>::new(nperseg),
+        |fft, (s, row)| {
+            let seg = &x[s * step..s * step + nperseg];
+            let mean = if detrend { seg.iter().sum::<f64>() / nperseg as f64 } else { 0.0 };
+            for ((t, &v), &w) in fft.time.iter_mut().zip(seg).zip(window) {
+                *t = (v - mean) * w;
+            }
+            fft.rfft();
+            for (k, (p, c)) in row.iter_mut().zip(&fft.spectrum).enumerate() {
+                let one_sided = if k == 0 || (nperseg % 2 == 0 && k == n_freq - 1) { 1.0 } else { 2.0 };
+                *p = c.norm_sqr() * scale * one_sided;
+            }
+        },
+    );
+
+    let mut psd = vec![0.0f64; n_freq];
+    match average {
+        Average::Mean => {
+            for row in grams.chunks(n_freq) {
+                for (p, g) in psd.iter_mut().zip(row) {
+                    *p += g;
+                }
+            }
+            psd.iter_mut().for_each(|p| *p /= n_seg as f64);
+        }
+        Average::Median => {
+            let bias = median_bias(n_seg);
+            psd.par_iter_mut().enumerate().for_each_init(
+                || Vec::with_capacity(n_seg),
+                |column, (k, p)| {
+                    column.clear();
+                    column.extend((0..n_seg).map(|s| grams[s * n_freq + k]));
+                    *p = median(column) / bias;
+                },
+            );
+        }
+    }
+    Ok(psd)
+}
+
+/// Median of finite values, mean of the two middle ones for an even count.
+fn median(v: &mut [f64]) -> f64 {
+    let n = v.len();
+    let mid = n / 2;
+    let (_, &mut upper, _) = v.select_nth_unstable_by(mid, |a, b| a.total_cmp(b));
+    if n % 2 == 1 {
+        upper
+    } else {
+        let lower = v[..mid].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        0.5 * (lower + upper)
+    }
+}
+
+/// Published analytic fits to design sensitivities of ground-based interferometers.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum DesignCurve {
+    Gen1FourKm,
+    Gen1ThreeKm,
+    Gen1SixHundredM,
+    Gen1ThreeHundredM,
+    Gen2Early,
+    Gen2ZeroDetuned,
+}
+
+impl DesignCurve {
+    pub const NAMES: [&'static str; 6] =
+        ["gen1-4km", "gen1-3km", "gen1-600m", "gen1-300m", "gen2-early", "gen2-zero-detuned"];
+
+    pub fn from_name(name: &str) -> Result<Self> {
+        Ok(match name {
+            "gen1-4km" => DesignCurve::Gen1FourKm,
+            "gen1-3km" => DesignCurve::Gen1ThreeKm,
+            "gen1-600m" => DesignCurve::Gen1SixHundredM,
+            "gen1-300m" => DesignCurve::Gen1ThreeHundredM,
+            "gen2-early" => DesignCurve::Gen2Early,
+            "gen2-zero-detuned" => DesignCurve::Gen2ZeroDetuned,
+            _ => {
+                return Err(Error::invalid(
+                    "curve",
+                    format!("unknown curve {name:?}; choose one of {}", Self::NAMES.join(", ")),
+                ))
+            }
+        })
+    }
+
+    /// Lowest frequency (Hz) at which the fit is used; below it the PSD is `inf`.
+    pub fn f_min(self) -> f64 {
+        match self {
+            DesignCurve::Gen1FourKm | DesignCurve::Gen1SixHundredM => 30.0,
+            DesignCurve::Gen1ThreeKm | DesignCurve::Gen2Early | DesignCurve::Gen2ZeroDetuned => 10.0,
+            DesignCurve::Gen1ThreeHundredM => 50.0,
+        }
+    }
+
+    /// One-sided PSD in 1/Hz at frequency `f` (Hz).
+    pub fn psd(self, f: f64) -> f64 {
+        if !(f >= self.f_min()) || !f.is_finite() {
+            return f64::INFINITY;
+        }
+        match self {
+            DesignCurve::Gen1FourKm => {
+                let x = f / 150.0;
+                9e-46 * ((4.49 * x).powf(-56.0) + 0.16 * x.powf(-4.52) + 0.52 + 0.32 * x * x)
+            }
+            DesignCurve::Gen1ThreeKm => {
+                let x = f / 500.0;
+                3.2e-46 * ((7.87 * x).powf(-4.8) + 6.0 / 17.0 / x + 1.0 + x * x)
+            }
+            DesignCurve::Gen1SixHundredM => {
+                let x = f / 150.0;
+                let x2 = x * x;
+                1e-46 * ((3.4 * x).powf(-30.0) + 34.0 / x + 20.0 * (1.0 - x2 + 0.5 * x2 * x2) / (1.0 + 0.5 * x2))
+            }
+            DesignCurve::Gen1ThreeHundredM => {
+                let x = f / 400.0;
+                7.5e-46 * (x.powi(-5) + 13.0 / x + 9.0 * (1.0 + x * x))
+            }
+            DesignCurve::Gen2Early => {
+                let x = f / 215.0;
+                let x2 = x * x;
+                1e-49 * (x.powf(-4.14) - 5.0 / x2 + 111.0 * (1.0 - x2 + 0.5 * x2 * x2) / (1.0 + 0.5 * x2))
+            }
+            DesignCurve::Gen2ZeroDetuned => {
+                let x = f / 245.4;
+                1e-48
+                    * (0.0152 * x.powi(-4) + 0.2935 * x.powf(2.25) + 2.7951 * x.powf(1.5) - 6.5080 * x.powf(0.75)
+                        + 17.7622)
+            }
+        }
+    }
+}
+
+/// Linear interpolation of `(freqs, psd)` onto `k * df`, `k < n_freq`; `inf` outside
+/// the input range or next to an `inf` sample. `freqs` must increase strictly.
+pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f64> {
+    let mut out = vec![f64::INFINITY; n_freq];
+    let mut i = 0usize;
+    let last = freqs.len() - 1;
+    for (k, o) in out.iter_mut().enumerate() {
+        let f = k as f64 * df;
+        if f < freqs[0] || f > freqs[last] {
+            continue;
+        }
+        while i < last && freqs[i + 1] <= f {
+            i += 1;
+        }
+        if freqs[i] == f {
+            *o = psd[i];
+            continue;
+        }
+        let (a, b) = (psd[i], psd[i + 1]);
+        if a.is_finite() && b.is_finite() {
+            let w = (f - freqs[i]) / (freqs[i + 1] - freqs[i]);
+            *o = a + w * (b - a);
+        }
+    }
+    out
+}
+
+/// First bin index at or above `f` on a grid of spacing `df`.
+pub fn bin_at_or_above(f: f64, df: f64) -> usize {
+    let k = (f / df).ceil();
+    // Guard against round-off putting an exact multiple one bin high.
+    let k = if k > 0.0 && ((k - 1.0) * df) >= f { k - 1.0 } else { k };
+    k.max(0.0) as usize
+}
+
+/// Inverse spectrum truncation (Allen et al. 2012, arXiv:gr-qc/0509116): limit the
+/// impulse response of `1/sqrt(psd)` to `max_len` samples, so whitening corrupts
+/// at most `max_len / 2` samples at each end of a segment.
+pub fn truncate_inverse_psd(psd: &[f64], max_len: usize, df: f64, f_low: f64) -> Vec<f64> {
+    let n_freq = psd.len();
+    let n = 2 * (n_freq - 1);
+    let k_low = bin_at_or_above(f_low, df);
+    let mut fft = RealScratch::<f64>::new(n);
+    for (k, c) in fft.spectrum.iter_mut().enumerate() {
+        let s = psd[k];
+        let r = if k >= k_low && s.is_finite() { 1.0 / s.sqrt() } else { 0.0 };
+        *c = num_complex::Complex::new(r, 0.0);
+    }
+    fft.irfft();
+    let half = (max_len / 2).min(n / 2);
+    let inv_n = 1.0 / n as f64;
+    for (j, q) in fft.time.iter_mut().enumerate() {
+        *q = if j < half || j >= n - half { *q * inv_n } else { 0.0 };
+    }
+    fft.rfft();
+    fft.spectrum
+        .iter()
+        .enumerate()
+        .map(|(k, c)| {
+            let r2 = c.norm_sqr();
+            if k < k_low || r2 == 0.0 { f64::INFINITY } else { 1.0 / r2 }
+        })
+        .collect()
+}
+
+/// Whiten one channel: `irfft(rfft(x) * sqrt(2 / (S fs)))`, zero at DC, below
+/// `f_low` and where `S` is `inf`. Gaussian noise of PSD `S` comes out with unit variance.
+pub fn whiten_into(x: &[f64], psd: &[f64], sample_rate: f64, f_low: f64, fft: &mut RealScratch<f64>, out: &mut [f64]) {
+    let n = x.len();
+    let df = sample_rate / n as f64;
+    let k_low = bin_at_or_above(f_low, df).max(1);
+    fft.time.copy_from_slice(x);
+    fft.rfft();
+    let inv_n = 1.0 / n as f64;
+    for (k, c) in fft.spectrum.iter_mut().enumerate() {
+        let s = psd[k];
+        let g = if k >= k_low && s.is_finite() { (2.0 / (s * sample_rate)).sqrt() * inv_n } else { 0.0 };
+        *c *= g;
+    }
+    fft.irfft();
+    out.copy_from_slice(&fft.time);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn median_bias_matches_published_values() {
+        // Exact E[median] of N unit exponentials (order statistics): shared REFERENCES item 8.
+        let table = [(1, 1.0), (3, 0.833333), (5, 0.783333), (7, 0.759524), (9, 0.745635), (11, 0.736544)];
+        for (n, b) in table {
+            assert!((median_bias(n) - b).abs() < 1e-6, "n={n}");
+        }
+        assert!((median_bias(4) - 0.833333).abs() < 1e-6);
+        assert!((median_bias(100001) - std::f64::consts::LN_2).abs() < 1e-5);
+    }
+
+    #[test]
+    fn welch_of_white_noise_is_flat() {
+        // White noise of variance s^2 sampled at fs has one-sided PSD 2 s^2 / fs (common practice).
+        let fs = 256.0;
+        let mut state = 12345u64;
+        let x: Vec<f64> = (0..65536)
+            .map(|_| {
+                // Sum of 12 uniforms minus 6: approximately unit Gaussian.
+                (0..12).map(|_| {
+                    state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                    (state >> 11) as f64 / (1u64 << 53) as f64
+                }).sum::<f64>() - 6.0
+            })
+            .collect();
+        let window: Vec<f64> = (0..256).map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / 256.0).cos()).collect();
+        let psd = welch(&x, fs, 128, &window, false, Average::Mean).unwrap();
+        let mid: f64 = psd[10..120].iter().sum::<f64>() / 110.0;
+        assert!((mid / (2.0 / fs) - 1.0).abs() < 0.03, "{mid}");
+    }
+
+    #[test]
+    fn psd_to_grid_interpolates_and_marks_outside() {
+        let f = [1.0, 2.0, 4.0];
+        let p = [1.0, 3.0, f64::INFINITY];
+        let g = psd_to_grid(&f, &p, 0.5, 10);
+        assert!(g[0].is_infinite() && g[1].is_infinite());
+        assert_eq!(g[2], 1.0);
+        assert_eq!(g[3], 2.0);
+        assert_eq!(g[4], 3.0);
+        assert!(g[5].is_infinite() && g[8].is_infinite() && g[9].is_infinite());
+    }
+
+    #[test]
+    fn design_curve_minimum_matches_published_note() {
+        // REFERENCES item 9 note: the early second-generation fit has min sqrt(S) = 1.8e-24 near 228 Hz.
+        let c = DesignCurve::Gen2Early;
+        let (fmin, smin) = (100..400).map(|f| (f as f64, c.psd(f as f64))).fold((0.0, f64::MAX), |a, b| if b.1 < a.1 { b } else { a });
+        assert!((smin.sqrt() / 1.8e-24 - 1.0).abs() < 0.03);
+        assert!((fmin - 228.0).abs() < 5.0);
+        assert!(c.psd(5.0).is_infinite());
+    }
+}
