@@ -267,17 +267,17 @@ def _read_text(path: Path, sample_rate, t0):
         raise ValueError(f"{where}: a two-column file needs at least 2 rows to derive the sample rate")
     if not np.all(np.isfinite(times)):
         bad = int(np.flatnonzero(~np.isfinite(times))[0])
-        raise ValueError(f"{where}: time column is not finite at row {bad} ({times[bad]!r})")
-    dt = (times[-1] - times[0]) / (times.size - 1)
+        raise ValueError(f"{where}: time column is not finite at row {bad} ({float(times[bad])!r})")
+    dt = float((times[-1] - times[0]) / (times.size - 1))
     if not dt > 0:
-        raise ValueError(f"{where}: time column does not increase (first {times[0]!r}, last {times[-1]!r})")
+        raise ValueError(f"{where}: time column does not increase (first {float(times[0])!r}, last {float(times[-1])!r})")
     steps = np.diff(times)
     dev = np.abs(steps - dt)
     worst = int(np.argmax(dev))
     if dev[worst] > TIME_SPACING_RTOL * dt:
         raise ValueError(
             f"{where}: time column is not uniformly spaced: step {worst} -> {worst + 1} is "
-            f"{steps[worst]!r} s against a mean step of {dt!r} s (relative tolerance {TIME_SPACING_RTOL:g})"
+            f"{float(steps[worst])!r} s against a mean step of {dt!r} s (relative tolerance {TIME_SPACING_RTOL:g})"
         )
     derived = 1.0 / dt
     if sample_rate is not None:
@@ -290,7 +290,7 @@ def _read_text(path: Path, sample_rate, t0):
         given_t0 = _check_t0(t0, where)
         if abs(given_t0 - times[0]) > 0.5 * dt:
             raise ValueError(
-                f"{where}: t0={given_t0!r} s disagrees with the first time in the file ({times[0]!r} s)"
+                f"{where}: t0={given_t0!r} s disagrees with the first time in the file ({float(times[0])!r} s)"
             )
     return data, derived, float(times[0]), where
 
@@ -443,6 +443,16 @@ def find_nonfinite_runs(data) -> list[tuple[int, int]]:
 # ---------------------------------------------------------------------------
 # atomic writing
 # ---------------------------------------------------------------------------
+def _new_file_mode(final: Path) -> int:
+    """Permissions for a new file: those of the file it replaces, else 0o666 less the umask."""
+    try:
+        return final.stat().st_mode & 0o7777
+    except OSError:
+        mask = os.umask(0)
+        os.umask(mask)
+        return 0o666 & ~mask
+
+
 @contextlib.contextmanager
 def _atomic_target(path):
     """Yield a temporary path beside ``path``; rename it onto ``path`` on success."""
@@ -456,6 +466,7 @@ def _atomic_target(path):
         yield tmp
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())
+        os.chmod(tmp, _new_file_mode(final))
         os.replace(tmp, final)
     except BaseException:
         with contextlib.suppress(OSError):
@@ -579,8 +590,12 @@ def write_triggers(path, triggers, metadata: Mapping | None = None) -> None:
     meta_json = _to_json({} if metadata is None else dict(metadata))
     arrays = []
     for name, values in cols.items():
-        if values.dtype.kind in "SU":
-            arrays.append(pa.array(values.tolist()))
+        if values.dtype.kind == "U":
+            arrays.append(pa.array(values.tolist(), type=pa.string()))
+        elif values.dtype.kind == "S":
+            arrays.append(pa.array(values.tolist(), type=pa.binary()))
+        elif values.dtype.kind == "O":
+            raise TypeError(f"triggers column {name!r} has object dtype; use numeric or fixed-width string fields")
         else:
             arrays.append(pa.array(values))
     table = pa.Table.from_arrays(arrays, names=list(cols))
@@ -625,6 +640,10 @@ def read_triggers(path):
             items = column.to_pylist()
             width = max((len(s) for s in items), default=1) or 1
             arr = np.array(items, dtype=f"U{width}")
+        elif pa.types.is_binary(column.type) or pa.types.is_large_binary(column.type):
+            items = column.to_pylist()
+            width = max((len(s) for s in items), default=1) or 1
+            arr = np.array(items, dtype=f"S{width}")
         else:
             arr = column.to_numpy()
             if arr.dtype == object:

@@ -1,0 +1,32 @@
+"""chirpsift: fast matched-filter searches for compact-binary chirps in strain data.
+
+Plain numpy arrays in and out; a Rust core does the work. ``chirpsift.reference``
+holds a pure-numpy twin of every kernel.
+"""
+
+from .filter import correlate, sigma, snr_series
+from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_psd, welch, whiten
+from .threads import get_threads, set_threads
+from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "C_SI",
+    "DESIGN_CURVES",
+    "MPC",
+    "T_SUN",
+    "chirp_duration",
+    "correlate",
+    "design_psd",
+    "get_threads",
+    "isco_frequency",
+    "psd_to_grid",
+    "set_threads",
+    "sigma",
+    "snr_series",
+    "taylorf2",
+    "truncate_inverse_psd",
+    "welch",
+    "whiten",
+]

@@ -1,0 +1,128 @@
+"""Input checks shared by the numpy API: every message names the argument and the value."""
+
+from __future__ import annotations
+
+import numbers
+
+import numpy as np
+
+__all__ = [
+    "real_array",
+    "complex_array",
+    "positive_scalar",
+    "nonnegative_scalar",
+    "positive_int",
+    "psd_array",
+    "choice",
+]
+
+
+def _describe(x) -> str:
+    text = repr(x)
+    return text if len(text) <= 80 else text[:77] + "..."
+
+
+def _as_array(name: str, x, kind: str) -> np.ndarray:
+    if isinstance(x, (str, bytes)) or x is None:
+        raise TypeError(f"{name} must be an array of numbers, got {_describe(x)}")
+    try:
+        a = np.asarray(x)
+    except Exception as exc:  # ragged lists and similar
+        raise TypeError(f"{name} must be an array of numbers, got {_describe(x)}") from exc
+    if a.dtype == object or a.dtype.kind not in ("b", "i", "u", "f", "c"):
+        raise TypeError(f"{name} must hold numbers, got dtype {a.dtype}")
+    if kind == "real" and a.dtype.kind == "c":
+        raise TypeError(f"{name} must be real, got complex dtype {a.dtype}")
+    return a
+
+
+def _check_shape(name: str, a: np.ndarray, ndim) -> None:
+    allowed = (ndim,) if isinstance(ndim, int) else tuple(ndim)
+    if a.ndim not in allowed:
+        want = " or ".join(f"{d}-D" for d in allowed)
+        raise ValueError(f"{name} must be {want}, got shape {a.shape}")
+    if a.size == 0:
+        raise ValueError(f"{name} must not be empty, got shape {a.shape}")
+
+
+def _check_finite(name: str, a: np.ndarray) -> None:
+    bad = ~np.isfinite(a)
+    if bad.any():
+        idx = np.unravel_index(int(np.argmax(bad)), a.shape)
+        where = idx[0] if len(idx) == 1 else idx
+        raise ValueError(f"{name} must be finite, found {a[idx]} at index {where} ({int(bad.sum())} non-finite values)")
+
+
+def real_array(name: str, x, ndim=(1, 2), dtype=np.float64, finite: bool = True) -> np.ndarray:
+    """C-contiguous real array of `dtype`, checked for shape, emptiness and finiteness."""
+    a = _as_array(name, x, "real")
+    _check_shape(name, a, ndim)
+    a = np.asarray(a, dtype=dtype, order="C")  # keeps 0-d arrays 0-d
+    if finite:
+        _check_finite(name, a)
+    return a
+
+
+def complex_array(name: str, x, ndim=(1, 2), dtype=None) -> np.ndarray:
+    """C-contiguous complex64/complex128 array (kept at its precision unless `dtype`)."""
+    a = _as_array(name, x, "complex")
+    _check_shape(name, a, ndim)
+    if dtype is None:
+        dtype = np.complex64 if a.dtype in (np.complex64, np.float32, np.float16) else np.complex128
+    a = np.asarray(a, dtype=dtype, order="C")
+    _check_finite(name, a)
+    return a
+
+
+def _scalar(name: str, x) -> float:
+    if isinstance(x, (bool, np.bool_)) or not isinstance(x, (numbers.Real, np.floating, np.integer)):
+        if isinstance(x, np.ndarray) and x.ndim == 0 and x.dtype.kind in "iuf":
+            x = x.item()
+        else:
+            raise TypeError(f"{name} must be a real number, got {_describe(x)}")
+    v = float(x)
+    if not np.isfinite(v):
+        raise ValueError(f"{name} must be finite, got {v}")
+    return v
+
+
+def positive_scalar(name: str, x) -> float:
+    v = _scalar(name, x)
+    if v <= 0:
+        raise ValueError(f"{name} must be positive, got {v}")
+    return v
+
+
+def nonnegative_scalar(name: str, x) -> float:
+    v = _scalar(name, x)
+    if v < 0:
+        raise ValueError(f"{name} must be non-negative, got {v}")
+    return v
+
+
+def positive_int(name: str, x, minimum: int = 1) -> int:
+    if isinstance(x, (bool, np.bool_)) or not isinstance(x, (numbers.Integral, np.integer)):
+        raise TypeError(f"{name} must be an integer, got {_describe(x)}")
+    v = int(x)
+    if v < minimum:
+        raise ValueError(f"{name} must be at least {minimum}, got {v}")
+    return v
+
+
+def psd_array(name: str, x, ndim=(1, 2)) -> np.ndarray:
+    """float64 PSD: positive or +inf (inf marks excluded bins), never NaN, zero or negative."""
+    a = real_array(name, x, ndim=ndim, finite=False)
+    if np.isnan(a).any():
+        i = np.unravel_index(int(np.argmax(np.isnan(a))), a.shape)
+        raise ValueError(f"{name} must not contain NaN, found one at index {i if a.ndim > 1 else i[0]}")
+    bad = (a <= 0) | (a == -np.inf)
+    if bad.any():
+        i = np.unravel_index(int(np.argmax(bad)), a.shape)
+        raise ValueError(f"{name} must be positive (use inf to exclude a bin), found {a[i]} at index {i if a.ndim > 1 else i[0]}")
+    return a
+
+
+def choice(name: str, x, options) -> str:
+    if not isinstance(x, str) or x not in options:
+        raise ValueError(f"{name} must be one of {', '.join(map(repr, options))}, got {_describe(x)}")
+    return x

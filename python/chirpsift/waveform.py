@@ -1,0 +1,205 @@
+"""TaylorF2 inspiral templates and the time-frequency facts used to place them."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from . import _core
+from ._validate import positive_int, positive_scalar, real_array
+
+__all__ = ["taylorf2", "chirp_duration", "isco_frequency", "T_SUN", "MPC", "C_SI"]
+
+#: G M_sun / c^3 in seconds (IAU 2015 Resolution B3 nominal solar mass parameter).
+T_SUN = _core.T_SUN
+#: One megaparsec in metres.
+MPC = _core.MPC
+#: Speed of light in m/s.
+C_SI = _core.C_SI
+
+
+def _masses(m1, m2):
+    a = real_array("m1", m1, ndim=range(0, 2), finite=False)
+    b = real_array("m2", m2, ndim=range(0, 2), finite=False)
+    for name, v in (("m1", a), ("m2", b)):
+        bad = ~(np.isfinite(v) & (v > 0))
+        if bad.any():
+            raise ValueError(f"{name} must be positive and finite (solar masses), got {v.reshape(-1)[np.argmax(bad.reshape(-1))]}")
+    return a, b
+
+
+def _spins(chi1, chi2):
+    out = []
+    for name, c in (("chi1", chi1), ("chi2", chi2)):
+        v = real_array(name, c, ndim=range(0, 2), finite=False)
+        bad = ~(np.abs(v) < 1)
+        if bad.any():
+            raise ValueError(f"{name} must satisfy |{name}| < 1, got {v.reshape(-1)[np.argmax(bad.reshape(-1))]}")
+        out.append(v)
+    return out
+
+
+def _phase_order(phase_order) -> int:
+    p = positive_int("phase_order", phase_order, minimum=0)
+    if p > 7:
+        raise ValueError(f"phase_order must be 0..7 (twice the PN order), got {p}")
+    return p
+
+
+def isco_frequency(m1, m2):
+    """Gravitational-wave frequency at the Schwarzschild innermost stable circular orbit.
+
+    Parameters
+    ----------
+    m1, m2 : float or array_like
+        Component masses in solar masses (broadcast).
+
+    Returns
+    -------
+    float or ndarray
+        ``f_ISCO = 1 / (6^(3/2) pi M T_sun)`` in Hz, twice the orbital frequency at
+        ``r = 6 G M / c^2`` (about 4400 Hz / (M / Msun)).
+    """
+    a, b = _masses(m1, m2)
+    m = np.broadcast_arrays(a, b)
+    total = np.ascontiguousarray((m[0] + m[1]).reshape(-1))
+    out = _core.isco_frequency(total).reshape(m[0].shape)
+    return float(out) if out.ndim == 0 else out
+
+
+def chirp_duration(m1, m2, f_low, phase_order=7):
+    """Time from frequency ``f_low`` to coalescence of a non-spinning binary.
+
+    Parameters
+    ----------
+    m1, m2 : float or array_like
+        Component masses in solar masses (broadcast).
+    f_low : float
+        Starting gravitational-wave frequency in Hz.
+    phase_order : int, optional
+        Highest power ``v^k`` kept in the TaylorT2 series (7 = 3.5PN, 0 = Newtonian).
+
+    Returns
+    -------
+    float or ndarray
+        ``t_c - t(f_low) = 5 M / (256 eta v^8) sum_k tau_k v^k`` in seconds,
+        ``v = (pi M f_low)^(1/3)``.
+
+    References
+    ----------
+    .. [1] B. S. Sathyaprakash, Phys. Rev. D 50, R7111 (1994) (chirp times).
+    .. [2] A. Buonanno, B. R. Iyer, E. Ochsner, Y. Pan and B. S. Sathyaprakash,
+       Phys. Rev. D 80, 084043 (2009), arXiv:0907.0700 (TaylorT2 time to 3.5PN).
+
+    Examples
+    --------
+    >>> import chirpsift
+    >>> round(chirpsift.chirp_duration(1.4, 1.4, 40.0, phase_order=4), 2)
+    25.43
+    """
+    a, b = _masses(m1, m2)
+    fl = positive_scalar("f_low", f_low)
+    m = np.broadcast_arrays(a, b)
+    out = _core.chirp_duration(
+        np.ascontiguousarray(m[0].reshape(-1)), np.ascontiguousarray(m[1].reshape(-1)), fl, _phase_order(phase_order)
+    ).reshape(m[0].shape)
+    return float(out) if out.ndim == 0 else out
+
+
+def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None, distance=1.0, phase_order=7, dtype=np.complex64):
+    """Frequency-domain TaylorF2 inspiral templates.
+
+    Parameters
+    ----------
+    m1, m2 : float or array_like
+        Component masses in solar masses.
+    chi1, chi2 : float or array_like, optional
+        Dimensionless spins along the orbital angular momentum, ``|chi| < 1``.
+        All four broadcast to ``K`` templates.
+    f_low : float
+        Lowest frequency (Hz) of the templates; bins below are zero.
+    df : float
+        Frequency spacing in Hz (``1 / segment duration``).
+    n_freq : int
+        Number of bins, ``k = 0 .. n_freq - 1`` at ``f = k df``.
+    f_high : float or array_like, optional
+        Templates are zero at and above this frequency (Hz); default the
+        Schwarzschild ISCO frequency of each template's total mass.
+    distance : float, optional
+        Luminosity distance in Mpc of an optimally oriented source (overhead, face on).
+    phase_order : int, optional
+        Highest power ``v^k`` of the phase kept (7 = 3.5PN).
+    dtype : {numpy.complex64, numpy.complex128}, optional
+        Output precision. The phase is always accumulated in float64.
+
+    Returns
+    -------
+    ndarray, shape (K, n_freq)
+        ``h~(f) = A f^(-7/6) exp(-i Psi(f))`` with ``t_c = 0`` and ``phi_c = 0``, in
+        strain per Hz, so a matched filter against data peaks at the coalescence time.
+
+    Notes
+    -----
+    ``A = sqrt(5/24) pi^(-2/3) (c / D) (G Mc / c^3)^(5/6)``, the Newtonian
+    stationary-phase amplitude of an optimally oriented source. The phase is
+
+    ``Psi(f) = -pi/4 + 3 / (128 eta v^5) sum_k psi_k v^k``, ``v = (pi G M f / c^3)^(1/3)``,
+
+    with the non-spinning coefficients to 3.5PN (``psi_5`` carries ``1 + 3 ln v``,
+    ``psi_6`` carries ``ln(4 v)``) and aligned-spin corrections: spin-orbit at
+    1.5, 2.5, 3 and 3.5PN, spin-spin at 2PN (including the self-spin,
+    quadrupole-monopole terms of black holes) and 3PN.
+
+    The generator evaluates the exact phase at four nodes per block of up to 128 bins
+    and steps a cubic through them with a complex rotation recurrence; block widths
+    keep the interpolation error below 1e-7 rad (checked against the direct formula in
+    the tests, and available in :func:`chirpsift.reference.taylorf2`).
+
+    References
+    ----------
+    .. [1] A. Buonanno, B. R. Iyer, E. Ochsner, Y. Pan and B. S. Sathyaprakash,
+       Phys. Rev. D 80, 084043 (2009), arXiv:0907.0700.
+    .. [2] K. G. Arun, B. R. Iyer, B. S. Sathyaprakash and P. A. Sundararajan,
+       Phys. Rev. D 71, 084008 (2005), gr-qc/0411146.
+    .. [3] E. Poisson and C. M. Will, Phys. Rev. D 52, 848 (1995), gr-qc/9502040
+       (1.5PN spin-orbit, 2PN spin-spin).
+    .. [4] S. Khan et al., Phys. Rev. D 93, 044007 (2016), arXiv:1508.07253, appendix B
+       (compilation of the aligned-spin terms to 3.5PN).
+    .. [5] C. Cutler and E. E. Flanagan, Phys. Rev. D 49, 2658 (1994) (amplitude).
+
+    Examples
+    --------
+    >>> import numpy as np, chirpsift
+    >>> h = chirpsift.taylorf2([1.4, 1.6], 1.3, f_low=20.0, df=1 / 64, n_freq=64 * 1024 + 1)
+    >>> h.shape, h.dtype
+    ((2, 65537), dtype('complex64'))
+    """
+    a, b = _masses(m1, m2)
+    c1, c2 = _spins(chi1, chi2)
+    try:
+        arrays = np.broadcast_arrays(a, b, c1, c2)
+    except ValueError as exc:
+        raise ValueError(f"m1, m2, chi1, chi2 must broadcast together, got shapes {a.shape}, {b.shape}, {c1.shape}, {c2.shape}") from exc
+    m1v, m2v, c1v, c2v = (np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in arrays)
+    fl = positive_scalar("f_low", f_low)
+    dfv = positive_scalar("df", df)
+    nf = positive_int("n_freq", n_freq)
+    dist = positive_scalar("distance", distance)
+    order = _phase_order(phase_order)
+    dt = np.dtype(dtype)
+    if dt not in (np.dtype(np.complex64), np.dtype(np.complex128)):
+        raise TypeError(f"dtype must be complex64 or complex128, got {dt}")
+    f_top = (nf - 1) * dfv
+    if fl >= f_top:
+        raise ValueError(f"f_low={fl} Hz must be below the highest bin frequency (n_freq - 1) * df = {f_top} Hz")
+    if f_high is None:
+        fh = 1.0 / (6.0**1.5 * np.pi * (m1v + m2v) * T_SUN)
+    else:
+        fh = real_array("f_high", f_high, ndim=range(0, 2))
+        try:
+            fh = np.broadcast_to(fh, m1v.shape).astype(np.float64)
+        except ValueError as exc:
+            raise ValueError(f"f_high must broadcast to {m1v.shape[0]} templates, got shape {fh.shape}") from exc
+    bad = ~(fh > fl)
+    if bad.any():
+        raise ValueError(f"f_high must exceed f_low={fl} Hz, got {fh[np.argmax(bad)]} Hz (template {int(np.argmax(bad))})")
+    return _core.taylorf2(m1v, m2v, c1v, c2v, fl, dfv, nf, np.ascontiguousarray(fh), dist, order, dt == np.complex128)
