@@ -5,6 +5,12 @@ holds a pure-numpy twin of every kernel.
 """
 
 from .filter import correlate, sigma, snr_series
+from .bank import Bank
+from .clustering import cluster_in_time
+from .fused import TRIGGER_COLUMNS, filter_segment
+from .pipeline import TRIGGER_DTYPE, GatingWarning, search
+from .ranking import reweighted_snr
+from .segments import plan_segments
 from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_psd, welch, whiten
 from .threads import get_threads, set_threads
 from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
@@ -12,6 +18,14 @@ from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
 __version__ = "0.1.0"
 
 __all__ = [
+    "Bank",
+    "GatingWarning",
+    "TRIGGER_COLUMNS",
+    "TRIGGER_DTYPE",
+    "cluster_in_time",
+    "plan_segments",
+    "reweighted_snr",
+    "search",
     "C_SI",
     "DESIGN_CURVES",
     "MPC",
@@ -19,6 +33,7 @@ __all__ = [
     "chirp_duration",
     "correlate",
     "design_psd",
+    "filter_segment",
     "get_threads",
     "isco_frequency",
     "psd_to_grid",

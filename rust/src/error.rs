@@ -11,7 +11,10 @@ pub struct Error {
 
 impl Error {
     pub fn invalid(argument: &'static str, message: impl Into<String>) -> Self {
-        Error { argument, message: message.into() }
+        Error {
+            argument,
+            message: message.into(),
+        }
     }
 }
 
@@ -26,7 +29,11 @@ impl std::error::Error for Error {}
 pub type Result<T> = std::result::Result<T, Error>;
 
 /// Fail with `argument` unless `condition` holds.
-pub fn ensure(condition: bool, argument: &'static str, message: impl FnOnce() -> String) -> Result<()> {
+pub fn ensure(
+    condition: bool,
+    argument: &'static str,
+    message: impl FnOnce() -> String,
+) -> Result<()> {
     if condition {
         Ok(())
     } else {

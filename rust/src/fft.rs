@@ -33,17 +33,26 @@ planned!(f64);
 
 /// Unnormalised inverse complex transform: `x_j = sum_k X_k exp(+2 pi i j k / n)`.
 pub fn inverse<T: Planned>(n: usize) -> Arc<dyn Fft<T>> {
-    T::complex_planner().lock().unwrap_or_else(|e| e.into_inner()).plan_fft_inverse(n)
+    T::complex_planner()
+        .lock()
+        .unwrap_or_else(|e| e.into_inner())
+        .plan_fft_inverse(n)
 }
 
 /// Real-to-complex forward transform of length `n` (numpy's `rfft`, unnormalised).
 pub fn forward_real<T: Planned>(n: usize) -> Arc<dyn RealToComplex<T>> {
-    T::real_planner().lock().unwrap_or_else(|e| e.into_inner()).plan_fft_forward(n)
+    T::real_planner()
+        .lock()
+        .unwrap_or_else(|e| e.into_inner())
+        .plan_fft_forward(n)
 }
 
 /// Complex-to-real inverse transform of length `n` (numpy's `irfft` times `n`).
 pub fn inverse_real<T: Planned>(n: usize) -> Arc<dyn ComplexToReal<T>> {
-    T::real_planner().lock().unwrap_or_else(|e| e.into_inner()).plan_fft_inverse(n)
+    T::real_planner()
+        .lock()
+        .unwrap_or_else(|e| e.into_inner())
+        .plan_fft_inverse(n)
 }
 
 /// Scratch buffers for one real transform pair, reused across calls by one thread.
@@ -116,13 +125,21 @@ mod tests {
             let m = fast_length(n);
             assert!(m >= n);
             let mut r = m;
-            while r % 2 == 0 { r /= 2; }
-            while r % 3 == 0 { r /= 3; }
+            while r % 2 == 0 {
+                r /= 2;
+            }
+            while r % 3 == 0 {
+                r /= 3;
+            }
             assert_eq!(r, 1, "{m} is not 2^a 3^b");
             for k in n..m {
                 let mut r = k;
-                while r % 2 == 0 { r /= 2; }
-                while r % 3 == 0 { r /= 3; }
+                while r % 2 == 0 {
+                    r /= 2;
+                }
+                while r % 3 == 0 {
+                    r /= 3;
+                }
                 assert_ne!(r, 1, "{k} is smaller and smooth");
             }
         }
@@ -133,7 +150,9 @@ mod tests {
         // irfft(rfft(x)) = n x (common practice: unnormalised DFT pair).
         for n in [7usize, 8, 30, 64] {
             let mut s = RealScratch::<f64>::new(n);
-            let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.7).sin() + 0.1 * i as f64).collect();
+            let x: Vec<f64> = (0..n)
+                .map(|i| (i as f64 * 0.7).sin() + 0.1 * i as f64)
+                .collect();
             s.time.copy_from_slice(&x);
             s.rfft();
             s.irfft();

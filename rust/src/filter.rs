@@ -37,11 +37,19 @@ pub fn band(f_low: f64, f_high: Option<f64>, df: f64, n_freq: usize) -> (usize, 
 
 /// `1/S`, zero where `S` is infinite.
 pub fn inverse_psd(psd: &[f64]) -> Vec<f64> {
-    psd.iter().map(|&s| if s.is_finite() { 1.0 / s } else { 0.0 }).collect()
+    psd.iter()
+        .map(|&s| if s.is_finite() { 1.0 / s } else { 0.0 })
+        .collect()
 }
 
 /// `sigma^2 = 4 df sum_{band} |h~_k|^2 / S_k`.
-pub fn sigma_sq<H: AsComplex64>(h: &[H], inv_psd: &[f64], k_lo: usize, k_hi: usize, df: f64) -> f64 {
+pub fn sigma_sq<H: AsComplex64>(
+    h: &[H],
+    inv_psd: &[f64],
+    k_lo: usize,
+    k_hi: usize,
+    df: f64,
+) -> f64 {
     let mut acc = 0.0f64;
     for k in k_lo..k_hi {
         acc += h[k].c64().norm_sqr() * inv_psd[k];
@@ -50,8 +58,18 @@ pub fn sigma_sq<H: AsComplex64>(h: &[H], inv_psd: &[f64], k_lo: usize, k_hi: usi
 }
 
 /// Template norms `sigma` for `templates` stored row-major `(K, n_freq)`.
-pub fn sigma<H: AsComplex64>(templates: &[H], n_freq: usize, inv_psd: &[f64], k_lo: usize, k_hi: usize, df: f64) -> Vec<f64> {
-    templates.par_chunks(n_freq).map(|h| sigma_sq(h, inv_psd, k_lo, k_hi, df).sqrt()).collect()
+pub fn sigma<H: AsComplex64>(
+    templates: &[H],
+    n_freq: usize,
+    inv_psd: &[f64],
+    k_lo: usize,
+    k_hi: usize,
+    df: f64,
+) -> Vec<f64> {
+    templates
+        .par_chunks(n_freq)
+        .map(|h| sigma_sq(h, inv_psd, k_lo, k_hi, df).sqrt())
+        .collect()
 }
 
 /// Complex SNR series `(K, N)`, `N = 2 (n_freq - 1)`, of `data` (`x~ = rfft(x) dt`)
@@ -71,23 +89,31 @@ pub fn snr_series<T: Planned, H: AsComplex64>(
     if let Some(i) = norms.iter().position(|&s| !(s > 0.0) || !s.is_finite()) {
         return Err(crate::error::Error::invalid(
             "templates",
-            format!("template {i} has norm {} in the band [{}, {}) Hz", norms[i], k_lo as f64 * df, k_hi as f64 * df),
+            format!(
+                "template {i} has norm {} in the band [{}, {}) Hz",
+                norms[i],
+                k_lo as f64 * df,
+                k_hi as f64 * df
+            ),
         ));
     }
     let plan = fft::inverse::<T>(n);
     let zero = Complex::new(T::zero(), T::zero());
     let mut out = vec![zero; k_count * n];
-    out.par_chunks_mut(n).zip(templates.par_chunks(n_freq)).zip(norms.par_iter()).for_each_init(
-        || vec![zero; plan.get_inplace_scratch_len()],
-        |scratch, ((row, h), &s)| {
-            let scale = 4.0 * df / s;
-            for k in k_lo..k_hi {
-                let p = data[k] * h[k].c64().conj() * (inv_psd[k] * scale);
-                row[k] = Complex::new(T::from_f64(p.re).unwrap(), T::from_f64(p.im).unwrap());
-            }
-            plan.process_with_scratch(row, scratch);
-        },
-    );
+    out.par_chunks_mut(n)
+        .zip(templates.par_chunks(n_freq))
+        .zip(norms.par_iter())
+        .for_each_init(
+            || vec![zero; plan.get_inplace_scratch_len()],
+            |scratch, ((row, h), &s)| {
+                let scale = 4.0 * df / s;
+                for k in k_lo..k_hi {
+                    let p = data[k] * h[k].c64().conj() * (inv_psd[k] * scale);
+                    row[k] = Complex::new(T::from_f64(p.re).unwrap(), T::from_f64(p.im).unwrap());
+                }
+                plan.process_with_scratch(row, scratch);
+            },
+        );
     Ok(out)
 }
 
@@ -105,7 +131,10 @@ impl Mode {
             "full" => Ok(Mode::Full),
             "same" => Ok(Mode::Same),
             "valid" => Ok(Mode::Valid),
-            _ => Err(crate::error::Error::invalid("mode", format!("must be 'valid', 'same' or 'full', got {name:?}"))),
+            _ => Err(crate::error::Error::invalid(
+                "mode",
+                format!("must be 'valid', 'same' or 'full', got {name:?}"),
+            )),
         }
     }
 
@@ -116,7 +145,9 @@ impl Mode {
             Mode::Full => (0, full),
             Mode::Same => ((full - n) / 2, n),
             Mode::Valid => {
-                ensure(m <= n, "templates", || format!("mode 'valid' needs templates no longer than data, got {m} > {n}"))?;
+                ensure(m <= n, "templates", || {
+                    format!("mode 'valid' needs templates no longer than data, got {m} > {n}")
+                })?;
                 (m - 1, n - m + 1)
             }
         })
@@ -136,24 +167,26 @@ pub fn correlate(data: &[f64], templates: &[f64], m: usize, mode: Mode) -> Resul
     let k_count = templates.len() / m;
     let mut out = vec![0.0f64; k_count * len];
     let inv = 1.0 / nfft as f64;
-    out.par_chunks_mut(len.max(1)).zip(templates.par_chunks(m)).for_each_init(
-        || RealScratch::<f64>::new(nfft),
-        |fft, (row, t)| {
-            fft.time[..m].copy_from_slice(t);
-            fft.time[m..].iter_mut().for_each(|x| *x = 0.0);
-            fft.rfft();
-            for (c, dk) in fft.spectrum.iter_mut().zip(&d) {
-                *c = dk * c.conj();
-            }
-            fft.irfft();
-            // Circular lag l sits at index l mod nfft; full index i is lag i - (m - 1).
-            for (j, o) in row.iter_mut().enumerate() {
-                let lag = (offset + j) as isize - (m as isize - 1);
-                let idx = lag.rem_euclid(nfft as isize) as usize;
-                *o = fft.time[idx] * inv;
-            }
-        },
-    );
+    out.par_chunks_mut(len.max(1))
+        .zip(templates.par_chunks(m))
+        .for_each_init(
+            || RealScratch::<f64>::new(nfft),
+            |fft, (row, t)| {
+                fft.time[..m].copy_from_slice(t);
+                fft.time[m..].iter_mut().for_each(|x| *x = 0.0);
+                fft.rfft();
+                for (c, dk) in fft.spectrum.iter_mut().zip(&d) {
+                    *c = dk * c.conj();
+                }
+                fft.irfft();
+                // Circular lag l sits at index l mod nfft; full index i is lag i - (m - 1).
+                for (j, o) in row.iter_mut().enumerate() {
+                    let lag = (offset + j) as isize - (m as isize - 1);
+                    let idx = lag.rem_euclid(nfft as isize) as usize;
+                    *o = fft.time[idx] * inv;
+                }
+            },
+        );
     Ok(out)
 }
 
@@ -167,7 +200,10 @@ mod tests {
         (0..n + m - 1)
             .map(|i| {
                 let lag = i - (m - 1);
-                (0..m).filter(|&j| (0..n).contains(&(j + lag))).map(|j| data[(j + lag) as usize] * t[j as usize]).sum()
+                (0..m)
+                    .filter(|&j| (0..n).contains(&(j + lag)))
+                    .map(|j| data[(j + lag) as usize] * t[j as usize])
+                    .sum()
             })
             .collect()
     }
@@ -175,7 +211,9 @@ mod tests {
     #[test]
     fn correlate_matches_definition_in_every_mode() {
         let data: Vec<f64> = (0..37).map(|i| ((i * 7 % 11) as f64 - 5.0) * 0.3).collect();
-        let t: Vec<f64> = (0..2 * 8).map(|i| ((i * 5 % 7) as f64 - 3.0) * 0.5).collect();
+        let t: Vec<f64> = (0..2 * 8)
+            .map(|i| ((i * 5 % 7) as f64 - 3.0) * 0.5)
+            .collect();
         let full = correlate(&data, &t, 8, Mode::Full).unwrap();
         for (row, tt) in full.chunks(44).zip(t.chunks(8)) {
             for (a, b) in row.iter().zip(direct_full(&data, tt)) {
@@ -195,7 +233,9 @@ mod tests {
     fn snr_of_template_against_itself_is_sigma_at_zero_lag() {
         // <h|h> / sigma = sigma (definition of the matched filter, Allen et al. 2012).
         let n_freq = 65;
-        let h: Vec<Complex64> = (0..n_freq).map(|k| Complex64::from_polar(1.0 / (1.0 + k as f64), 0.1 * k as f64 * k as f64)).collect();
+        let h: Vec<Complex64> = (0..n_freq)
+            .map(|k| Complex64::from_polar(1.0 / (1.0 + k as f64), 0.1 * k as f64 * k as f64))
+            .collect();
         let inv = vec![2.0; n_freq];
         let (lo, hi) = band(1.0, None, 1.0, n_freq);
         let s = sigma_sq(&h, &inv, lo, hi, 1.0).sqrt();

@@ -3,10 +3,12 @@
 //! validation with user-facing messages happens in the Python layer first.
 
 use crate::error::Result as CoreResult;
-use crate::{filter, spectrum, threads, waveform};
+use crate::{filter, search, spectrum, threads, waveform};
 use num_complex::{Complex32, Complex64};
 use numpy::ndarray::Array2;
-use numpy::{IntoPyArray, PyArray1, PyArray2, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods};
+use numpy::{
+    IntoPyArray, PyArray1, PyArray2, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods,
+};
 use pyo3::exceptions::{PyRuntimeError, PyValueError};
 use pyo3::prelude::*;
 use std::panic::{catch_unwind, AssertUnwindSafe};
@@ -24,13 +26,21 @@ fn run<T: Send>(py: Python<'_>, f: impl FnOnce() -> CoreResult<T> + Send) -> PyR
                 .cloned()
                 .or_else(|| payload.downcast_ref::<&str>().map(|s| s.to_string()))
                 .unwrap_or_else(|| "unknown panic".into());
-            Err(PyRuntimeError::new_err(format!("internal error in the chirpsift core (please report): {msg}")))
+            Err(PyRuntimeError::new_err(format!(
+                "internal error in the chirpsift core (please report): {msg}"
+            )))
         }
     }
 }
 
-fn to_2d<'py, T: numpy::Element>(py: Python<'py>, rows: usize, cols: usize, v: Vec<T>) -> PyResult<Bound<'py, PyArray2<T>>> {
-    let a = Array2::from_shape_vec((rows, cols), v).map_err(|e| PyRuntimeError::new_err(e.to_string()))?;
+fn to_2d<'py, T: numpy::Element>(
+    py: Python<'py>,
+    rows: usize,
+    cols: usize,
+    v: Vec<T>,
+) -> PyResult<Bound<'py, PyArray2<T>>> {
+    let a = Array2::from_shape_vec((rows, cols), v)
+        .map_err(|e| PyRuntimeError::new_err(e.to_string()))?;
     Ok(a.into_pyarray(py))
 }
 
@@ -58,7 +68,11 @@ fn welch<'py>(
     let xs = x.as_slice()?;
     let w = window.as_slice()?;
     let n_freq = w.len() / 2 + 1;
-    let average = if median { spectrum::Average::Median } else { spectrum::Average::Mean };
+    let average = if median {
+        spectrum::Average::Median
+    } else {
+        spectrum::Average::Mean
+    };
     let out = run(py, || {
         use rayon::prelude::*;
         let rows: CoreResult<Vec<Vec<f64>>> = xs
@@ -71,8 +85,13 @@ fn welch<'py>(
 }
 
 #[pyfunction]
-fn design_psd<'py>(py: Python<'py>, freqs: PyReadonlyArray1<'py, f64>, curve: &str) -> PyResult<Bound<'py, PyArray1<f64>>> {
-    let c = spectrum::DesignCurve::from_name(curve).map_err(|e| PyValueError::new_err(e.to_string()))?;
+fn design_psd<'py>(
+    py: Python<'py>,
+    freqs: PyReadonlyArray1<'py, f64>,
+    curve: &str,
+) -> PyResult<Bound<'py, PyArray1<f64>>> {
+    let c = spectrum::DesignCurve::from_name(curve)
+        .map_err(|e| PyValueError::new_err(e.to_string()))?;
     let f = freqs.as_slice()?;
     let out = run(py, || Ok(f.iter().map(|&x| c.psd(x)).collect::<Vec<f64>>()))?;
     Ok(out.into_pyarray(py))
@@ -100,7 +119,9 @@ fn truncate_inverse_psd<'py>(
     f_low: f64,
 ) -> PyResult<Bound<'py, PyArray1<f64>>> {
     let p = psd.as_slice()?;
-    let out = run(py, || Ok(spectrum::truncate_inverse_psd(p, max_len, df, f_low)))?;
+    let out = run(py, || {
+        Ok(spectrum::truncate_inverse_psd(p, max_len, df, f_low))
+    })?;
     Ok(out.into_pyarray(py))
 }
 
@@ -120,13 +141,20 @@ fn whiten<'py>(
     let out = run(py, || {
         use rayon::prelude::*;
         let mut out = vec![0.0f64; channels * n];
-        out.par_chunks_mut(n).zip(xs.par_chunks(n)).enumerate().for_each_init(
-            || crate::fft::RealScratch::<f64>::new(n),
-            |fft, (c, (o, row))| {
-                let p = if per_channel { &ps[c * n_freq..(c + 1) * n_freq] } else { &ps[..n_freq] };
-                spectrum::whiten_into(row, p, sample_rate, f_low, fft, o);
-            },
-        );
+        out.par_chunks_mut(n)
+            .zip(xs.par_chunks(n))
+            .enumerate()
+            .for_each_init(
+                || crate::fft::RealScratch::<f64>::new(n),
+                |fft, (c, (o, row))| {
+                    let p = if per_channel {
+                        &ps[c * n_freq..(c + 1) * n_freq]
+                    } else {
+                        &ps[..n_freq]
+                    };
+                    spectrum::whiten_into(row, p, sample_rate, f_low, fft, o);
+                },
+            );
         Ok(out)
     })?;
     to_2d(py, channels, n, out)
@@ -149,11 +177,23 @@ fn taylorf2<'py>(
     phase_order: usize,
     double: bool,
 ) -> PyResult<Bound<'py, PyAny>> {
-    let (m1, m2, chi1, chi2, f_high) = (m1.as_slice()?, m2.as_slice()?, chi1.as_slice()?, chi2.as_slice()?, f_high.as_slice()?);
+    let (m1, m2, chi1, chi2, f_high) = (
+        m1.as_slice()?,
+        m2.as_slice()?,
+        chi1.as_slice()?,
+        chi2.as_slice()?,
+        f_high.as_slice()?,
+    );
     let k = m1.len();
     let build = || -> CoreResult<Vec<waveform::TaylorF2>> {
         (0..k)
-            .map(|i| waveform::TaylorF2::new(&waveform::Binary::new(m1[i], m2[i], chi1[i], chi2[i])?, distance, phase_order))
+            .map(|i| {
+                waveform::TaylorF2::new(
+                    &waveform::Binary::new(m1[i], m2[i], chi1[i], chi2[i])?,
+                    distance,
+                    phase_order,
+                )
+            })
             .collect()
     };
     macro_rules! generate {
@@ -162,10 +202,12 @@ fn taylorf2<'py>(
                 use rayon::prelude::*;
                 let models = build()?;
                 let mut out = vec![<$t>::new(0.0, 0.0); k * n_freq];
-                out.par_chunks_mut(n_freq.max(1)).enumerate().for_each(|(i, row)| {
-                    let (k_lo, k_hi) = filter::band(f_low, Some(f_high[i]), df, n_freq);
-                    models[i].for_each_bin(k_lo, k_hi, df, |kk, h| row[kk] = $conv(h));
-                });
+                out.par_chunks_mut(n_freq.max(1))
+                    .enumerate()
+                    .for_each(|(i, row)| {
+                        let (k_lo, k_hi) = filter::band(f_low, Some(f_high[i]), df, n_freq);
+                        models[i].for_each_bin(k_lo, k_hi, df, |kk, h| row[kk] = $conv(h));
+                    });
                 Ok(out)
             })?;
             Ok(to_2d(py, k, n_freq, out)?.into_any())
@@ -174,7 +216,10 @@ fn taylorf2<'py>(
     if double {
         generate!(Complex64, |h: Complex64| h)
     } else {
-        generate!(Complex32, |h: Complex64| Complex32::new(h.re as f32, h.im as f32))
+        generate!(Complex32, |h: Complex64| Complex32::new(
+            h.re as f32,
+            h.im as f32
+        ))
     }
 }
 
@@ -190,16 +235,28 @@ fn chirp_duration<'py>(
     let out = run(py, || {
         a.iter()
             .zip(b)
-            .map(|(&x, &y)| Ok(waveform::time_to_coalescence(&waveform::Binary::new(x, y, 0.0, 0.0)?, f_low, phase_order)))
+            .map(|(&x, &y)| {
+                Ok(waveform::time_to_coalescence(
+                    &waveform::Binary::new(x, y, 0.0, 0.0)?,
+                    f_low,
+                    phase_order,
+                ))
+            })
             .collect::<CoreResult<Vec<f64>>>()
     })?;
     Ok(out.into_pyarray(py))
 }
 
 #[pyfunction]
-fn isco_frequency<'py>(py: Python<'py>, m_total: PyReadonlyArray1<'py, f64>) -> PyResult<Bound<'py, PyArray1<f64>>> {
+fn isco_frequency<'py>(
+    py: Python<'py>,
+    m_total: PyReadonlyArray1<'py, f64>,
+) -> PyResult<Bound<'py, PyArray1<f64>>> {
     let m = m_total.as_slice()?;
-    Ok(m.iter().map(|&x| waveform::isco_frequency(x)).collect::<Vec<f64>>().into_pyarray(py))
+    Ok(m.iter()
+        .map(|&x| waveform::isco_frequency(x))
+        .collect::<Vec<f64>>()
+        .into_pyarray(py))
 }
 
 /// Dispatch over complex64 / complex128 template arrays.
@@ -276,9 +333,129 @@ fn correlate<'py>(
     let mode = filter::Mode::from_name(mode).map_err(|e| PyValueError::new_err(e.to_string()))?;
     let (rows, m) = (templates.shape()[0], templates.shape()[1]);
     let (d, t) = (data.as_slice()?, templates.as_slice()?);
-    let (_, len) = mode.window(d.len(), m).map_err(|e| PyValueError::new_err(e.to_string()))?;
+    let (_, len) = mode
+        .window(d.len(), m)
+        .map_err(|e| PyValueError::new_err(e.to_string()))?;
     let out = run(py, || filter::correlate(d, t, m, mode))?;
     to_2d(py, rows, len, out)
+}
+
+/// The fused search over one segment; returns a dict of trigger columns.
+#[pyfunction]
+#[allow(clippy::too_many_arguments)]
+fn search_segment<'py>(
+    py: Python<'py>,
+    data: PyReadonlyArray1<'py, Complex64>,
+    psd: PyReadonlyArray1<'py, f64>,
+    df: f64,
+    m1: PyReadonlyArray1<'py, f64>,
+    m2: PyReadonlyArray1<'py, f64>,
+    chi1: PyReadonlyArray1<'py, f64>,
+    chi2: PyReadonlyArray1<'py, f64>,
+    f_high: PyReadonlyArray1<'py, f64>,
+    phase_order: usize,
+    f_low: f64,
+    snr_threshold: f64,
+    cluster: usize,
+    chisq_bins: usize,
+    valid_start: usize,
+    valid_stop: usize,
+) -> PyResult<Bound<'py, pyo3::types::PyDict>> {
+    let (d, p) = (data.as_slice()?, psd.as_slice()?);
+    let (m1, m2, chi1, chi2, f_high) = (
+        m1.as_slice()?,
+        m2.as_slice()?,
+        chi1.as_slice()?,
+        chi2.as_slice()?,
+        f_high.as_slice()?,
+    );
+    let settings = search::Settings {
+        f_low,
+        snr_threshold,
+        cluster,
+        chisq_bins,
+        valid_start,
+        valid_stop,
+    };
+    let triggers = run(py, || {
+        let segment = search::Segment::new(d, p, df)?;
+        let templates = (0..m1.len())
+            .map(|i| {
+                let b = waveform::Binary::new(m1[i], m2[i], chi1[i], chi2[i])?;
+                Ok(search::Template {
+                    model: waveform::TaylorF2::new(&b, 1.0, phase_order)?,
+                    f_high: f_high[i],
+                })
+            })
+            .collect::<CoreResult<Vec<_>>>()?;
+        search::search_segment(&segment, &templates, &settings)
+    })?;
+    let out = pyo3::types::PyDict::new(py);
+    out.set_item(
+        "template",
+        triggers
+            .iter()
+            .map(|t| t.template as i64)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "index",
+        triggers
+            .iter()
+            .map(|t| t.index as i64)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "position",
+        triggers
+            .iter()
+            .map(|t| t.position)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "snr",
+        triggers
+            .iter()
+            .map(|t| t.snr)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "phase",
+        triggers
+            .iter()
+            .map(|t| t.phase)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "sigma",
+        triggers
+            .iter()
+            .map(|t| t.sigma)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "chisq",
+        triggers
+            .iter()
+            .map(|t| t.chisq)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    out.set_item(
+        "chisq_dof",
+        triggers
+            .iter()
+            .map(|t| t.chisq_dof as i64)
+            .collect::<Vec<_>>()
+            .into_pyarray(py),
+    )?;
+    Ok(out)
 }
 
 #[pymodule]
@@ -296,6 +473,7 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(sigma, m)?)?;
     m.add_function(wrap_pyfunction!(snr_series, m)?)?;
     m.add_function(wrap_pyfunction!(correlate, m)?)?;
+    m.add_function(wrap_pyfunction!(search_segment, m)?)?;
     m.add("T_SUN", waveform::T_SUN)?;
     m.add("MPC", waveform::MPC)?;
     m.add("C_SI", waveform::C_SI)?;

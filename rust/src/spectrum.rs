@@ -32,15 +32,33 @@ pub fn median_bias(n: usize) -> f64 {
 
 /// One-sided Welch PSD of `x`: periodograms of segments of `window.len()` samples
 /// stepping by `step`, scaled to a density in 1/Hz and combined by `average`.
-pub fn welch(x: &[f64], sample_rate: f64, step: usize, window: &[f64], detrend: bool, average: Average) -> Result<Vec<f64>> {
+pub fn welch(
+    x: &[f64],
+    sample_rate: f64,
+    step: usize,
+    window: &[f64],
+    detrend: bool,
+    average: Average,
+) -> Result<Vec<f64>> {
     let nperseg = window.len();
-    ensure(nperseg >= 2, "segment_duration", || format!("a segment must hold at least 2 samples, got {nperseg}"))?;
-    ensure(x.len() >= nperseg, "x", || format!("{} samples are fewer than one segment of {nperseg}", x.len()))?;
-    ensure(step >= 1, "overlap", || "segments must advance by at least one sample".into())?;
+    ensure(nperseg >= 2, "segment_duration", || {
+        format!("a segment must hold at least 2 samples, got {nperseg}")
+    })?;
+    ensure(x.len() >= nperseg, "x", || {
+        format!(
+            "{} samples are fewer than one segment of {nperseg}",
+            x.len()
+        )
+    })?;
+    ensure(step >= 1, "overlap", || {
+        "segments must advance by at least one sample".into()
+    })?;
     let n_seg = (x.len() - nperseg) / step + 1;
     let n_freq = nperseg / 2 + 1;
     let wsum2: f64 = window.iter().map(|w| w * w).sum();
-    ensure(wsum2 > 0.0, "window", || "window is identically zero".into())?;
+    ensure(wsum2 > 0.0, "window", || {
+        "window is identically zero".into()
+    })?;
     let scale = 1.0 / (sample_rate * wsum2);
 
     // One periodogram per segment, row-major (segment, frequency).
@@ -49,13 +67,21 @@ pub fn welch(x: &[f64], sample_rate: f64, step: usize, window: &[f64], detrend: 
         || RealScratch::<f64>::new(nperseg),
         |fft, (s, row)| {
             let seg = &x[s * step..s * step + nperseg];
-            let mean = if detrend { seg.iter().sum::<f64>() / nperseg as f64 } else { 0.0 };
+            let mean = if detrend {
+                seg.iter().sum::<f64>() / nperseg as f64
+            } else {
+                0.0
+            };
             for ((t, &v), &w) in fft.time.iter_mut().zip(seg).zip(window) {
                 *t = (v - mean) * w;
             }
             fft.rfft();
             for (k, (p, c)) in row.iter_mut().zip(&fft.spectrum).enumerate() {
-                let one_sided = if k == 0 || (nperseg % 2 == 0 && k == n_freq - 1) { 1.0 } else { 2.0 };
+                let one_sided = if k == 0 || (nperseg % 2 == 0 && k == n_freq - 1) {
+                    1.0
+                } else {
+                    2.0
+                };
                 *p = c.norm_sqr() * scale * one_sided;
             }
         },
@@ -111,8 +137,14 @@ pub enum DesignCurve {
 }
 
 impl DesignCurve {
-    pub const NAMES: [&'static str; 6] =
-        ["gen1-4km", "gen1-3km", "gen1-600m", "gen1-300m", "gen2-early", "gen2-zero-detuned"];
+    pub const NAMES: [&'static str; 6] = [
+        "gen1-4km",
+        "gen1-3km",
+        "gen1-600m",
+        "gen1-300m",
+        "gen2-early",
+        "gen2-zero-detuned",
+    ];
 
     pub fn from_name(name: &str) -> Result<Self> {
         Ok(match name {
@@ -125,7 +157,10 @@ impl DesignCurve {
             _ => {
                 return Err(Error::invalid(
                     "curve",
-                    format!("unknown curve {name:?}; choose one of {}", Self::NAMES.join(", ")),
+                    format!(
+                        "unknown curve {name:?}; choose one of {}",
+                        Self::NAMES.join(", ")
+                    ),
                 ))
             }
         })
@@ -135,7 +170,9 @@ impl DesignCurve {
     pub fn f_min(self) -> f64 {
         match self {
             DesignCurve::Gen1FourKm | DesignCurve::Gen1SixHundredM => 30.0,
-            DesignCurve::Gen1ThreeKm | DesignCurve::Gen2Early | DesignCurve::Gen2ZeroDetuned => 10.0,
+            DesignCurve::Gen1ThreeKm | DesignCurve::Gen2Early | DesignCurve::Gen2ZeroDetuned => {
+                10.0
+            }
             DesignCurve::Gen1ThreeHundredM => 50.0,
         }
     }
@@ -157,7 +194,10 @@ impl DesignCurve {
             DesignCurve::Gen1SixHundredM => {
                 let x = f / 150.0;
                 let x2 = x * x;
-                1e-46 * ((3.4 * x).powf(-30.0) + 34.0 / x + 20.0 * (1.0 - x2 + 0.5 * x2 * x2) / (1.0 + 0.5 * x2))
+                1e-46
+                    * ((3.4 * x).powf(-30.0)
+                        + 34.0 / x
+                        + 20.0 * (1.0 - x2 + 0.5 * x2 * x2) / (1.0 + 0.5 * x2))
             }
             DesignCurve::Gen1ThreeHundredM => {
                 let x = f / 400.0;
@@ -166,12 +206,15 @@ impl DesignCurve {
             DesignCurve::Gen2Early => {
                 let x = f / 215.0;
                 let x2 = x * x;
-                1e-49 * (x.powf(-4.14) - 5.0 / x2 + 111.0 * (1.0 - x2 + 0.5 * x2 * x2) / (1.0 + 0.5 * x2))
+                1e-49
+                    * (x.powf(-4.14) - 5.0 / x2
+                        + 111.0 * (1.0 - x2 + 0.5 * x2 * x2) / (1.0 + 0.5 * x2))
             }
             DesignCurve::Gen2ZeroDetuned => {
                 let x = f / 245.4;
                 1e-48
-                    * (0.0152 * x.powi(-4) + 0.2935 * x.powf(2.25) + 2.7951 * x.powf(1.5) - 6.5080 * x.powf(0.75)
+                    * (0.0152 * x.powi(-4) + 0.2935 * x.powf(2.25) + 2.7951 * x.powf(1.5)
+                        - 6.5080 * x.powf(0.75)
                         + 17.7622)
             }
         }
@@ -209,7 +252,11 @@ pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f6
 pub fn bin_at_or_above(f: f64, df: f64) -> usize {
     let k = (f / df).ceil();
     // Guard against round-off putting an exact multiple one bin high.
-    let k = if k > 0.0 && ((k - 1.0) * df) >= f { k - 1.0 } else { k };
+    let k = if k > 0.0 && ((k - 1.0) * df) >= f {
+        k - 1.0
+    } else {
+        k
+    };
     k.max(0.0) as usize
 }
 
@@ -223,14 +270,22 @@ pub fn truncate_inverse_psd(psd: &[f64], max_len: usize, df: f64, f_low: f64) ->
     let mut fft = RealScratch::<f64>::new(n);
     for (k, c) in fft.spectrum.iter_mut().enumerate() {
         let s = psd[k];
-        let r = if k >= k_low && s.is_finite() { 1.0 / s.sqrt() } else { 0.0 };
+        let r = if k >= k_low && s.is_finite() {
+            1.0 / s.sqrt()
+        } else {
+            0.0
+        };
         *c = num_complex::Complex::new(r, 0.0);
     }
     fft.irfft();
     let half = (max_len / 2).min(n / 2);
     let inv_n = 1.0 / n as f64;
     for (j, q) in fft.time.iter_mut().enumerate() {
-        *q = if j < half || j >= n - half { *q * inv_n } else { 0.0 };
+        *q = if j < half || j >= n - half {
+            *q * inv_n
+        } else {
+            0.0
+        };
     }
     fft.rfft();
     fft.spectrum
@@ -238,14 +293,25 @@ pub fn truncate_inverse_psd(psd: &[f64], max_len: usize, df: f64, f_low: f64) ->
         .enumerate()
         .map(|(k, c)| {
             let r2 = c.norm_sqr();
-            if k < k_low || r2 == 0.0 { f64::INFINITY } else { 1.0 / r2 }
+            if k < k_low || r2 == 0.0 {
+                f64::INFINITY
+            } else {
+                1.0 / r2
+            }
         })
         .collect()
 }
 
 /// Whiten one channel: `irfft(rfft(x) * sqrt(2 / (S fs)))`, zero at DC, below
 /// `f_low` and where `S` is `inf`. Gaussian noise of PSD `S` comes out with unit variance.
-pub fn whiten_into(x: &[f64], psd: &[f64], sample_rate: f64, f_low: f64, fft: &mut RealScratch<f64>, out: &mut [f64]) {
+pub fn whiten_into(
+    x: &[f64],
+    psd: &[f64],
+    sample_rate: f64,
+    f_low: f64,
+    fft: &mut RealScratch<f64>,
+    out: &mut [f64],
+) {
     let n = x.len();
     let df = sample_rate / n as f64;
     let k_low = bin_at_or_above(f_low, df).max(1);
@@ -254,7 +320,11 @@ pub fn whiten_into(x: &[f64], psd: &[f64], sample_rate: f64, f_low: f64, fft: &m
     let inv_n = 1.0 / n as f64;
     for (k, c) in fft.spectrum.iter_mut().enumerate() {
         let s = psd[k];
-        let g = if k >= k_low && s.is_finite() { (2.0 / (s * sample_rate)).sqrt() * inv_n } else { 0.0 };
+        let g = if k >= k_low && s.is_finite() {
+            (2.0 / (s * sample_rate)).sqrt() * inv_n
+        } else {
+            0.0
+        };
         *c *= g;
     }
     fft.irfft();
@@ -268,7 +338,14 @@ mod tests {
     #[test]
     fn median_bias_matches_published_values() {
         // Exact E[median] of N unit exponentials (order statistics): shared REFERENCES item 8.
-        let table = [(1, 1.0), (3, 0.833333), (5, 0.783333), (7, 0.759524), (9, 0.745635), (11, 0.736544)];
+        let table = [
+            (1, 1.0),
+            (3, 0.833333),
+            (5, 0.783333),
+            (7, 0.759524),
+            (9, 0.745635),
+            (11, 0.736544),
+        ];
         for (n, b) in table {
             assert!((median_bias(n) - b).abs() < 1e-6, "n={n}");
         }
@@ -284,13 +361,20 @@ mod tests {
         let x: Vec<f64> = (0..65536)
             .map(|_| {
                 // Sum of 12 uniforms minus 6: approximately unit Gaussian.
-                (0..12).map(|_| {
-                    state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-                    (state >> 11) as f64 / (1u64 << 53) as f64
-                }).sum::<f64>() - 6.0
+                (0..12)
+                    .map(|_| {
+                        state = state
+                            .wrapping_mul(6364136223846793005)
+                            .wrapping_add(1442695040888963407);
+                        (state >> 11) as f64 / (1u64 << 53) as f64
+                    })
+                    .sum::<f64>()
+                    - 6.0
             })
             .collect();
-        let window: Vec<f64> = (0..256).map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / 256.0).cos()).collect();
+        let window: Vec<f64> = (0..256)
+            .map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / 256.0).cos())
+            .collect();
         let psd = welch(&x, fs, 128, &window, false, Average::Mean).unwrap();
         let mid: f64 = psd[10..120].iter().sum::<f64>() / 110.0;
         assert!((mid / (2.0 / fs) - 1.0).abs() < 0.03, "{mid}");
@@ -312,7 +396,9 @@ mod tests {
     fn design_curve_minimum_matches_published_note() {
         // REFERENCES item 9 note: the early second-generation fit has min sqrt(S) = 1.8e-24 near 228 Hz.
         let c = DesignCurve::Gen2Early;
-        let (fmin, smin) = (100..400).map(|f| (f as f64, c.psd(f as f64))).fold((0.0, f64::MAX), |a, b| if b.1 < a.1 { b } else { a });
+        let (fmin, smin) = (100..400)
+            .map(|f| (f as f64, c.psd(f as f64)))
+            .fold((0.0, f64::MAX), |a, b| if b.1 < a.1 { b } else { a });
         assert!((smin.sqrt() / 1.8e-24 - 1.0).abs() < 0.03);
         assert!((fmin - 228.0).abs() < 5.0);
         assert!(c.psd(5.0).is_infinite());

@@ -18,7 +18,12 @@ struct Pools {
 
 fn pools() -> &'static Mutex<Pools> {
     static POOLS: OnceLock<Mutex<Pools>> = OnceLock::new();
-    POOLS.get_or_init(|| Mutex::new(Pools { current: default_threads(), by_size: HashMap::new() }))
+    POOLS.get_or_init(|| {
+        Mutex::new(Pools {
+            current: default_threads(),
+            by_size: HashMap::new(),
+        })
+    })
 }
 
 fn default_threads() -> usize {
@@ -26,13 +31,20 @@ fn default_threads() -> usize {
         .ok()
         .and_then(|s| s.trim().parse::<usize>().ok())
         .filter(|&n| n > 0)
-        .unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1))
+        .unwrap_or_else(|| {
+            std::thread::available_parallelism()
+                .map(|n| n.get())
+                .unwrap_or(1)
+        })
 }
 
 /// Set the number of worker threads used by every kernel from now on.
 pub fn set_threads(n: usize) -> Result<()> {
     if n == 0 || n > 4096 {
-        return Err(Error::invalid("n", format!("thread count must be in 1..=4096, got {n}")));
+        return Err(Error::invalid(
+            "n",
+            format!("thread count must be in 1..=4096, got {n}"),
+        ));
     }
     pools().lock().unwrap_or_else(|e| e.into_inner()).current = n;
     Ok(())

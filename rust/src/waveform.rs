@@ -49,10 +49,18 @@ pub struct Binary {
 
 impl Binary {
     pub fn new(m1: f64, m2: f64, chi1: f64, chi2: f64) -> Result<Self> {
-        ensure(m1.is_finite() && m1 > 0.0, "m1", || format!("masses must be positive and finite, got {m1}"))?;
-        ensure(m2.is_finite() && m2 > 0.0, "m2", || format!("masses must be positive and finite, got {m2}"))?;
-        ensure(chi1.abs() < 1.0, "chi1", || format!("spins must satisfy |chi| < 1, got {chi1}"))?;
-        ensure(chi2.abs() < 1.0, "chi2", || format!("spins must satisfy |chi| < 1, got {chi2}"))?;
+        ensure(m1.is_finite() && m1 > 0.0, "m1", || {
+            format!("masses must be positive and finite, got {m1}")
+        })?;
+        ensure(m2.is_finite() && m2 > 0.0, "m2", || {
+            format!("masses must be positive and finite, got {m2}")
+        })?;
+        ensure(chi1.abs() < 1.0, "chi1", || {
+            format!("spins must satisfy |chi| < 1, got {chi1}")
+        })?;
+        ensure(chi2.abs() < 1.0, "chi2", || {
+            format!("spins must satisfy |chi| < 1, got {chi2}")
+        })?;
         Ok(Binary { m1, m2, chi1, chi2 })
     }
     pub fn total(&self) -> f64 {
@@ -85,8 +93,12 @@ pub struct TaylorF2 {
 impl TaylorF2 {
     /// Coefficients for `binary` at `distance` Mpc, keeping PN terms `v^k`, `k <= phase_order`.
     pub fn new(b: &Binary, distance: f64, phase_order: usize) -> Result<Self> {
-        ensure(distance.is_finite() && distance > 0.0, "distance", || format!("must be positive, got {distance}"))?;
-        ensure(phase_order <= 7, "phase_order", || format!("must be 0..=7 (twice the PN order), got {phase_order}"))?;
+        ensure(distance.is_finite() && distance > 0.0, "distance", || {
+            format!("must be positive, got {distance}")
+        })?;
+        ensure(phase_order <= 7, "phase_order", || {
+            format!("must be 0..=7 (twice the PN order), got {phase_order}")
+        })?;
         let m = b.total();
         let eta = b.eta();
         let delta = (b.m1 - b.m2) / m;
@@ -107,13 +119,18 @@ impl TaylorF2 {
             + (75515.0 / 144.0 - 8225.0 * eta / 18.0) * delta * chia * chis
             + (75515.0 / 288.0 - 263245.0 * eta / 252.0 - 480.0 * e2) * chia * chia
             + (75515.0 / 288.0 - 232415.0 * eta / 504.0 + 1255.0 * e2 / 9.0) * chis * chis;
-        let psi7_spin = (-25150083775.0 / 3048192.0 + 10566655595.0 * eta / 762048.0 - 1042165.0 * e2 / 3024.0
+        let psi7_spin = (-25150083775.0 / 3048192.0 + 10566655595.0 * eta / 762048.0
+            - 1042165.0 * e2 / 3024.0
             + 5345.0 * e3 / 36.0)
             * chis
-            + (-25150083775.0 / 3048192.0 + 26804935.0 * eta / 6048.0 - 1985.0 * e2 / 48.0) * delta * chia;
+            + (-25150083775.0 / 3048192.0 + 26804935.0 * eta / 6048.0 - 1985.0 * e2 / 48.0)
+                * delta
+                * chia;
 
         let psi5 = PI * (38645.0 / 756.0 - 65.0 * eta / 9.0) - gamma;
-        let psi6_const = 11583231236531.0 / 4694215680.0 - 640.0 * pi2 / 3.0 - 6848.0 * EULER_GAMMA / 21.0
+        let psi6_const = 11583231236531.0 / 4694215680.0
+            - 640.0 * pi2 / 3.0
+            - 6848.0 * EULER_GAMMA / 21.0
             - (6848.0 / 21.0) * 4f64.ln()
             + eta * (-15737765635.0 / 3048192.0 + 2255.0 * pi2 / 12.0)
             + 76055.0 * e2 / 1728.0
@@ -127,7 +144,8 @@ impl TaylorF2 {
             15293365.0 / 508032.0 + 27145.0 * eta / 504.0 + 3085.0 * e2 / 72.0 + sigma_term,
             psi5,
             psi6_const,
-            PI * (77096675.0 / 254016.0 + 378515.0 * eta / 1512.0 - 74045.0 * e2 / 756.0) + psi7_spin,
+            PI * (77096675.0 / 254016.0 + 378515.0 * eta / 1512.0 - 74045.0 * e2 / 756.0)
+                + psi7_spin,
         ];
         let mut psi5_log = 3.0 * psi5;
         let mut psi6_log = -6848.0 / 21.0;
@@ -143,8 +161,18 @@ impl TaylorF2 {
             psi6_log = 0.0;
         }
         let mc_sec = b.chirp_mass() * T_SUN;
-        let amp0 = (5.0f64 / 24.0).sqrt() * PI.powf(-2.0 / 3.0) * (C_SI / (distance * MPC)) * mc_sec.powf(5.0 / 6.0);
-        Ok(TaylorF2 { m_sec: m * T_SUN, newtonian: 3.0 / (128.0 * eta), psi, psi5_log, psi6_log, amp0 })
+        let amp0 = (5.0f64 / 24.0).sqrt()
+            * PI.powf(-2.0 / 3.0)
+            * (C_SI / (distance * MPC))
+            * mc_sec.powf(5.0 / 6.0);
+        Ok(TaylorF2 {
+            m_sec: m * T_SUN,
+            newtonian: 3.0 / (128.0 * eta),
+            psi,
+            psi5_log,
+            psi6_log,
+            amp0,
+        })
     }
 
     /// Psi(f) in radians, evaluated directly (f64).
@@ -181,12 +209,22 @@ impl TaylorF2 {
         let d4 = 75.9 * self.newtonian_phase(f) / (f * f * f * f);
         let h = (1950.0 * PHASE_TOLERANCE / d4).powf(0.25);
         let bins = (h / df).floor();
-        if bins >= MAX_BLOCK as f64 { MAX_BLOCK } else { bins as usize }
+        if bins >= MAX_BLOCK as f64 {
+            MAX_BLOCK
+        } else {
+            bins as usize
+        }
     }
 
     /// Call `emit(k, h~_k)` for every bin `k_lo <= k < k_hi` of spacing `df` (`k_lo >= 1`).
     #[inline]
-    pub fn for_each_bin<F: FnMut(usize, Complex64)>(&self, k_lo: usize, k_hi: usize, df: f64, mut emit: F) {
+    pub fn for_each_bin<F: FnMut(usize, Complex64)>(
+        &self,
+        k_lo: usize,
+        k_hi: usize,
+        df: f64,
+        mut emit: F,
+    ) {
         let mut k = k_lo.max(1);
         while k < k_hi {
             let f0 = k as f64 * df;
@@ -261,7 +299,9 @@ pub fn time_to_coalescence(b: &Binary, f: f64, phase_order: usize) -> f64 {
         -32.0 * PI / 5.0,
         3058673.0 / 508032.0 + 5429.0 * eta / 504.0 + 617.0 * e2 / 72.0,
         -PI * (7729.0 / 252.0 - 13.0 * eta / 3.0),
-        -10052469856691.0 / 23471078400.0 + 128.0 * pi2 / 3.0 + 6848.0 * EULER_GAMMA / 105.0
+        -10052469856691.0 / 23471078400.0
+            + 128.0 * pi2 / 3.0
+            + 6848.0 * EULER_GAMMA / 105.0
             + (3424.0 / 105.0) * (16.0 * v * v).ln()
             + eta * (3147553127.0 / 3048192.0 - 451.0 * pi2 / 12.0)
             - 15211.0 * e2 / 1728.0
@@ -313,13 +353,20 @@ mod tests {
             let h = 1e-4 * f;
             let dpsi = (t.phase(f + h) - t.phase(f - h)) / (2.0 * h);
             let expected = -2.0 * PI * time_to_coalescence(&b, f, 7);
-            assert!((dpsi / expected - 1.0).abs() < 1e-6, "f={f}: {dpsi} vs {expected}");
+            assert!(
+                (dpsi / expected - 1.0).abs() < 1e-6,
+                "f={f}: {dpsi} vs {expected}"
+            );
         }
     }
 
     #[test]
     fn recurrence_matches_direct_evaluation() {
-        for (m1, m2, chi1, chi2, df) in [(1.4, 1.4, 0.0, 0.0, 1.0 / 256.0), (10.0, 1.3, 0.7, -0.4, 1.0 / 64.0), (30.0, 25.0, 0.9, 0.9, 0.25)] {
+        for (m1, m2, chi1, chi2, df) in [
+            (1.4, 1.4, 0.0, 0.0, 1.0 / 256.0),
+            (10.0, 1.3, 0.7, -0.4, 1.0 / 64.0),
+            (30.0, 25.0, 0.9, 0.9, 0.25),
+        ] {
             let b = Binary::new(m1, m2, chi1, chi2).unwrap();
             let t = TaylorF2::new(&b, 100.0, 7).unwrap();
             let k_lo = (20.0 / df) as usize;
@@ -337,7 +384,13 @@ mod tests {
     #[test]
     fn rejects_bad_parameters() {
         assert_eq!(Binary::new(-1.0, 1.0, 0.0, 0.0).unwrap_err().argument, "m1");
-        assert_eq!(Binary::new(1.0, 1.0, 0.0, 1.0).unwrap_err().argument, "chi2");
-        assert_eq!(TaylorF2::new(&bns(), 0.0, 7).unwrap_err().argument, "distance");
+        assert_eq!(
+            Binary::new(1.0, 1.0, 0.0, 1.0).unwrap_err().argument,
+            "chi2"
+        );
+        assert_eq!(
+            TaylorF2::new(&bns(), 0.0, 7).unwrap_err().argument,
+            "distance"
+        );
     }
 }

@@ -44,7 +44,7 @@ def sigma(templates, psd, df, f_low, f_high=None):
 
     Returns
     -------
-    sigma : ndarray, shape (K,)
+    sigma : ndarray, shape (K,), or float for 1-D ``templates``
         ``sqrt(4 df sum_band |h~|^2 / S)``, float64 (dimensionless). For a
         template at 1 Mpc, ``sigma / rho*`` is the optimal-orientation
         distance in Mpc at which the signal has SNR ``rho*`` (the horizon
@@ -56,11 +56,11 @@ def sigma(templates, psd, df, f_low, f_high=None):
     .. [2] Finn, L. S. and Chernoff, D. F. 1993, PRD 47, 2198,
        arXiv:gr-qc/9301003.
     """
-    h = np.atleast_2d(np.asarray(templates))
+    h0 = np.asarray(templates)
+    h = np.atleast_2d(h0).astype(np.complex128)
     inv = _inverse_psd(psd, _band(h.shape[-1], df, f_low, f_high))
-    h = h.astype(np.complex128)
-    power = (h.real**2 + h.imag**2) @ inv
-    return np.sqrt(4.0 * float(df) * power)
+    out = np.sqrt(4.0 * float(df) * ((h.real**2 + h.imag**2) @ inv))
+    return float(out[0]) if h0.ndim == 1 else out
 
 
 def snr_series(data_fd, templates, psd, df, f_low, f_high=None, dtype=np.complex64):
@@ -128,12 +128,13 @@ def correlate(data, templates, mode="valid"):
 
     Returns
     -------
-    c : ndarray, shape (K, n_out)
+    c : ndarray, shape (K, n_out), or (n_out,) for 1-D ``templates``
         Float32 if both inputs are float32, otherwise float64 (computed in
         float64 either way).
     """
     d = np.asarray(data)
-    t = np.atleast_2d(np.asarray(templates))
+    t0 = np.asarray(templates)
+    t = np.atleast_2d(t0)
     out_dtype = (np.float32 if d.dtype == np.float32 and t.dtype == np.float32
                  else np.float64)
     if d.ndim != 1 or t.ndim != 2:
@@ -156,4 +157,5 @@ def correlate(data, templates, mode="valid"):
         out = full[:, start:start + n]
     else:
         raise ValueError("mode must be 'valid', 'full' or 'same'")
-    return np.ascontiguousarray(out, dtype=out_dtype)
+    out = np.ascontiguousarray(out, dtype=out_dtype)
+    return out[0] if t0.ndim == 1 else out

@@ -1,0 +1,49 @@
+"""Clustering of triggers in time: keep the loudest within a window."""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["cluster_in_time"]
+
+
+def cluster_in_time(times, values, window, groups=None):
+    """Indices of triggers that have no louder trigger within ``window`` seconds.
+
+    Parameters
+    ----------
+    times : array_like of float
+        Trigger times (s).
+    values : array_like of float
+        Loudness used to rank (SNR or reweighted SNR).
+    window : float
+        Half-width of the clustering window (s).
+    groups : array_like of int, optional
+        Cluster only within equal group labels (e.g. per template).
+
+    Returns
+    -------
+    ndarray of int
+        Indices (into the inputs) of the survivors, in ascending time order per
+        group. Equal values are resolved in favour of the earlier trigger.
+    """
+    t = np.asarray(times, dtype=np.float64)
+    v = np.asarray(values, dtype=np.float64)
+    g = np.zeros(t.shape, dtype=np.int64) if groups is None else np.asarray(groups, dtype=np.int64)
+    order = np.lexsort((t, g))
+    ts, vs, gs = t[order], v[order], g[order]
+    keep = np.ones(ts.shape[0], dtype=bool)
+    # Sort key that separates groups by more than any window.
+    span = (ts.max() - ts.min() + 4 * window + 1.0) if ts.size else 1.0
+    key = gs * span + (ts - (ts.min() if ts.size else 0.0))
+    lo = np.searchsorted(key, key - window, side="left")
+    hi = np.searchsorted(key, key + window, side="right")
+    for i in range(ts.shape[0]):
+        if hi[i] - lo[i] <= 1:
+            continue
+        vv = vs[lo[i]:hi[i]]
+        idx = np.arange(lo[i], hi[i])
+        louder = (vv > vs[i]) | ((vv == vs[i]) & (idx < i))
+        if louder.any():
+            keep[i] = False
+    return order[keep]

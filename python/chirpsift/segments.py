@@ -1,0 +1,61 @@
+"""Overlap-save segmentation: which samples of each segment are analysable, so
+that every sample of the analysable span is filtered exactly once."""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+__all__ = ["SegmentPlan", "plan_segments"]
+
+
+class SegmentPlan(NamedTuple):
+    """One segment: data ``[start, start + length)``, analysable ``[valid_start, valid_stop)``
+    in samples relative to ``start``."""
+
+    start: int
+    length: int
+    valid_start: int
+    valid_stop: int
+
+
+def plan_segments(n_samples: int, length: int, pad_start: int, pad_end: int) -> list[SegmentPlan]:
+    """Cover ``[pad_start, n_samples - pad_end)`` with segments of ``length`` samples.
+
+    Parameters
+    ----------
+    n_samples : int
+        Length of the data.
+    length : int
+        Segment length in samples.
+    pad_start, pad_end : int
+        Samples at the start and end of every segment whose filter output is
+        corrupted by wrap-around (template duration plus half the whitening filter
+        at the start; half the whitening filter at the end).
+
+    Returns
+    -------
+    list of SegmentPlan
+        Segments advance by ``length - pad_start - pad_end``; the last one is
+        aligned with the end of the data and analyses only what the others left, so
+        the analysable parts tile the span without gaps or overlaps.
+    """
+    stride = length - pad_start - pad_end
+    if stride < 1:
+        raise ValueError(
+            f"segments of {length} samples leave nothing to analyse after discarding {pad_start} + {pad_end} corrupted samples"
+        )
+    if n_samples < length:
+        raise ValueError(f"data of {n_samples} samples is shorter than one segment of {length}")
+    plans = []
+    start = 0
+    covered = pad_start
+    end = n_samples - pad_end
+    while start + length <= n_samples and covered < end:
+        stop = min(start + pad_start + stride, end)
+        plans.append(SegmentPlan(start, length, covered - start, stop - start))
+        covered = stop
+        start += stride
+    if covered < end:
+        start = n_samples - length
+        plans.append(SegmentPlan(start, length, covered - start, end - start))
+    return plans
