@@ -300,6 +300,32 @@ def _describe_loudest(loud: dict | None) -> str:
     return ", ".join(parts)
 
 
+def _effective_settings(settings: dict) -> dict:
+    """The given search settings completed with ``chirpsift.search``'s own defaults."""
+    import inspect
+
+    import chirpsift
+
+    out = {}
+    search = getattr(chirpsift, "search", None)
+    if search is not None:
+        skip = {"strain", "sample_rate", "bank", "t0", "progress", "full_output"}
+        for name, param in inspect.signature(search).parameters.items():
+            if name in skip or param.default is inspect.Parameter.empty:
+                continue
+            if param.default is None or isinstance(param.default, (bool, int, float, str)):
+                out[name] = param.default
+    out.update({k: v for k, v in settings.items() if v is not None})
+    return out
+
+
+def _threads_used(requested: int | None):
+    import chirpsift
+
+    getter = getattr(chirpsift, "get_threads", None)
+    return getter() if getter is not None else requested
+
+
 def _pairs(values) -> list:
     return [[float(a), float(b)] for a, b in (values or [])]
 
@@ -346,7 +372,7 @@ def _summary(
             },
             "config": None if config_path is None else os.path.abspath(config_path),
         },
-        "settings": {**settings, "threads": threads},
+        "settings": {**_effective_settings(settings), "threads": _threads_used(threads)},
         "counts": {
             "triggers": int(len(triggers)),
             "templates": int(info.get("templates", len(bank))),
@@ -422,7 +448,7 @@ def _cmd_search(args, argv) -> int:
     write_json_atomic(summary_path, doc)
 
     counts = doc["counts"]
-    threshold = settings.get("snr_threshold")
+    threshold = doc["settings"].get("snr_threshold")
     above = f" above SNR {threshold:g}" if threshold is not None else ""
     print(
         f"Searched {strain.duration:g} s of strain from {strain.source} ({strain.sample_rate:g} Hz, "

@@ -31,10 +31,10 @@ TRIGGER_DTYPE = np.dtype(
         ("chisq", "f4"),  # Allen's chi-squared
         ("chisq_dof", "i4"),  # 2 p - 2
         ("reweighted_snr", "f4"),  # Babak et al. 2013
-        ("m1", "f4"),
-        ("m2", "f4"),
-        ("chi1", "f4"),
-        ("chi2", "f4"),
+        ("m1", "f8"),
+        ("m2", "f8"),
+        ("chi1", "f8"),
+        ("chi2", "f8"),
     ]
 )
 

@@ -1,0 +1,175 @@
+"""The fused segment kernel: agreement with its numpy twin and the statistics of
+matched filtering and Allen's chi-squared in Gaussian noise."""
+
+import numpy as np
+import pytest
+
+import chirpsift as cs
+from chirpsift.reference import segment as ref_segment
+
+FS = 1024.0
+T = 128.0
+N = int(FS * T)
+DF = 1.0 / T
+NF = N // 2 + 1
+FREQS = np.arange(NF) * DF
+PSD = cs.design_psd(FREQS)  # second-generation design fit, realistic 1e-47/Hz scale
+F_LOW = 30.0
+
+
+def gaussian_noise_fd(rng):
+    """Stationary Gaussian noise in the frequency domain: E|n~|^2 = T S / 2
+    (one-sided PSD convention, Allen et al. 2012)."""
+    s = np.where(np.isfinite(PSD), PSD, 0.0)
+    return (rng.normal(size=NF) + 1j * rng.normal(size=NF)) * np.sqrt(T * s / 4)
+
+
+def injection(m1, m2, snr, t_c, phase=0.0, chi1=0.0, chi2=0.0):
+    h = cs.taylorf2(m1, m2, chi1, chi2, f_low=F_LOW, df=DF, n_freq=NF, dtype=np.complex128)[0]
+    sig = cs.sigma(h, PSD, DF, F_LOW)
+    return h * np.exp(-2j * np.pi * FREQS * t_c) * np.exp(1j * phase) * (snr / sig)
+
+
+def test_fused_kernel_equals_numpy_twin():
+    # The twin builds full SNR series with numpy's FFT and the direct TaylorF2 formula.
+    rng = np.random.default_rng(11)
+    data = gaussian_noise_fd(rng) + injection(9.0, 7.0, 14.0, 70.3, 0.4)
+    m1 = np.array([9.0, 8.5, 10.0, 6.0])
+    m2 = np.array([7.0, 7.0, 7.5, 6.0])
+    kw = dict(f_low=F_LOW, snr_threshold=4.5, cluster_samples=256, chisq_bins=8, valid=(int(20 * FS), int(120 * FS)))
+    a = cs.filter_segment(data, PSD, DF, m1, m2, **kw)
+    b = ref_segment.filter_segment(data, PSD, DF, m1, m2, **kw)
+    assert len(a["snr"]) > 4  # loud injection plus noise peaks in every template
+    np.testing.assert_array_equal(a["template"], b["template"])
+    np.testing.assert_array_equal(a["index"], b["index"])
+    # float32 transform in the kernel vs float64 numpy: agreement to ~1e-5 relative.
+    np.testing.assert_allclose(a["position"], b["position"], atol=1e-3)
+    np.testing.assert_allclose(a["snr"], b["snr"], rtol=1e-4)
+    np.testing.assert_allclose(a["sigma"], b["sigma"], rtol=1e-6)
+    np.testing.assert_allclose(a["chisq"], b["chisq"], rtol=1e-3, atol=1e-3)
+    np.testing.assert_allclose(np.angle(np.exp(1j * (a["phase"] - b["phase"]))), 0.0, atol=1e-3)
+
+
+def test_results_do_not_depend_on_thread_count():
+    rng = np.random.default_rng(3)
+    data = gaussian_noise_fd(rng)
+    m1 = np.linspace(5, 12, 9)
+    kw = dict(f_low=F_LOW, snr_threshold=4.0, cluster_samples=100, valid=(int(10 * FS), int(120 * FS)))
+    before = cs.get_threads()
+    try:
+        cs.set_threads(1)
+        one = cs.filter_segment(data, PSD, DF, m1, 5.0, **kw)
+        cs.set_threads(2)
+        two = cs.filter_segment(data, PSD, DF, m1, 5.0, **kw)
+    finally:
+        cs.set_threads(before)
+    for key in one:
+        np.testing.assert_array_equal(one[key], two[key])
+
+
+def test_noise_peak_rate_follows_rice_formula():
+    # Rice (1945) / Cramer & Leadbetter (1967) (from memory): the envelope R = |z| of a
+    # stationary complex Gaussian process with unit-variance quadratures crosses level
+    # u upwards at rate u sqrt(Delta / (2 pi)) exp(-u^2 / 2), Delta the variance of the
+    # angular frequency under the normalised spectrum |h~|^2 / S. At u = 4 each
+    # excursion holds one peak, so peaks above threshold count the up-crossings.
+    m1, m2, u = 10.0, 8.0, 4.0
+    h = cs.taylorf2(m1, m2, f_low=F_LOW, df=DF, n_freq=NF, dtype=np.complex128)[0]
+    w = np.abs(h) ** 2 * np.where(np.isfinite(PSD), 1 / PSD, 0.0)
+    w /= w.sum()
+    omega = 2 * np.pi * FREQS
+    delta = (w * omega**2).sum() - (w * omega).sum() ** 2
+    valid = (int(10 * FS), int(120 * FS))
+    rng = np.random.default_rng(2024)
+    trials = 8
+    count = 0
+    for _ in range(trials):
+        out = cs.filter_segment(gaussian_noise_fd(rng), PSD, DF, m1, m2, f_low=F_LOW, snr_threshold=u, valid=valid)
+        count += len(out["snr"])
+    expected = trials * (valid[1] - valid[0]) / FS * u * np.sqrt(delta / (2 * np.pi)) * np.exp(-u * u / 2)
+    # Poisson counting error; 4 sigma.
+    assert abs(count - expected) < 4 * np.sqrt(expected), (count, expected)
+
+
+def test_chisq_in_noise_has_allen_mean():
+    # Allen 2005 (PRD 71, 062001): in Gaussian noise chi^2 has 2p - 2 degrees of
+    # freedom, mean 2p - 2. At peaks of |z| the condition d|z|/dt = 0 is one linear
+    # constraint on the band sums, which can remove up to one degree of freedom
+    # (our derivation), so the mean lies in [2p - 3, 2p - 2]; statistical error
+    # sqrt(2 (2p - 2) / n) per peak sample, 4 sigma allowed.
+    p = 16
+    rng = np.random.default_rng(7)
+    chis = []
+    for _ in range(3):
+        out = cs.filter_segment(gaussian_noise_fd(rng), PSD, DF, 10.0, 8.0, f_low=F_LOW, snr_threshold=2.0,
+                                chisq_bins=p, valid=(int(10 * FS), int(120 * FS)))
+        chis.append(out["chisq"])
+        assert np.all(out["chisq_dof"] == 2 * p - 2)
+    chis = np.concatenate(chis)
+    err = 4 * np.sqrt(2 * (2 * p - 2) / chis.size)
+    assert 2 * p - 3 - err < chis.mean() < 2 * p - 2 + err, (chis.mean(), chis.size)
+
+
+@pytest.mark.parametrize("snr", [10.0, 40.0])
+def test_exactly_matching_signal_leaves_chisq_at_noise_level(snr):
+    # Allen 2005: a signal matching the template contributes z/p to every band, which
+    # cancels in z_l - z/p, so chi^2 keeps its noise distribution at any amplitude.
+    # With 2p - 2 = 14 dof (p = 8), P(chi^2 > 40) = scipy.stats.chi2.sf(40, 14) = 2.6e-4,
+    # so a single trial exceeding 40 signals a failure.
+    rng = np.random.default_rng(int(snr))
+    data = gaussian_noise_fd(rng) + injection(9.0, 7.0, snr, 64.0 + 0.37 / FS)
+    out = cs.filter_segment(data, PSD, DF, 9.0, 7.0, f_low=F_LOW, snr_threshold=snr / 2, chisq_bins=8,
+                            cluster_samples=int(FS), valid=(int(10 * FS), int(120 * FS)))
+    loud = int(np.argmax(out["snr"]))
+    assert abs(out["snr"][loud] - snr) < 4.0  # SNR of a matching template: optimal SNR +- noise
+    assert abs(out["position"][loud] / FS - (64.0 + 0.37 / FS)) < 1.0 / FS
+    assert out["chisq"][loud] < 40.0
+
+
+def sine_gaussian_fd(f0, q, t0, snr):
+    """A sine-Gaussian burst (invented glitch) of SNR ``snr`` in the data's noise."""
+    tau = q / (np.sqrt(2) * np.pi * f0)
+    g = np.exp(-((FREQS - f0) ** 2) * (np.pi * tau) ** 2) * np.exp(-2j * np.pi * FREQS * t0)
+    norm = np.sqrt(4 * DF * np.sum(np.abs(g) ** 2 * np.where(np.isfinite(PSD), 1 / PSD, 0)))
+    return g * snr / norm
+
+
+def test_glitch_is_down_weighted_but_signal_is_not():
+    # Allen 2005: power concentrated in one band gives a large chi^2; Babak et al. 2013
+    # reweighted SNR then falls well below the SNR. A matching chirp keeps its SNR.
+    rng = np.random.default_rng(99)
+    data = gaussian_noise_fd(rng) + sine_gaussian_fd(120.0, 9.0, 40.0, 300.0) + injection(9.0, 7.0, 12.0, 90.0)
+    out = cs.filter_segment(data, PSD, DF, 9.0, 7.0, f_low=F_LOW, snr_threshold=6.0, chisq_bins=16,
+                            cluster_samples=int(2 * FS), valid=(int(10 * FS), int(120 * FS)))
+    t = out["position"] / FS
+    rw = cs.reweighted_snr(out["snr"], out["chisq"], out["chisq_dof"])
+    glitch = np.argmin(np.abs(t - 40.0))
+    chirp = np.argmin(np.abs(t - 90.0))
+    assert abs(t[glitch] - 40.0) < 0.5 and abs(t[chirp] - 90.0) < 1.0 / FS
+    assert out["chisq"][glitch] / out["chisq_dof"][glitch] > 10
+    assert rw[glitch] < 0.5 * out["snr"][glitch]
+    assert rw[chirp] > 0.9 * out["snr"][chirp]
+
+
+def test_reweighted_snr_matches_published_check_values():
+    # Babak et al. 2013 (arXiv:1208.3491) formula; check values from shared REFERENCES item 7
+    # (computed from the formula, which is from memory).
+    rho = np.array([10, 10, 10, 8, 12.0])
+    chisq = np.array([30, 60, 150, 100, 20.0])
+    p = np.array([16, 16, 16, 16, 4])
+    expected = [10, 7.782717, 5.013141, 4.896591, 7.344887]
+    np.testing.assert_allclose(cs.reweighted_snr(rho, chisq, 2 * p - 2), expected, rtol=1e-6)
+
+
+def test_filter_segment_rejects_bad_input():
+    d = np.zeros(NF, complex)
+    with pytest.raises(ValueError, match="f_low"):
+        cs.filter_segment(d, PSD, DF, 9.0, 7.0, f_low=600.0)
+    with pytest.raises(ValueError, match="m2"):
+        cs.filter_segment(d, PSD, DF, 9.0, -7.0, f_low=30.0)
+    with pytest.raises(ValueError, match="valid"):
+        cs.filter_segment(d, PSD, DF, 9.0, 7.0, f_low=30.0, valid=(0, N))
+    with pytest.raises(ValueError, match="psd"):
+        cs.filter_segment(d, PSD[:-1], DF, 9.0, 7.0, f_low=30.0)
+    with pytest.raises(ValueError, match="data_fd"):
+        cs.filter_segment(d * np.nan, PSD, DF, 9.0, 7.0, f_low=30.0)

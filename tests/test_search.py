@@ -1,0 +1,137 @@
+"""The single-site search pipeline: segmentation, recovery of injections, gating,
+bad input."""
+
+import warnings
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+
+import chirpsift as cs
+from chirpsift import synthetic
+
+FS = 1024.0
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    n=st.integers(1000, 200000),
+    length=st.integers(64, 50000),
+    pad_start=st.integers(0, 20000),
+    pad_end=st.integers(0, 5000),
+)
+def test_segments_tile_the_analysable_span_exactly_once(n, length, pad_start, pad_end):
+    # Overlap-save (common practice): analysable parts of consecutive segments abut.
+    if length - pad_start - pad_end < 1 or n < length:
+        with pytest.raises(ValueError):
+            cs.plan_segments(n, length, pad_start, pad_end)
+        return
+    plans = cs.plan_segments(n, length, pad_start, pad_end)
+    hits = np.zeros(n, dtype=int)
+    for p in plans:
+        assert 0 <= p.start and p.start + p.length <= n
+        assert pad_start <= p.valid_start < p.valid_stop <= length - pad_end
+        hits[p.start + p.valid_start:p.start + p.valid_stop] += 1
+    assert np.all(hits[pad_start:n - pad_end] == 1)
+    assert np.all(hits[:pad_start] == 0) and np.all(hits[n - pad_end:] == 0)
+
+
+def _data(seed, duration=256.0, inject=None):
+    n = int(duration * FS)
+    x = synthetic.colored_gaussian_noise(n, FS, "gen2-zero-detuned", seed=seed, f_low=20.0)
+    if inject:
+        x = synthetic.inject_taylorf2(x, FS, f_low=25.0, **inject)
+    return x
+
+
+def test_injection_recovered_at_right_time_template_and_snr():
+    # Matched filter property (Allen et al. 2012): the matching template recovers the
+    # optimal SNR within the unit-variance noise, at the coalescence time.
+    m1, m2 = 9.0, 7.0
+    bank = cs.Bank.from_any({"m1": [6.0, 9.0, 12.0], "m2": [5.0, 7.0, 9.0]})
+    t0 = 1_000_000.0
+    n = int(256 * FS)
+    f = np.arange(n // 2 + 1) * FS / n
+    psd = cs.design_psd(f)
+    h = cs.taylorf2(m1, m2, f_low=30.0, df=FS / n, n_freq=f.size, dtype=np.complex128)[0]
+    distance = cs.sigma(h, psd, FS / n, 30.0) / 10.0  # optimal SNR 10
+    t_c = t0 + 150.123
+    x = _data(1, inject=dict(m1=m1, m2=m2, t_coalescence=t_c, distance=float(distance), phase=0.3, t0=t0))
+    trig, info = cs.search(x, FS, bank, t0=t0, f_low=30.0, segment_duration=64.0, full_output=True)
+    best = trig[np.argmax(trig["snr"])]
+    assert best["template_id"] == 1
+    assert abs(best["time"] - t_c) < 1.0 / FS
+    assert abs(best["snr"] - 10.0) < 3.5  # |z| fluctuates by ~1 around the optimal SNR
+    assert info["segments"] >= 4
+    start, stop = info["analysed"][0]
+    assert t0 < start < t_c < stop <= t0 + 256.0
+    assert np.all(np.diff(trig["time"]) >= 0)
+
+
+def test_search_matches_fused_kernel_on_one_segment():
+    # With one segment the pipeline is the fused kernel plus clustering across segments.
+    x = _data(4, duration=64.0)
+    bank = cs.Bank.from_any({"m1": [8.0, 10.0], "m2": [6.0, 8.0]})
+    trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=4.0, cluster_window=0.5)
+    psd = cs.truncate_inverse_psd(cs.psd_to_grid(*cs.welch(x, FS, 4.0), 1 / 64.0, x.size // 2 + 1), FS, 4.0, 30.0)
+    pad_start = int(np.ceil((cs.chirp_duration(8.0, 6.0, 30.0) * 1.1 + 2.0) * FS)) + 1
+    pad_end = int(np.ceil(2.0 * FS)) + 1
+    direct = cs.filter_segment(np.fft.rfft(x) / FS, psd, 1 / 64.0, bank.m1, bank.m2, f_low=30.0, snr_threshold=4.0,
+                               cluster_samples=512, valid=(pad_start, x.size - pad_end))
+    assert len(trig) == len(direct["snr"]) > 0
+    order = np.lexsort((direct["position"], direct["template"]))
+    np.testing.assert_allclose(np.sort(trig["snr"]), np.sort(direct["snr"][order]).astype(np.float32))
+
+
+def test_gating_removes_loud_glitch_and_reports_it():
+    x = _data(5, duration=128.0)
+    n = x.size
+    t = np.arange(n) / FS
+    glitch = 5e-20 * np.exp(-(((t - 70.0) / 0.01) ** 2)) * np.sin(2 * np.pi * 150 * t)
+    bank = cs.Bank.from_any({"m1": [8.0], "m2": [6.0]})
+    with pytest.warns(cs.GatingWarning):
+        trig, info = cs.search(x + glitch, FS, bank, f_low=30.0, segment_duration=64.0, gate_threshold=8.0,
+                               full_output=True)
+    assert len(info["gates"]) == 1
+    a, b = info["gates"][0]
+    # The whitened glitch rings for at most the truncated whitening filter (4 s) plus
+    # the zeroed half-widths either side.
+    assert a < 70.0 < b and b - a < 4.0 + 2 * 0.25
+    ungated = cs.search(x + glitch, FS, bank, f_low=30.0, segment_duration=64.0)
+    assert ungated["snr"].max() > 20  # the glitch rings the template loudly without gating
+    assert trig["snr"].max(initial=0.0) < 8
+
+
+def test_bank_clustering_keeps_one_trigger_per_window():
+    x = _data(6, duration=64.0)
+    bank = cs.Bank.from_any({"m1": np.linspace(6, 12, 6), "m2": np.full(6, 6.0)})
+    per_template = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=4.0)
+    across = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=4.0, bank_cluster=True)
+    assert 0 < len(across) < len(per_template)
+    t = across["time"]
+    close = np.abs(t[:, None] - t[None, :]) <= 1.0
+    np.fill_diagonal(close, False)
+    assert not close.any()
+
+
+@pytest.mark.parametrize(
+    "kwargs, match",
+    [
+        (dict(f_low=600.0), "f_low"),
+        (dict(f_low=30.0, segment_duration=512.0), "shorter than segment_duration"),
+        (dict(f_low=30.0, segment_duration=4.0), "too short"),
+        (dict(f_low=30.0, snr_threshold=-1.0), "snr_threshold"),
+        (dict(f_low=30.0, chisq_bins=1), "chisq_bins"),
+    ],
+)
+def test_search_rejects_bad_settings(kwargs, match):
+    x = _data(7, duration=64.0)
+    with pytest.raises(ValueError, match=match):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, **{"segment_duration": 64.0, **kwargs})
+
+
+def test_search_names_nan_runs():
+    x = _data(8, duration=64.0)
+    x[5000:5100] = np.nan
+    with pytest.raises(ValueError, match="non-finite samples in 1 run"):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, segment_duration=64.0)
