@@ -458,6 +458,26 @@ fn search_segment<'py>(
     Ok(out)
 }
 
+/// Seconds per unnormalised complex64 inverse FFT of length `n`, planned once, in
+/// place with reused scratch, on the calling thread only: the benchmarks' yardstick.
+#[pyfunction]
+fn bench_inverse_fft(py: Python<'_>, n: usize, repeats: usize) -> PyResult<f64> {
+    if n == 0 || repeats == 0 {
+        return Err(PyValueError::new_err(format!("n and repeats must be positive, got {n} and {repeats}")));
+    }
+    Ok(py.detach(|| {
+        let plan = crate::fft::inverse::<f32>(n);
+        let mut buf = vec![Complex32::new(1.0, 0.5); n];
+        let mut scratch = vec![Complex32::new(0.0, 0.0); plan.get_inplace_scratch_len()];
+        plan.process_with_scratch(&mut buf, &mut scratch);
+        let start = std::time::Instant::now();
+        for _ in 0..repeats {
+            plan.process_with_scratch(&mut buf, &mut scratch);
+        }
+        start.elapsed().as_secs_f64() / repeats as f64
+    }))
+}
+
 #[pymodule]
 fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(set_threads, m)?)?;
@@ -474,6 +494,7 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(snr_series, m)?)?;
     m.add_function(wrap_pyfunction!(correlate, m)?)?;
     m.add_function(wrap_pyfunction!(search_segment, m)?)?;
+    m.add_function(wrap_pyfunction!(bench_inverse_fft, m)?)?;
     m.add("T_SUN", waveform::T_SUN)?;
     m.add("MPC", waveform::MPC)?;
     m.add("C_SI", waveform::C_SI)?;
