@@ -463,7 +463,9 @@ fn search_segment<'py>(
 #[pyfunction]
 fn bench_inverse_fft(py: Python<'_>, n: usize, repeats: usize) -> PyResult<f64> {
     if n == 0 || repeats == 0 {
-        return Err(PyValueError::new_err(format!("n and repeats must be positive, got {n} and {repeats}")));
+        return Err(PyValueError::new_err(format!(
+            "n and repeats must be positive, got {n} and {repeats}"
+        )));
     }
     Ok(py.detach(|| {
         let plan = crate::fft::inverse::<f32>(n);

@@ -28,6 +28,9 @@ pub struct Segment {
     w_scale: f64,
     df: f64,
     n: usize,
+    /// Prefix sums of `f^(-7/3) w_k f^m`, m = 0, 1, 2: spectral moments of any
+    /// template's weight `|h~|^2 / S` over any band, for choosing its decimation.
+    moments: [Vec<f64>; 3],
 }
 
 impl Segment {
@@ -61,7 +64,23 @@ impl Segment {
             .iter()
             .map(|c| Complex32::new((c.re / q_scale) as f32, (c.im / q_scale) as f32))
             .collect();
-        let w = inv.iter().map(|&i| (i / w_max) as f32).collect();
+        let w: Vec<f32> = inv.iter().map(|&i| (i / w_max) as f32).collect();
+        let mut moments = [
+            vec![0.0; n_freq + 1],
+            vec![0.0; n_freq + 1],
+            vec![0.0; n_freq + 1],
+        ];
+        for k in 0..n_freq {
+            let f = k as f64 * df;
+            let base = if k == 0 {
+                0.0
+            } else {
+                w[k] as f64 * f.powf(-7.0 / 3.0)
+            };
+            for (m, prefix) in moments.iter_mut().enumerate() {
+                prefix[k + 1] = prefix[k] + base * f.powi(m as i32);
+            }
+        }
         Ok(Segment {
             q,
             w,
@@ -69,13 +88,51 @@ impl Segment {
             w_scale: w_max,
             df,
             n: 2 * (n_freq - 1),
+            moments,
         })
     }
 
     pub fn n_freq(&self) -> usize {
         self.q.len()
     }
+
+    /// Variance (Hz^2) of frequency under a template's weight over `[k_lo, k_hi)`.
+    fn frequency_variance(&self, k_lo: usize, k_hi: usize) -> f64 {
+        let m: Vec<f64> = self.moments.iter().map(|p| p[k_hi] - p[k_lo]).collect();
+        if m[0] > 0.0 {
+            (m[2] / m[0] - (m[1] / m[0]).powi(2)).max(0.0)
+        } else {
+            0.0
+        }
+    }
+
+    /// Largest power-of-two decimation `D` (dividing N) whose worst-case loss
+    /// `(pi sigma_f D / fs)^2 / 2` stays below `MAX_DECIMATION_LOSS`, and that loss.
+    fn decimation(&self, k_lo: usize, k_hi: usize) -> (usize, f64) {
+        let fs = self.n as f64 * self.df;
+        let sigma_f = self.frequency_variance(k_lo, k_hi).sqrt();
+        let loss = |d: usize| 0.5 * (PI * sigma_f * d as f64 / fs).powi(2);
+        let mut d = 1usize;
+        while d < MAX_DECIMATION
+            && self.n % (2 * d) == 0
+            && self.n / (2 * d) >= 64
+            && loss(2 * d) <= MAX_DECIMATION_LOSS
+        {
+            d *= 2;
+        }
+        (d, loss(d))
+    }
 }
+
+/// Largest decimation of the coarse SNR series.
+pub const MAX_DECIMATION: usize = 64;
+/// Largest fractional SNR loss between coarse samples that decimation may cause.
+///
+/// For a template whose weight `|h~|^2 / S` has frequency variance `sigma_f^2`, the
+/// normalised SNR of a matching signal a time `dt` off its peak is at least
+/// `1 - (2 pi sigma_f dt)^2 / 2` (since `cos x >= 1 - x^2 / 2`), and a coarse sample
+/// is at most `D / 2` samples off. The coarse threshold is lowered by twice that.
+pub const MAX_DECIMATION_LOSS: f64 = 0.02;
 
 /// Settings of one search pass over a segment.
 #[derive(Clone, Debug)]
@@ -141,7 +198,18 @@ pub fn search_segment(
     ensure(s.chisq_bins >= 1, "chisq_bins", || {
         "must be at least 1".into()
     })?;
-    let plan = fft::inverse::<f32>(n);
+    // One plan per decimation D = 2^i (transform length N / D), planned once here.
+    let mut plans = Vec::new();
+    let mut d = 1usize;
+    while d <= MAX_DECIMATION && n % d == 0 {
+        plans.push(fft::inverse::<f32>(n / d));
+        d *= 2;
+    }
+    let scratch_len = plans
+        .iter()
+        .map(|p| p.get_inplace_scratch_len())
+        .max()
+        .unwrap_or(0);
     let zero = Complex32::new(0.0, 0.0);
     let per_template: Vec<Vec<Trigger>> = templates
         .par_iter()
@@ -149,9 +217,9 @@ pub fn search_segment(
         .map_init(
             || Scratch {
                 buf: vec![zero; n],
-                fft_scratch: vec![zero; plan.get_inplace_scratch_len()],
+                fft_scratch: vec![zero; scratch_len],
             },
-            |scratch, (i, t)| filter_one(segment, t, i, s, &*plan, scratch),
+            |scratch, (i, t)| filter_one(segment, t, i, s, &plans, scratch),
         )
         .collect();
     Ok(per_template.into_iter().flatten().collect())
@@ -162,7 +230,7 @@ fn filter_one(
     t: &Template,
     index: usize,
     s: &Settings,
-    plan: &dyn rustfft::Fft<f32>,
+    plans: &[std::sync::Arc<dyn rustfft::Fft<f32>>],
     scratch: &mut Scratch,
 ) -> Vec<Trigger> {
     let n_freq = seg.n_freq();
@@ -174,20 +242,38 @@ fn filter_one(
     // O(1) template scale: the amplitude at the lowest bin is the largest.
     let h_ref = t.model.amplitude(k_lo as f64 * seg.df);
     let inv_h = 1.0 / h_ref;
-    let buf = &mut scratch.buf;
+    // The product is stored shifted down by k_lo: |z| is unchanged, and with a
+    // transform of length M = N / D the coarse series is exactly z at every D-th
+    // sample (bins m >= M fold onto m mod M, which is exact at those samples).
+    let (dec, loss) = seg.decimation(k_lo, k_hi);
+    let m_len = seg.n / dec;
+    let width = k_hi - k_lo;
+    let buf = &mut scratch.buf[..m_len];
     let zero = Complex32::new(0.0, 0.0);
-    buf[..k_lo].fill(zero);
-    buf[k_hi..].fill(zero);
-    let mut norm = 0.0f64;
+    let folded = width > m_len;
+    if folded {
+        buf.fill(zero);
+    } else {
+        buf[width..].fill(zero);
+    }
+    // Four partial sums (fixed assignment by bin) so the additions do not serialise.
+    let mut partial = [0.0f64; 4];
     t.model.for_each_bin(k_lo, k_hi, seg.df, |k, h| {
         let h = h * inv_h;
-        norm += h.norm_sqr() * seg.w[k] as f64;
+        partial[k & 3] += h.norm_sqr() * seg.w[k] as f64;
         let q = seg.q[k];
         // q * conj(h), in f64 then stored f32.
         let re = q.re as f64 * h.re + q.im as f64 * h.im;
         let im = q.im as f64 * h.re - q.re as f64 * h.im;
-        buf[k] = Complex32::new(re as f32, im as f32);
+        let m = k - k_lo;
+        if folded {
+            let slot = &mut buf[m % m_len];
+            *slot += Complex32::new(re as f32, im as f32);
+        } else {
+            buf[m] = Complex32::new(re as f32, im as f32);
+        }
     });
+    let norm = (partial[0] + partial[1]) + (partial[2] + partial[3]);
     if !(norm > 0.0) {
         return Vec::new();
     }
@@ -195,23 +281,85 @@ fn filter_one(
     let sigma_unit = (4.0 * seg.df * norm * seg.w_scale).sqrt();
     let sigma = sigma_unit * h_ref;
     let to_snr = seg.q_scale / sigma_unit;
-    plan.process_with_scratch(buf, &mut scratch.fft_scratch);
+    plans[dec.trailing_zeros() as usize].process_with_scratch(buf, &mut scratch.fft_scratch);
 
     let threshold = s.snr_threshold / to_snr;
-    let peaks = find_peaks(
-        buf,
-        s.valid_start,
-        s.valid_stop,
-        (threshold * threshold) as f32,
-    );
-    let kept = cluster_peaks(&peaks, s.cluster);
+    let (kept, positions) = if dec == 1 {
+        let peaks = find_peaks(
+            buf,
+            s.valid_start,
+            s.valid_stop,
+            (threshold * threshold) as f32,
+        );
+        let kept = cluster_peaks(&peaks, s.cluster);
+        let positions: Vec<f64> = kept
+            .iter()
+            .map(|&(j, _)| j as f64 + parabolic_offset(buf, j))
+            .collect();
+        (kept, positions)
+    } else {
+        // Coarse candidates (threshold lowered by the decimation loss bound), then
+        // exact |z| at the five full-rate samples around each.
+        let coarse_thr = threshold * (1.0 - 2.0 * loss);
+        let lo = (s.valid_start / dec).saturating_sub(1).max(1);
+        let hi = (s.valid_stop.div_ceil(dec) + 1).min(m_len - 1);
+        let coarse = find_peaks(buf, lo, hi, (coarse_thr * coarse_thr) as f32);
+        let coarse = cluster_peaks(&coarse, s.cluster / dec);
+        if coarse.is_empty() {
+            return Vec::new();
+        }
+        let centres: Vec<i64> = coarse
+            .iter()
+            .map(|&(j, _)| ((j as f64 + parabolic_offset(buf, j)) * dec as f64).round() as i64)
+            .collect();
+        let probe: Vec<f64> = centres
+            .iter()
+            .flat_map(|&c| (-2..=2).map(move |o| (c + o) as f64))
+            .collect();
+        let exact = evaluate_bands(seg, t, k_lo, k_hi, inv_h, norm, &probe, 1);
+        let mut refined = Vec::new();
+        for (c, vals) in centres.iter().zip(exact.chunks(5)) {
+            let mag: Vec<f64> = vals.iter().map(|b| b[0].norm() * to_snr).collect();
+            let best = (1..4)
+                .max_by(|&a, &b| mag[a].total_cmp(&mag[b]).then(b.cmp(&a)))
+                .unwrap_or(2);
+            let j = c + best as i64 - 2;
+            let is_peak = mag[best] > mag[best - 1] && mag[best] >= mag[best + 1];
+            if !is_peak
+                || mag[best] < s.snr_threshold
+                || j < s.valid_start as i64
+                || j >= s.valid_stop as i64
+            {
+                continue;
+            }
+            let (a, b, cc) = (mag[best - 1], mag[best], mag[best + 1]);
+            let den = a - 2.0 * b + cc;
+            let delta = if den < 0.0 {
+                (0.5 * (a - cc) / den).clamp(-0.5, 0.5)
+            } else {
+                0.0
+            };
+            refined.push(((j as usize, (b / to_snr).powi(2) as f32), j as f64 + delta));
+        }
+        refined.sort_by_key(|r| r.0 .0);
+        refined.dedup_by_key(|r| r.0 .0);
+        let peaks: Vec<(usize, f32)> = refined.iter().map(|r| r.0).collect();
+        let kept = cluster_peaks(&peaks, s.cluster);
+        let positions = kept
+            .iter()
+            .map(|k| {
+                refined
+                    .iter()
+                    .find(|r| r.0 .0 == k.0)
+                    .map(|r| r.1)
+                    .unwrap_or(k.0 as f64)
+            })
+            .collect();
+        (kept, positions)
+    };
     if kept.is_empty() {
         return Vec::new();
     }
-    let positions: Vec<f64> = kept
-        .iter()
-        .map(|&(j, _)| j as f64 + parabolic_offset(buf, j))
-        .collect();
     let evals = evaluate_bands(seg, t, k_lo, k_hi, inv_h, norm, &positions, s.chisq_bins);
     kept.iter()
         .zip(positions)

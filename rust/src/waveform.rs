@@ -30,8 +30,11 @@ const EULER_GAMMA: f64 = 0.577_215_664_901_532_9;
 
 /// Largest phase error of the block interpolation, radians.
 pub const PHASE_TOLERANCE: f64 = 1e-7;
-const MAX_BLOCK: usize = 128;
-const MIN_BLOCK: usize = 8;
+const MAX_BLOCK: usize = 1024;
+const MIN_BLOCK: usize = 16;
+/// Independent recurrence chains per block, so consecutive complex multiplies do not
+/// wait on each other.
+const LANES: usize = 4;
 
 /// Schwarzschild innermost-stable-circular-orbit GW frequency of total mass `m` (Msun), Hz.
 pub fn isco_frequency(m_total: f64) -> f64 {
@@ -238,50 +241,150 @@ impl TaylorF2 {
                 k += len.max(1);
                 continue;
             }
-            // Nodes at j = 0, s, 2s, 3s with s = len / 3; unit-step differences of the cubic.
+            // Nodes at j = 0, s, 2s, 3s with s = len / 3; the cubic through them is
+            // stepped by LANES interleaved chains over contiguous quarters of the block.
             let s = len as f64 / 3.0;
             let mut ph = [0.0; 4];
             let mut am = [0.0; 4];
             for i in 0..4 {
-                let f = (k as f64 + i as f64 * s) * df;
-                ph[i] = self.phase(f);
-                am[i] = self.amplitude(f);
+                let (p, a) = self.phase_amplitude((k as f64 + i as f64 * s) * df);
+                ph[i] = p;
+                am[i] = a;
             }
-            let (p0, dp1, dp2, dp3) = unit_differences(&ph, s);
-            let (a0, da1, da2, da3) = unit_differences(&am, s);
-            let rot = |x: f64| {
-                let (sn, cs) = x.sin_cos();
-                Complex64::new(cs, -sn)
-            };
-            let (mut w, mut r1, mut r2, r3) = (rot(p0), rot(dp1), rot(dp2), rot(dp3));
-            let (mut a, mut b1, mut b2) = (a0, da1, da2);
-            for kk in k..k + len {
-                emit(kk, w * a);
-                w *= r1;
-                r1 *= r2;
-                r2 *= r3;
-                a += b1;
-                b1 += b2;
-                b2 += da3;
+            let (pc, ac) = (Cubic::through(&ph, s), Cubic::through(&am, s));
+            let sub = len.div_ceil(LANES);
+            let mut st = Lanes::default();
+            for l in 0..LANES {
+                let j0 = (l * sub) as f64;
+                let (p0, d1, d2, d3) = pc.at(j0);
+                for (x, (re, im)) in [p0, d1, d2, d3].into_iter().zip([
+                    (&mut st.wr, &mut st.wi),
+                    (&mut st.r1r, &mut st.r1i),
+                    (&mut st.r2r, &mut st.r2i),
+                    (&mut st.r3r, &mut st.r3i),
+                ]) {
+                    let (sn, cs) = x.sin_cos();
+                    re[l] = cs;
+                    im[l] = -sn;
+                }
+                (st.a[l], st.b1[l], st.b2[l], st.b3[l]) = ac.at(j0);
+            }
+            let mut out = [Complex64::new(0.0, 0.0); MAX_BLOCK + LANES];
+            st.run(&mut out, sub);
+            for (j, &h) in out[..len].iter().enumerate() {
+                emit(k + j, h);
             }
             k += len;
         }
     }
+
+    /// Psi(f) and |h~(f)| sharing one cube root: `f^(-7/6) = v^(-7/2) (pi M)^(7/6)`.
+    #[inline]
+    fn phase_amplitude(&self, f: f64) -> (f64, f64) {
+        let v = (PI * self.m_sec * f).cbrt();
+        let lnv = v.ln();
+        let p = &self.psi;
+        let tail = p[5] + self.psi5_log * lnv + v * (p[6] + self.psi6_log * lnv + v * p[7]);
+        let series = p[0] + v * (p[1] + v * (p[2] + v * (p[3] + v * (p[4] + v * tail))));
+        let v2 = v * v;
+        let v3 = v2 * v;
+        let phase = -PI / 4.0 + self.newtonian * series / (v3 * v2);
+        let amp = self.amp0 * (PI * self.m_sec).powf(7.0 / 6.0) / (v3 * v.sqrt());
+        (phase, amp)
+    }
 }
 
-/// Value and unit-step forward differences at 0 of the cubic through `y` at `0, s, 2s, 3s`.
-fn unit_differences(y: &[f64; 4], s: f64) -> (f64, f64, f64, f64) {
-    // Newton forward form in u = j / s.
-    let d1 = y[1] - y[0];
-    let d2 = y[2] - 2.0 * y[1] + y[0];
-    let d3 = y[3] - 3.0 * y[2] + 3.0 * y[1] - y[0];
-    let offset = |j: f64| {
-        let u = j / s;
-        d1 * u + d2 * u * (u - 1.0) / 2.0 + d3 * u * (u - 1.0) * (u - 2.0) / 6.0
-    };
-    // Differences of offsets (not of absolute values) keep large phases from cancelling.
-    let (q1, q2, q3) = (offset(1.0), offset(2.0), offset(3.0));
-    (y[0], q1, q2 - 2.0 * q1, q3 - 3.0 * q2 + 3.0 * q1)
+/// Recurrence state of the block's chains, structure-of-arrays so the lane loop
+/// vectorises: `w` (the rotating phasor), `r1..r3` (its rotation and the rotation's
+/// first and second differences), `a, b1..b3` (amplitude and its differences).
+#[derive(Default)]
+struct Lanes {
+    wr: [f64; LANES],
+    wi: [f64; LANES],
+    r1r: [f64; LANES],
+    r1i: [f64; LANES],
+    r2r: [f64; LANES],
+    r2i: [f64; LANES],
+    r3r: [f64; LANES],
+    r3i: [f64; LANES],
+    a: [f64; LANES],
+    b1: [f64; LANES],
+    b2: [f64; LANES],
+    b3: [f64; LANES],
+}
+
+impl Lanes {
+    /// Step every lane `sub` times, lane `l` writing `out[l * sub + i]`.
+    fn run(&mut self, out: &mut [Complex64], sub: usize) {
+        #[cfg(target_arch = "x86_64")]
+        {
+            if std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma") {
+                // SAFETY: the CPU supports the features the function is compiled for.
+                unsafe { self.run_avx2(out, sub) };
+                return;
+            }
+        }
+        self.run_portable(out, sub);
+    }
+
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2,fma")]
+    unsafe fn run_avx2(&mut self, out: &mut [Complex64], sub: usize) {
+        self.run_portable(out, sub);
+    }
+
+    #[inline(always)]
+    fn run_portable(&mut self, out: &mut [Complex64], sub: usize) {
+        let mut v = [Complex64::new(0.0, 0.0); LANES];
+        for i in 0..sub {
+            for l in 0..LANES {
+                let (wr, wi) = (self.wr[l], self.wi[l]);
+                v[l] = Complex64::new(wr * self.a[l], wi * self.a[l]);
+                let (r1r, r1i) = (self.r1r[l], self.r1i[l]);
+                self.wr[l] = wr * r1r - wi * r1i;
+                self.wi[l] = wr * r1i + wi * r1r;
+                let (r2r, r2i) = (self.r2r[l], self.r2i[l]);
+                self.r1r[l] = r1r * r2r - r1i * r2i;
+                self.r1i[l] = r1r * r2i + r1i * r2r;
+                let (r3r, r3i) = (self.r3r[l], self.r3i[l]);
+                self.r2r[l] = r2r * r3r - r2i * r3i;
+                self.r2i[l] = r2r * r3i + r2i * r3r;
+                self.a[l] += self.b1[l];
+                self.b1[l] += self.b2[l];
+                self.b2[l] += self.b3[l];
+            }
+            for l in 0..LANES {
+                out[l * sub + i] = v[l];
+            }
+        }
+    }
+}
+
+/// The cubic `c0 + c1 j + c2 j^2 + c3 j^3` through values at `j = 0, s, 2s, 3s`.
+struct Cubic {
+    c: [f64; 4],
+}
+
+impl Cubic {
+    fn through(y: &[f64; 4], s: f64) -> Self {
+        // Newton forward differences, then monomial coefficients in u = j / s, then in j.
+        let d1 = y[1] - y[0];
+        let d2 = y[2] - 2.0 * y[1] + y[0];
+        let d3 = y[3] - 3.0 * y[2] + 3.0 * y[1] - y[0];
+        let (u1, u2, u3) = (d1 - d2 / 2.0 + d3 / 3.0, d2 / 2.0 - d3 / 2.0, d3 / 6.0);
+        Cubic {
+            c: [y[0], u1 / s, u2 / (s * s), u3 / (s * s * s)],
+        }
+    }
+
+    /// Value and unit-step forward differences at `j0`, in closed form (no cancellation).
+    fn at(&self, j0: f64) -> (f64, f64, f64, f64) {
+        let [c0, c1, c2, c3] = self.c;
+        let value = c0 + j0 * (c1 + j0 * (c2 + j0 * c3));
+        let d1 = c1 + c2 * (2.0 * j0 + 1.0) + c3 * (3.0 * j0 * j0 + 3.0 * j0 + 1.0);
+        let d2 = 2.0 * c2 + c3 * (6.0 * j0 + 6.0);
+        (value, d1, d2, 6.0 * c3)
+    }
 }
 
 /// Time from frequency `f` to coalescence, `t_c - t(f)`, from the non-spinning
@@ -391,6 +494,48 @@ mod tests {
         assert_eq!(
             TaylorF2::new(&bns(), 0.0, 7).unwrap_err().argument,
             "distance"
+        );
+    }
+}
+
+#[cfg(test)]
+mod timing {
+    use super::*;
+
+    /// Throughput probe for profiling (`cargo test --release -- --ignored --nocapture`);
+    /// prints, asserts nothing about speed.
+    #[test]
+    #[ignore]
+    fn generation_throughput() {
+        let b = Binary::new(1.4, 1.3, 0.0, 0.0).unwrap();
+        let t = TaylorF2::new(&b, 1.0, 7).unwrap();
+        let df = 1.0 / 256.0;
+        let (lo, hi) = (
+            (20.0 / df) as usize,
+            (isco_frequency(b.total()) / df) as usize,
+        );
+        let mut acc = Complex64::new(0.0, 0.0);
+        let mut blocks = 0usize;
+        let mut k = lo;
+        while k < hi {
+            k += t.block_len(k as f64 * df, df).max(1);
+            blocks += 1;
+        }
+        println!("{blocks} blocks");
+        let start = std::time::Instant::now();
+        for _ in 0..20 {
+            t.for_each_bin(lo, hi, df, |k, h| {
+                if k % 4096 == 0 {
+                    acc += h
+                }
+            });
+        }
+        let per = start.elapsed().as_secs_f64() / 20.0;
+        println!(
+            "{} bins: {:.3} ms, {:.2} ns/bin ({acc})",
+            hi - lo,
+            per * 1e3,
+            per * 1e9 / (hi - lo) as f64
         );
     }
 }
