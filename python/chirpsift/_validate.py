@@ -36,12 +36,12 @@ def _as_array(name: str, x, kind: str) -> np.ndarray:
     return a
 
 
-def _check_shape(name: str, a: np.ndarray, ndim) -> None:
+def _check_shape(name: str, a: np.ndarray, ndim, allow_empty: bool = False) -> None:
     allowed = (ndim,) if isinstance(ndim, int) else tuple(ndim)
     if a.ndim not in allowed:
         want = " or ".join(f"{d}-D" for d in allowed)
         raise ValueError(f"{name} must be {want}, got shape {a.shape}")
-    if a.size == 0:
+    if a.size == 0 and not allow_empty:
         raise ValueError(f"{name} must not be empty, got shape {a.shape}")
 
 
@@ -53,10 +53,10 @@ def _check_finite(name: str, a: np.ndarray) -> None:
         raise ValueError(f"{name} must be finite, found {a[idx]} at index {where} ({int(bad.sum())} non-finite values)")
 
 
-def real_array(name: str, x, ndim=(1, 2), dtype=np.float64, finite: bool = True) -> np.ndarray:
+def real_array(name: str, x, ndim=(1, 2), dtype=np.float64, finite: bool = True, allow_empty: bool = False) -> np.ndarray:
     """C-contiguous real array of `dtype`, checked for shape, emptiness and finiteness."""
     a = _as_array(name, x, "real")
-    _check_shape(name, a, ndim)
+    _check_shape(name, a, ndim, allow_empty)
     a = np.asarray(a, dtype=dtype, order="C")  # keeps 0-d arrays 0-d
     if finite:
         _check_finite(name, a)

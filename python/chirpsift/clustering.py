@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._validate import nonnegative_scalar, real_array
+
 __all__ = ["cluster_in_time"]
 
 
@@ -27,9 +29,18 @@ def cluster_in_time(times, values, window, groups=None):
         Indices (into the inputs) of the survivors, in ascending time order per
         group. Equal values are resolved in favour of the earlier trigger.
     """
-    t = np.asarray(times, dtype=np.float64)
-    v = np.asarray(values, dtype=np.float64)
-    g = np.zeros(t.shape, dtype=np.int64) if groups is None else np.asarray(groups, dtype=np.int64)
+    t = real_array("times", times, ndim=1, allow_empty=True)
+    v = real_array("values", values, ndim=1, allow_empty=True)
+    if t.shape != v.shape:
+        raise ValueError(f"times and values must have the same length, got {t.shape[0]} and {v.shape[0]}")
+    window = nonnegative_scalar("window", window)
+    if groups is None:
+        g = np.zeros(t.shape, dtype=np.int64)
+    else:
+        g = np.asarray(groups)
+        if g.shape != t.shape or g.dtype.kind not in "iu":
+            raise ValueError(f"groups must be integers of the same length as times, got {g.dtype} of shape {g.shape}")
+        g = g.astype(np.int64)
     order = np.lexsort((t, g))
     ts, vs, gs = t[order], v[order], g[order]
     keep = np.ones(ts.shape[0], dtype=bool)

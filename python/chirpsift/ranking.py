@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._validate import real_array
+
 __all__ = ["reweighted_snr"]
 
 
@@ -31,7 +33,18 @@ def reweighted_snr(snr, chisq, dof):
     .. [1] S. Babak et al., "Searching for gravitational waves from binary
        coalescence", Phys. Rev. D 87, 024033 (2013), arXiv:1208.3491.
     """
-    rho = np.asarray(snr, dtype=np.float64)
-    r2 = np.asarray(chisq, dtype=np.float64) / np.asarray(dof, dtype=np.float64)
+    rho = real_array("snr", snr, ndim=range(0, 8), allow_empty=True)
+    chi = real_array("chisq", chisq, ndim=range(0, 8), allow_empty=True)
+    nu = real_array("dof", dof, ndim=range(0, 8), allow_empty=True)
+    for name, a, low in (("snr", rho, 0.0), ("chisq", chi, 0.0)):
+        if np.any(a < low):
+            raise ValueError(f"{name} must be non-negative, got {a.min()}")
+    if np.any(nu <= 0):
+        raise ValueError(f"dof must be positive, got {nu.min()}")
+    try:
+        rho, chi, nu = np.broadcast_arrays(rho, chi, nu)
+    except ValueError as exc:
+        raise ValueError(f"snr, chisq and dof must broadcast together, got shapes {rho.shape}, {chi.shape}, {nu.shape}") from exc
+    r2 = chi / nu
     factor = np.where(r2 > 1.0, ((1.0 + r2**3) / 2.0) ** (-1.0 / 6.0), 1.0)
     return rho * factor

@@ -5,6 +5,8 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
+from ._validate import positive_int
+
 __all__ = ["SegmentPlan", "plan_segments"]
 
 
@@ -39,6 +41,10 @@ def plan_segments(n_samples: int, length: int, pad_start: int, pad_end: int) -> 
         aligned with the end of the data and analyses only what the others left, so
         the analysable parts tile the span without gaps or overlaps.
     """
+    n_samples = positive_int("n_samples", n_samples)
+    length = positive_int("length", length)
+    pad_start = positive_int("pad_start", pad_start, minimum=0)
+    pad_end = positive_int("pad_end", pad_end, minimum=0)
     stride = length - pad_start - pad_end
     if stride < 1:
         raise ValueError(
