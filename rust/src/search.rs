@@ -258,19 +258,21 @@ fn filter_one(
     }
     // Four partial sums (fixed assignment by bin) so the additions do not serialise.
     let mut partial = [0.0f64; 4];
-    t.model.for_each_bin(k_lo, k_hi, seg.df, |k, h| {
-        let h = h * inv_h;
-        partial[k & 3] += h.norm_sqr() * seg.w[k] as f64;
-        let q = seg.q[k];
-        // q * conj(h), in f64 then stored f32.
-        let re = q.re as f64 * h.re + q.im as f64 * h.im;
-        let im = q.im as f64 * h.re - q.re as f64 * h.im;
-        let m = k - k_lo;
-        if folded {
-            let slot = &mut buf[m % m_len];
-            *slot += Complex32::new(re as f32, im as f32);
+    t.model.for_each_block(k_lo, k_hi, seg.df, |k0, block| {
+        let n = block.len();
+        let (q, w) = (&seg.q[k0..k0 + n], &seg.w[k0..k0 + n]);
+        let m0 = k0 - k_lo;
+        if !folded {
+            fill_run(&mut buf[m0..m0 + n], block, q, w, inv_h, &mut partial, false);
         } else {
-            buf[m] = Complex32::new(re as f32, im as f32);
+            // Fold bins m >= M onto m mod M: at most one wrap inside a block (n <= M).
+            let start = m0 % m_len;
+            let first = n.min(m_len - start);
+            fill_run(&mut buf[start..start + first], &block[..first], &q[..first], &w[..first], inv_h, &mut partial, true);
+            if first < n {
+                let rest = n - first;
+                fill_run(&mut buf[..rest], &block[first..], &q[first..], &w[first..], inv_h, &mut partial, true);
+            }
         }
     });
     let norm = (partial[0] + partial[1]) + (partial[2] + partial[3]);
@@ -378,6 +380,28 @@ fn filter_one(
             }
         })
         .collect()
+}
+
+/// `out[j] (+)= q_j conj(h_j / h_ref)` in f32 (products formed in f64), and the
+/// template norm `|h_j / h_ref|^2 w_j` into four partial sums by `j mod 4`.
+#[inline]
+fn fill_run(out: &mut [Complex32], h: &[Complex64], q: &[Complex32], w: &[f32], inv_h: f64, partial: &mut [f64; 4], add: bool) {
+    let n = out.len();
+    let mut acc = [0.0f64; 4];
+    for j in 0..n {
+        let hj = h[j] * inv_h;
+        acc[j & 3] += hj.norm_sqr() * w[j] as f64;
+        let (qr, qi) = (q[j].re as f64, q[j].im as f64);
+        let v = Complex32::new((qr * hj.re + qi * hj.im) as f32, (qi * hj.re - qr * hj.im) as f32);
+        if add {
+            out[j] += v;
+        } else {
+            out[j] = v;
+        }
+    }
+    for (p, a) in partial.iter_mut().zip(acc) {
+        *p += a;
+    }
 }
 
 /// Local maxima of `|z|^2 >= threshold2` in `[start, stop)`: strictly above the

@@ -221,24 +221,32 @@ impl TaylorF2 {
 
     /// Call `emit(k, h~_k)` for every bin `k_lo <= k < k_hi` of spacing `df` (`k_lo >= 1`).
     #[inline]
-    pub fn for_each_bin<F: FnMut(usize, Complex64)>(
-        &self,
-        k_lo: usize,
-        k_hi: usize,
-        df: f64,
-        mut emit: F,
-    ) {
+    pub fn for_each_bin<F: FnMut(usize, Complex64)>(&self, k_lo: usize, k_hi: usize, df: f64, mut emit: F) {
+        self.for_each_block(k_lo, k_hi, df, |k0, block| {
+            for (j, &h) in block.iter().enumerate() {
+                emit(k0 + j, h);
+            }
+        });
+    }
+
+    /// Call `emit(k0, block)` with consecutive runs `block[j] = h~_{k0 + j}` covering
+    /// `k_lo <= k < k_hi` in ascending order (at most `MAX_BLOCK` bins each).
+    #[inline]
+    pub fn for_each_block<F: FnMut(usize, &[Complex64])>(&self, k_lo: usize, k_hi: usize, df: f64, mut emit: F) {
+        let mut out = [Complex64::new(0.0, 0.0); MAX_BLOCK + LANES];
         let mut k = k_lo.max(1);
         while k < k_hi {
             let f0 = k as f64 * df;
             let len = self.block_len(f0, df).min(k_hi - k);
             if len < MIN_BLOCK {
-                for kk in k..k + len.max(1) {
-                    let f = kk as f64 * df;
+                let len = len.max(1);
+                for (j, o) in out[..len].iter_mut().enumerate() {
+                    let f = (k + j) as f64 * df;
                     let (s, c) = self.phase(f).sin_cos();
-                    emit(kk, Complex64::new(c, -s) * self.amplitude(f));
+                    *o = Complex64::new(c, -s) * self.amplitude(f);
                 }
-                k += len.max(1);
+                emit(k, &out[..len]);
+                k += len;
                 continue;
             }
             // Nodes at j = 0, s, 2s, 3s with s = len / 3; the cubic through them is
@@ -269,11 +277,8 @@ impl TaylorF2 {
                 }
                 (st.a[l], st.b1[l], st.b2[l], st.b3[l]) = ac.at(j0);
             }
-            let mut out = [Complex64::new(0.0, 0.0); MAX_BLOCK + LANES];
             st.run(&mut out, sub);
-            for (j, &h) in out[..len].iter().enumerate() {
-                emit(k + j, h);
-            }
+            emit(k, &out[..len]);
             k += len;
         }
     }
