@@ -149,9 +149,9 @@ def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None, dist
     1.5, 2.5, 3 and 3.5PN, spin-spin at 2PN (including the self-spin,
     quadrupole-monopole terms of black holes) and 3PN.
 
-    The generator evaluates the exact phase at four nodes per block of up to 128 bins
+    The generator evaluates the exact phase at four nodes per block of up to 2048 bins
     and steps a cubic through them with a complex rotation recurrence; block widths
-    keep the interpolation error below 1e-7 rad (checked against the direct formula in
+    keep the interpolation error below 1e-6 rad (checked against the direct formula in
     the tests, and available in :func:`chirpsift.reference.taylorf2`).
 
     References

@@ -263,15 +263,39 @@ fn filter_one(
         let (q, w) = (&seg.q[k0..k0 + n], &seg.w[k0..k0 + n]);
         let m0 = k0 - k_lo;
         if !folded {
-            fill_run(&mut buf[m0..m0 + n], block, q, w, inv_h, &mut partial, false);
+            fill_run(
+                &mut buf[m0..m0 + n],
+                block,
+                q,
+                w,
+                inv_h,
+                &mut partial,
+                false,
+            );
         } else {
             // Fold bins m >= M onto m mod M: at most one wrap inside a block (n <= M).
             let start = m0 % m_len;
             let first = n.min(m_len - start);
-            fill_run(&mut buf[start..start + first], &block[..first], &q[..first], &w[..first], inv_h, &mut partial, true);
+            fill_run(
+                &mut buf[start..start + first],
+                &block[..first],
+                &q[..first],
+                &w[..first],
+                inv_h,
+                &mut partial,
+                true,
+            );
             if first < n {
                 let rest = n - first;
-                fill_run(&mut buf[..rest], &block[first..], &q[first..], &w[first..], inv_h, &mut partial, true);
+                fill_run(
+                    &mut buf[..rest],
+                    &block[first..],
+                    &q[first..],
+                    &w[first..],
+                    inv_h,
+                    &mut partial,
+                    true,
+                );
             }
         }
     });
@@ -385,14 +409,25 @@ fn filter_one(
 /// `out[j] (+)= q_j conj(h_j / h_ref)` in f32 (products formed in f64), and the
 /// template norm `|h_j / h_ref|^2 w_j` into four partial sums by `j mod 4`.
 #[inline]
-fn fill_run(out: &mut [Complex32], h: &[Complex64], q: &[Complex32], w: &[f32], inv_h: f64, partial: &mut [f64; 4], add: bool) {
+fn fill_run(
+    out: &mut [Complex32],
+    h: &[Complex64],
+    q: &[Complex32],
+    w: &[f32],
+    inv_h: f64,
+    partial: &mut [f64; 4],
+    add: bool,
+) {
     let n = out.len();
     let mut acc = [0.0f64; 4];
     for j in 0..n {
         let hj = h[j] * inv_h;
         acc[j & 3] += hj.norm_sqr() * w[j] as f64;
         let (qr, qi) = (q[j].re as f64, q[j].im as f64);
-        let v = Complex32::new((qr * hj.re + qi * hj.im) as f32, (qi * hj.re - qr * hj.im) as f32);
+        let v = Complex32::new(
+            (qr * hj.re + qi * hj.im) as f32,
+            (qi * hj.re - qr * hj.im) as f32,
+        );
         if add {
             out[j] += v;
         } else {

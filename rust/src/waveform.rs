@@ -28,9 +28,10 @@ pub const MPC: f64 = 3.0856775814913673e22;
 pub const C_SI: f64 = 299792458.0;
 const EULER_GAMMA: f64 = 0.577_215_664_901_532_9;
 
-/// Largest phase error of the block interpolation, radians.
-pub const PHASE_TOLERANCE: f64 = 1e-7;
-const MAX_BLOCK: usize = 1024;
+/// Largest phase error of the block interpolation, radians (a mismatch of order
+/// 1e-12, far below any bank's minimal-match loss).
+pub const PHASE_TOLERANCE: f64 = 1e-6;
+const MAX_BLOCK: usize = 2048;
 const MIN_BLOCK: usize = 16;
 /// Independent recurrence chains per block, so consecutive complex multiplies do not
 /// wait on each other.
@@ -91,6 +92,8 @@ pub struct TaylorF2 {
     psi6_log: f64,
     /// A in `A f^(-7/6)`, seconds * Hz^(7/6) (strain per Hz).
     amp0: f64,
+    /// `A (pi M)^(7/6)`, so that `A f^(-7/6) = amp_v v^(-7/2)`.
+    amp_v: f64,
 }
 
 impl TaylorF2 {
@@ -175,6 +178,7 @@ impl TaylorF2 {
             psi5_log,
             psi6_log,
             amp0,
+            amp_v: amp0 * (PI * m * T_SUN).powf(7.0 / 6.0),
         })
     }
 
@@ -221,7 +225,13 @@ impl TaylorF2 {
 
     /// Call `emit(k, h~_k)` for every bin `k_lo <= k < k_hi` of spacing `df` (`k_lo >= 1`).
     #[inline]
-    pub fn for_each_bin<F: FnMut(usize, Complex64)>(&self, k_lo: usize, k_hi: usize, df: f64, mut emit: F) {
+    pub fn for_each_bin<F: FnMut(usize, Complex64)>(
+        &self,
+        k_lo: usize,
+        k_hi: usize,
+        df: f64,
+        mut emit: F,
+    ) {
         self.for_each_block(k_lo, k_hi, df, |k0, block| {
             for (j, &h) in block.iter().enumerate() {
                 emit(k0 + j, h);
@@ -232,7 +242,13 @@ impl TaylorF2 {
     /// Call `emit(k0, block)` with consecutive runs `block[j] = h~_{k0 + j}` covering
     /// `k_lo <= k < k_hi` in ascending order (at most `MAX_BLOCK` bins each).
     #[inline]
-    pub fn for_each_block<F: FnMut(usize, &[Complex64])>(&self, k_lo: usize, k_hi: usize, df: f64, mut emit: F) {
+    pub fn for_each_block<F: FnMut(usize, &[Complex64])>(
+        &self,
+        k_lo: usize,
+        k_hi: usize,
+        df: f64,
+        mut emit: F,
+    ) {
         let mut out = [Complex64::new(0.0, 0.0); MAX_BLOCK + LANES];
         let mut k = k_lo.max(1);
         while k < k_hi {
@@ -294,7 +310,7 @@ impl TaylorF2 {
         let v2 = v * v;
         let v3 = v2 * v;
         let phase = -PI / 4.0 + self.newtonian * series / (v3 * v2);
-        let amp = self.amp0 * (PI * self.m_sec).powf(7.0 / 6.0) / (v3 * v.sqrt());
+        let amp = self.amp_v / (v3 * v.sqrt());
         (phase, amp)
     }
 }
