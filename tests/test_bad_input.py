@@ -4,8 +4,7 @@ The contract checked here: a call either returns results of the documented shape
 are finite (or ``inf`` where the docs say so, never NaN), or raises ``ValueError`` /
 ``TypeError`` whose message names the offending argument. Anything else (a Rust panic,
 ``RuntimeError``, ``OverflowError``, a numpy message that names no argument, a crash or
-a hang) is a failure. Known defects are pinned by ``xfail(strict=True)`` tests at the
-end of the file so that a fix shows up as an XPASS.
+a hang) is a failure. The regression tests at the end pin defects found this way.
 """
 
 from __future__ import annotations
@@ -18,7 +17,7 @@ import textwrap
 import numpy as np
 import numpy.testing as npt
 import pytest
-from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
@@ -151,55 +150,7 @@ JUNK_SCALARS = st.one_of(
 JUNK = st.one_of(JUNK_SCALARS, any_array())
 
 
-def _not_a_dtype(value) -> bool:
-    try:
-        np.dtype(value)
-    except Exception:
-        return True
-    return False
-
-
-def _fails_to_broadcast_with_pair(value) -> bool:
-    try:
-        np.broadcast_shapes(np.shape(value), (2,))
-    except Exception:
-        return True
-    return False
-
-
-# (function, argument) -> inputs whose error message is known not to name the argument;
-# each is pinned by a strict xfail below, and here only the message check is relaxed
-# (the exception type, panics and NaN output are still checked).
-KNOWN_MESSAGE_BUGS = {
-    ("taylorf2", "dtype"): _not_a_dtype,
-    ("snr_series", "dtype"): _not_a_dtype,
-    ("filter_segment", "valid"): lambda v: True,
-    ("filter_segment", "f_high"): lambda v: True,
-    ("cluster_in_time", "groups"): lambda v: True,
-    ("plan_segments", "n_samples"): lambda v: True,
-    ("plan_segments", "length"): lambda v: True,
-    ("plan_segments", "pad_start"): lambda v: True,
-    ("plan_segments", "pad_end"): lambda v: True,
-    ("search", "t0"): lambda v: True,
-    ("welch", "detrend"): lambda v: isinstance(v, np.ndarray),
-    ("search", "bank_cluster"): lambda v: isinstance(v, np.ndarray),
-    **{(fn, arg): _fails_to_broadcast_with_pair
-       for fn in ("chirp_duration", "isco_frequency", "filter_segment") for arg in ("m1", "m2", "chi1", "chi2")},
-    ("search", "psd"): lambda v: not isinstance(v, str),
-}
-
-# Inputs that raise the wrong exception type; pinned by strict xfails below and
-# kept out of the hypothesis runs so that those keep looking for new defects.
-KNOWN_TYPE_BUGS = {
-    ("filter_segment", "valid"): lambda v: v is not None,
-    ("search", "f_low"): lambda v: isinstance(v, float) and 0 < v < 1e-100,
-}
-
-
 def names_for(fn_name, arg, value, extra=()):
-    known = KNOWN_MESSAGE_BUGS.get((fn_name, arg))
-    if known is not None and known(value):
-        return None
     return {arg} | RELATED.get(arg, set()) | set(extra)
 
 
@@ -302,7 +253,6 @@ def test_baseline_is_valid(name):
 def test_one_junk_argument(name, data):
     fn, base = BASES[name]
     kwargs, arg = corrupt(data, base)
-    assume(not KNOWN_TYPE_BUGS.get((name, arg), lambda v: False)(kwargs[arg]))
     # complex64 templates overflow to inf for absurdly small distances (pinned below)
     overflow_ok = name == "taylorf2" and arg == "distance" and isinstance(kwargs[arg], float) and 0 < kwargs[arg] < 1e-20
     call(fn, names=names_for(name, arg, kwargs[arg]), allow_inf=name in ALLOW_INF or overflow_ok, **kwargs)
@@ -315,7 +265,6 @@ def test_search_one_junk_argument(data):
                 psd_segment_duration=2.0, snr_threshold=4.0, cluster_window=0.5, chisq_bins=4, psd=None,
                 phase_order=7, bank_cluster=False)
     kwargs, arg = corrupt(data, base)
-    assume(not KNOWN_TYPE_BUGS.get(("search", arg), lambda v: False)(kwargs[arg]))
     names = names_for("search", arg, kwargs[arg])
     if names is not None and arg == "psd":
         names |= {"curve", "freqs"}
@@ -343,8 +292,7 @@ def test_set_threads_junk(n):
 @given(obj=st.one_of(JUNK, any_array().map(lambda a: {"m1": a, "m2": 1.5}), st.fixed_dictionaries({
     "m1": JUNK, "m2": st.just([1.0])})))
 def test_bank_from_any_junk(obj):
-    ragged = isinstance(obj, dict) and _fails_to_broadcast_with_pair(obj["m1"]) and not isinstance(obj["m1"], np.ndarray)
-    out = call(Bank.from_any, obj, names=None if ragged else {"bank", "m1", "m2", "chi1", "chi2"})
+    out = call(Bank.from_any, obj, names={"bank", "m1", "m2", "chi1", "chi2"})
     if out is not None:
         assert isinstance(out, Bank)
         assert np.all(out.m1 > 0) and np.all(np.abs(out.chi1) < 1)
@@ -886,73 +834,60 @@ def _expect_clean_error(call_src: str, name: str):
     assert "CLEAN" in proc.stdout and name in proc.stdout, proc.stdout
 
 
-@pytest.mark.xfail(strict=True, reason="psd_to_grid with a huge n_freq aborts the interpreter (Rust allocation failure)")
-def test_bug_psd_to_grid_huge_n_freq_aborts():
+def test_regression_psd_to_grid_huge_n_freq_aborts():
     _expect_clean_error("cs.psd_to_grid([1.0, 2.0], [1.0, 1.0], 0.5, 10**15)", "n_freq")
 
 
-@pytest.mark.xfail(strict=True, reason="taylorf2 with a huge n_freq aborts the interpreter (Rust allocation failure)")
-def test_bug_taylorf2_huge_n_freq_aborts():
+def test_regression_taylorf2_huge_n_freq_aborts():
     _expect_clean_error("cs.taylorf2(1.4, 1.4, f_low=20.0, df=1.0, n_freq=10**13)", "n_freq")
 
 
-@pytest.mark.xfail(strict=True, reason="filter_segment with a huge chisq_bins aborts the interpreter (Rust allocation failure)")
-def test_bug_filter_segment_huge_chisq_bins_aborts():
+def test_regression_filter_segment_huge_chisq_bins_aborts():
     _expect_clean_error(
         "cs.filter_segment(np.ones(513, complex), np.ones(513), 0.5, 5.0, 5.0, f_low=20.0, chisq_bins=10**12)",
         "chisq_bins",
     )
 
 
-@pytest.mark.xfail(strict=True, reason="welch of values near the float64 maximum returns NaN (FFT overflow)")
-def test_bug_welch_overflow_gives_nan():
+def test_regression_welch_overflow_gives_nan():
     call(cs.welch, np.full(512, 1e308), 256.0, 1.0, names={"x"}, allow_inf=True)
 
 
-@pytest.mark.xfail(strict=True, reason="design_psd returns NaN at very high frequencies (inf/inf in the rational term)")
 @pytest.mark.parametrize("curve", ["gen1-600m", "gen2-early"])
-def test_bug_design_psd_nan_at_high_frequency(curve):
+def test_regression_design_psd_nan_at_high_frequency(curve):
     call(cs.design_psd, [1e200], curve, names={"freqs"}, allow_inf=True)
 
 
-@pytest.mark.xfail(strict=True, reason="whiten with a subnormal PSD returns NaN")
-def test_bug_whiten_tiny_psd_gives_nan():
+def test_regression_whiten_tiny_psd_gives_nan():
     call(cs.whiten, NOISE[:128], np.full(65, 5e-324), 128.0, names={"psd"})
 
 
-@pytest.mark.xfail(strict=True, reason="whiten of values near the float64 maximum returns NaN")
-def test_bug_whiten_huge_x_gives_nan():
+def test_regression_whiten_huge_x_gives_nan():
     call(cs.whiten, np.full(128, 1e308), np.ones(65), 128.0, names={"x"})
 
 
-@pytest.mark.xfail(strict=True, reason="taylorf2 with tiny masses returns NaN (v**5 underflows in the phase)")
-def test_bug_taylorf2_tiny_mass_gives_nan():
+def test_regression_taylorf2_tiny_mass_gives_nan():
     call(cs.taylorf2, 1e-200, 1e-200, f_low=20.0, df=0.25, n_freq=1025, names={"m1", "m2"})
 
 
-@pytest.mark.xfail(strict=True, reason="taylorf2 with a subnormal-scale df returns NaN")
-def test_bug_taylorf2_tiny_df_gives_nan():
+def test_regression_taylorf2_tiny_df_gives_nan():
     call(cs.taylorf2, 1.4, 1.4, f_low=1e-300, df=1e-300, n_freq=8, names={"df", "f_low"})
 
 
-@pytest.mark.xfail(strict=True, reason="chirp_duration returns NaN for extreme masses or f_low")
 @pytest.mark.parametrize("m, f_low", [(1e-200, 20.0), (1e200, 20.0), (1.4, 1e300)])
-def test_bug_chirp_duration_nan(m, f_low):
+def test_regression_chirp_duration_nan(m, f_low):
     call(cs.chirp_duration, m, m, f_low, names={"m1", "m2", "f_low"})
 
 
-@pytest.mark.xfail(strict=True, reason="complex64 SNR beyond float32 range comes back NaN instead of an error or inf")
-def test_bug_snr_series_complex64_overflow_gives_nan():
+def test_regression_snr_series_complex64_overflow_gives_nan():
     call(cs.snr_series, DATA_FD * 1e39 * FS, TEMPLATES, WHITE_PSD, DF, 20.0, names={"data_fd", "dtype"}, allow_inf=True)
 
 
-@pytest.mark.xfail(strict=True, reason="correlate of large values returns NaN (FFT overflow)")
-def test_bug_correlate_overflow_gives_nan():
+def test_regression_correlate_overflow_gives_nan():
     call(cs.correlate, np.full(100, 1e200), np.full(10, 1e200), names={"data", "templates"}, allow_inf=True)
 
 
-@pytest.mark.xfail(strict=True, reason="set_threads raises OverflowError for integers beyond 64 bits")
-def test_bug_set_threads_huge_int_overflow_error():
+def test_regression_set_threads_huge_int_overflow_error():
     before = cs.get_threads()
     try:
         call(cs.set_threads, 10**30, names={"n"})
@@ -960,15 +895,13 @@ def test_bug_set_threads_huge_int_overflow_error():
         cs.set_threads(before)
 
 
-@pytest.mark.xfail(strict=True, reason="filter_segment raises OverflowError for huge integer arguments")
 @pytest.mark.parametrize("arg", ["chisq_bins", "cluster_samples"])
-def test_bug_filter_segment_huge_int_overflow_error(arg):
+def test_regression_filter_segment_huge_int_overflow_error(arg):
     call(cs.filter_segment, DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=20.0, names={arg}, **{arg: 10**30})
 
 
-@pytest.mark.xfail(strict=True, reason="broadcast failure of m1/m2 surfaces numpy's message, which names no argument")
 @pytest.mark.parametrize("fn", [cs.chirp_duration, cs.isco_frequency, cs.filter_segment])
-def test_bug_mass_broadcast_message(fn):
+def test_regression_mass_broadcast_message(fn):
     args = {
         cs.chirp_duration: ([1.0, 2.0], [1.0, 2.0, 3.0], 20.0),
         cs.isco_frequency: ([1.0, 2.0], [1.0, 2.0, 3.0]),
@@ -993,9 +926,8 @@ FUSED_BAD = [
 ]
 
 
-@pytest.mark.xfail(strict=True, reason="filter_segment does not validate f_high / valid; numpy or Python errors leak out")
 @pytest.mark.parametrize("kwargs, name", FUSED_BAD)
-def test_bug_filter_segment_unvalidated_arguments(kwargs, name):
+def test_regression_filter_segment_unvalidated_arguments(kwargs, name):
     call(cs.filter_segment, DATA_FD, WHITE_PSD, DF, [5.0, 6.0], 5.0, f_low=20.0, names={name}, **kwargs)
 
 
@@ -1018,45 +950,38 @@ SEARCH_BAD = [
 ]
 
 
-@pytest.mark.xfail(strict=True, reason="search lets numpy/Python errors (or a misleading argument name) through")
 @pytest.mark.parametrize("kwargs, name", SEARCH_BAD)
-def test_bug_search_unvalidated_arguments(kwargs, name):
+def test_regression_search_unvalidated_arguments(kwargs, name):
     kw = dict(SEARCH_KW, **kwargs)
     strain = kw.pop("strain", STRAIN)
     call(cs.search, strain, names={name}, **kw)
 
 
-@pytest.mark.xfail(strict=True, reason="a ragged field in a mapping bank gives numpy's message, which names no field")
-def test_bug_bank_ragged_field_message():
+def test_regression_bank_ragged_field_message():
     call(Bank.from_any, {"m1": [[1.0], [1.0, 2.0]], "m2": [1.0]}, names={"m1", "bank"})
 
 
-@pytest.mark.xfail(strict=True, reason="a value that is not a dtype gives numpy's message, which does not name dtype")
 @pytest.mark.parametrize("fn", ["taylorf2", "snr_series"])
-def test_bug_dtype_junk_message(fn):
+def test_regression_dtype_junk_message(fn):
     if fn == "taylorf2":
         call(cs.taylorf2, 1.4, 1.4, f_low=20.0, df=1.0, n_freq=65, dtype=0.0, names={"dtype"})
     else:
         call(cs.snr_series, DATA_FD, TEMPLATES, WHITE_PSD, DF, 20.0, dtype=0.0, names={"dtype"})
 
 
-@pytest.mark.xfail(strict=True, reason="ragged groups give numpy's message, which does not name groups")
-def test_bug_cluster_ragged_groups_message():
+def test_regression_cluster_ragged_groups_message():
     call(cs.cluster_in_time, [0.0, 1.0], [1.0, 2.0], 1.0, groups=[[1.0], [1.0, 2.0]], names={"groups"})
 
 
-@pytest.mark.xfail(strict=True, reason="plan_segments' length errors name no argument")
 @pytest.mark.parametrize("args", [(10, 20, 1, 1), (100, 20, 15, 5)], ids=["data-short", "no-stride"])
-def test_bug_plan_segments_messages(args):
+def test_regression_plan_segments_messages(args):
     call(cs.plan_segments, *args, names={"n_samples", "length", "pad_start", "pad_end"})
 
 
-@pytest.mark.xfail(strict=True, reason="welch compares an array detrend with ==; numpy's (or the binding's) message leaks out")
 @pytest.mark.parametrize("detrend", [np.zeros(3), np.array([]), np.zeros(1)], ids=["3", "empty", "1"])
-def test_bug_welch_array_detrend(detrend):
+def test_regression_welch_array_detrend(detrend):
     call(cs.welch, NOISE, 64.0, 2.0, detrend=detrend, names={"detrend"})
 
 
-@pytest.mark.xfail(strict=True, reason="complex64 templates overflow to inf for tiny distances instead of an error")
-def test_bug_taylorf2_tiny_distance_gives_inf():
+def test_regression_taylorf2_tiny_distance_gives_inf():
     call(cs.taylorf2, 1.4, 1.4, f_low=20.0, df=0.25, n_freq=1025, distance=1e-300, names={"distance"})

@@ -7,6 +7,11 @@ import numbers
 import numpy as np
 
 __all__ = [
+    "broadcast",
+    "check_allocation",
+    "dtype_choice",
+    "finite_output",
+    "real_scalar",
     "real_array",
     "complex_array",
     "positive_scalar",
@@ -100,13 +105,63 @@ def nonnegative_scalar(name: str, x) -> float:
     return v
 
 
-def positive_int(name: str, x, minimum: int = 1) -> int:
+def real_scalar(name: str, x) -> float:
+    """A finite real number."""
+    return _scalar(name, x)
+
+
+def positive_int(name: str, x, minimum: int = 1, maximum: int = 2**53) -> int:
     if isinstance(x, (bool, np.bool_)) or not isinstance(x, (numbers.Integral, np.integer)):
         raise TypeError(f"{name} must be an integer, got {_describe(x)}")
     v = int(x)
     if v < minimum:
         raise ValueError(f"{name} must be at least {minimum}, got {v}")
+    if v > maximum:
+        raise ValueError(f"{name} must be at most {maximum}, got {v}")
     return v
+
+
+def broadcast(names, arrays):
+    """``np.broadcast_arrays`` with an error that names the arguments."""
+    try:
+        return np.broadcast_arrays(*arrays)
+    except ValueError:
+        shapes = ", ".join(f"{n} {np.shape(a)}" for n, a in zip(names, arrays))
+        raise ValueError(f"{', '.join(names)} must broadcast together, got shapes {shapes}") from None
+
+
+def _physical_memory() -> int:
+    try:
+        import os
+
+        return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):
+        return 2**40
+
+
+def check_allocation(name: str, n_elements: int, itemsize: int) -> None:
+    """Refuse outputs larger than the machine's memory (Rust would abort, not raise)."""
+    need = int(n_elements) * int(itemsize)
+    have = _physical_memory()
+    if need > have:
+        raise ValueError(f"{name} asks for an output of {need / 2**30:.3g} GiB, more than this machine's {have / 2**30:.3g} GiB")
+
+
+def finite_output(out: np.ndarray, blame: str, hint: str = "") -> np.ndarray:
+    """Raise instead of returning NaN/inf produced from finite but extreme inputs."""
+    if not np.all(np.isfinite(out)):
+        raise ValueError(f"{blame}: the result overflowed or is undefined (non-finite values){hint}")
+    return out
+
+
+def dtype_choice(name: str, dtype, allowed) -> np.dtype:
+    try:
+        dt = np.dtype(dtype)
+    except TypeError:
+        raise TypeError(f"{name} must be one of {', '.join(np.dtype(a).name for a in allowed)}, got {_describe(dtype)}") from None
+    if dt not in [np.dtype(a) for a in allowed]:
+        raise TypeError(f"{name} must be one of {', '.join(np.dtype(a).name for a in allowed)}, got {dt}")
+    return dt
 
 
 def psd_array(name: str, x, ndim=(1, 2)) -> np.ndarray:

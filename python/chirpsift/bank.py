@@ -35,7 +35,10 @@ _RECORD_DTYPE = np.dtype([(name, np.float64) for name in _FIELDS])
 
 
 def _column(values, name: str) -> np.ndarray:
-    arr = np.asarray(values)
+    try:
+        arr = np.asarray(values)
+    except ValueError:
+        raise ValueError(f"{name} must be a 1-D array of numbers (got a ragged sequence)") from None
     if arr.dtype.kind in "c":
         raise TypeError(f"{name} must be real, got complex dtype {arr.dtype}")
     if arr.dtype.kind not in "iuf":

@@ -37,7 +37,10 @@ def cluster_in_time(times, values, window, groups=None):
     if groups is None:
         g = np.zeros(t.shape, dtype=np.int64)
     else:
-        g = np.asarray(groups)
+        try:
+            g = np.asarray(groups)
+        except ValueError:
+            raise ValueError("groups must be a 1-D array of integer labels") from None
         if g.shape != t.shape or g.dtype.kind not in "iu":
             raise ValueError(f"groups must be integers of the same length as times, got {g.dtype} of shape {g.shape}")
         g = g.astype(np.int64)

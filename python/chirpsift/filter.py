@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import choice, complex_array, nonnegative_scalar, positive_scalar, psd_array, real_array
+from ._validate import choice, complex_array, dtype_choice, finite_output, nonnegative_scalar, positive_scalar, psd_array, real_array
 
 __all__ = ["sigma", "snr_series", "correlate"]
 
@@ -66,7 +66,7 @@ def sigma(templates, psd, df, f_low, f_high=None):
     dfv = positive_scalar("df", df)
     h, h2 = _templates(templates, p.shape[0])
     fl, fh = _band(p, dfv, f_low, f_high)
-    out = _core.sigma(h2, p, dfv, fl, fh)
+    out = finite_output(_core.sigma(h2, p, dfv, fl, fh), "templates or psd", " (norm beyond float64)")
     return float(out[0]) if h.ndim == 1 else out
 
 
@@ -111,10 +111,9 @@ def snr_series(data_fd, templates, psd, df, f_low, f_high=None, dtype=np.complex
     dfv = positive_scalar("df", df)
     _, h2 = _templates(templates, d.shape[0])
     fl, fh = _band(p, dfv, f_low, f_high)
-    dt = np.dtype(dtype)
-    if dt not in (np.dtype(np.complex64), np.dtype(np.complex128)):
-        raise TypeError(f"dtype must be complex64 or complex128, got {dt}")
-    return _core.snr_series(d, h2, p, dfv, fl, fh, dt == np.complex128)
+    dt = dtype_choice("dtype", dtype, (np.complex64, np.complex128))
+    out = _core.snr_series(d, h2, p, dfv, fl, fh, dt == np.complex128)
+    return finite_output(out, "data_fd, templates or psd", f" (the SNR does not fit in {dt.name}; try dtype=complex128)")
 
 
 def correlate(data, templates, mode="valid"):
@@ -144,5 +143,5 @@ def correlate(data, templates, mode="valid"):
     out = _core.correlate(
         np.ascontiguousarray(d, dtype=np.float64), np.ascontiguousarray(np.atleast_2d(t), dtype=np.float64), mode
     )
-    out = out.astype(out_dtype, copy=False)
+    out = finite_output(out.astype(out_dtype, copy=False), "data or templates", " (values too large)")
     return out[0] if t.ndim == 1 else out

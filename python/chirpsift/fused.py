@@ -9,13 +9,30 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import complex_array, positive_int, positive_scalar, psd_array
+from ._validate import broadcast, complex_array, positive_int, positive_scalar, psd_array, real_array
 from .waveform import _masses, _phase_order, _spins
 
 __all__ = ["filter_segment", "TRIGGER_COLUMNS"]
 
 #: Columns returned by :func:`filter_segment`.
 TRIGGER_COLUMNS = ("template", "index", "position", "snr", "phase", "sigma", "chisq", "chisq_dof")
+
+
+def _valid_range(valid, n):
+    """``(start, stop)`` integers with ``1 <= start < stop <= n - 1``."""
+    if valid is None:
+        return 1, n - 1
+    if isinstance(valid, (str, bytes, dict)) or not hasattr(valid, "__len__") or len(valid) != 2:
+        raise TypeError(f"valid must be a pair of sample indices (start, stop), got {valid!r}")
+    out = []
+    for v in valid:
+        if isinstance(v, (bool, np.bool_)) or not isinstance(v, (int, np.integer)):
+            raise TypeError(f"valid must hold two integers, got {valid!r}")
+        out.append(int(v))
+    start, stop = out
+    if not (1 <= start < stop <= n - 1):
+        raise ValueError(f"valid must satisfy 1 <= start < stop <= {n - 1}, got ({start}, {stop})")
+    return start, stop
 
 
 def filter_segment(
@@ -99,7 +116,9 @@ def filter_segment(
     dfv = positive_scalar("df", df)
     a, b = _masses(m1, m2)
     c1, c2 = _spins(chi1, chi2)
-    m1v, m2v, c1v, c2v = (np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in np.broadcast_arrays(a, b, c1, c2))
+    m1v, m2v, c1v, c2v = (
+        np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in broadcast(("m1", "m2", "chi1", "chi2"), (a, b, c1, c2))
+    )
     fl = positive_scalar("f_low", f_low)
     n = 2 * (d.shape[0] - 1)
     nyquist = (d.shape[0] - 1) * dfv
@@ -108,15 +127,19 @@ def filter_segment(
     if f_high is None:
         fh = _core.isco_frequency(np.ascontiguousarray(m1v + m2v))
     else:
-        fh = np.ascontiguousarray(np.broadcast_to(np.asarray(f_high, dtype=np.float64), m1v.shape))
+        fh = real_array("f_high", f_high, ndim=range(0, 2))
+        try:
+            fh = np.ascontiguousarray(np.broadcast_to(fh, m1v.shape), dtype=np.float64)
+        except ValueError:
+            raise ValueError(f"f_high must be a scalar or hold one value per template ({m1v.shape[0]}), got shape {fh.shape}") from None
     if not np.all(fh > fl):
         raise ValueError(f"f_high must exceed f_low={fl} Hz for every template, got min {fh.min()} Hz")
     thr = positive_scalar("snr_threshold", snr_threshold)
-    cl = positive_int("cluster_samples", cluster_samples, minimum=0)
-    bins = positive_int("chisq_bins", chisq_bins, minimum=2)
-    start, stop = (1, n - 1) if valid is None else (int(valid[0]), int(valid[1]))
-    if not (1 <= start < stop <= n - 1):
-        raise ValueError(f"valid must satisfy 1 <= start < stop <= {n - 1}, got ({start}, {stop})")
+    # A window longer than the segment clusters the whole segment, as n does.
+    cl = min(positive_int("cluster_samples", cluster_samples, minimum=0), n)
+    k_low = int(np.ceil(fl / dfv))
+    bins = positive_int("chisq_bins", chisq_bins, minimum=2, maximum=max(2, d.shape[0] - k_low))
+    start, stop = _valid_range(valid, n)
     if not np.isfinite(p[int(np.ceil(fl / dfv)):]).any():
         raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")
     return _core.search_segment(d, p, dfv, m1v, m2v, c1v, c2v, fh, _phase_order(phase_order), fl, thr, cl, bins, start, stop)

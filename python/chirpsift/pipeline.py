@@ -8,7 +8,7 @@ import warnings
 
 import numpy as np
 
-from ._validate import nonnegative_scalar, positive_int, positive_scalar, real_array
+from ._validate import nonnegative_scalar, positive_int, positive_scalar, psd_array, real_array, real_scalar
 from .bank import Bank
 from .clustering import cluster_in_time
 from .fused import filter_segment
@@ -57,7 +57,21 @@ def _check_strain(strain, sample_rate):
             f"strain has {idx.size} non-finite samples in {starts.size} run(s), the first at sample {starts[0]} "
             f"({starts[0] / sample_rate:g} s after t0); remove gaps or split the data into finite stretches"
         )
+    if not np.any(x):
+        raise ValueError("strain is identically zero: there is no noise to estimate a PSD from")
     return x
+
+
+def _check_psd_argument(psd):
+    if psd is None or callable(psd):
+        return psd
+    if isinstance(psd, str):
+        return psd  # validated by design_psd
+    if isinstance(psd, tuple):
+        if len(psd) != 2:
+            raise ValueError(f"psd given as a tuple must be (freqs, values), got {len(psd)} items")
+        return (real_array("psd", psd[0], ndim=1), psd_array("psd", psd[1], ndim=1))
+    return psd_array("psd", psd, ndim=1)
 
 
 def _segment_psd(psd, segment, sample_rate, n_freq, df, psd_segment_duration, f_low):
@@ -68,11 +82,13 @@ def _segment_psd(psd, segment, sample_rate, n_freq, df, psd_segment_duration, f_
     elif isinstance(psd, str):
         grid = design_psd(np.arange(n_freq) * df, psd)
     elif callable(psd):
-        grid = np.asarray(psd(np.arange(n_freq) * df), dtype=np.float64)
+        grid = psd_array("psd", psd(np.arange(n_freq) * df), ndim=1)
+        if grid.shape != (n_freq,):
+            raise ValueError(f"psd callable must return one value per frequency ({n_freq}), got shape {grid.shape}")
     elif isinstance(psd, tuple) and len(psd) == 2:
         grid = psd_to_grid(psd[0], psd[1], df, n_freq)
     else:
-        grid = np.asarray(psd, dtype=np.float64)
+        grid = psd
         if grid.shape != (n_freq,):
             raise ValueError(f"psd given as an array must have {n_freq} bins (the segment's rfft grid), got shape {grid.shape}")
     return truncate_inverse_psd(grid, sample_rate, psd_segment_duration, f_low)
@@ -131,8 +147,8 @@ def search(
         Number ``p`` of frequency bands of the chi-squared test (dof ``2p - 2``).
     gate_threshold : float, optional
         If set, samples whose whitened amplitude exceeds this are gated (zeroed over
-        ``gate_half_width`` s either side with ``gate_taper`` s inverse Tukey tapers)
-        before filtering. Gates are reported (a :class:`GatingWarning` and ``info``).
+        ``gate_half_width`` s either side with ``gate_taper`` s inverse Tukey tapers,
+        each at most ``psd_segment_duration``) before filtering. Gates are reported (a :class:`GatingWarning` and ``info``).
     psd_segment_duration : float, optional
         Welch segment length (s) and length of the truncated inverse-PSD filter.
     bank_cluster : bool, optional
@@ -175,9 +191,10 @@ def search(
     b = Bank.from_any(bank)
     if len(b) == 0:
         raise ValueError("bank must hold at least one template")
-    t_start = float(np.float64(t0))
-    if not math.isfinite(t_start):
-        raise ValueError(f"t0 must be finite, got {t0}")
+    t_start = real_scalar("t0", t0)
+    psd = _check_psd_argument(psd)
+    if not isinstance(bank_cluster, (bool, np.bool_)):
+        raise TypeError(f"bank_cluster must be True or False, got {bank_cluster!r}")
     fl = positive_scalar("f_low", f_low)
     if fl >= fs / 2:
         raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz of sample_rate={fs} Hz")
@@ -199,6 +216,10 @@ def search(
         raise ValueError(f"template {i} (m1={b.m1[i]}, m2={b.m2[i]}) ends below f_low={fl} Hz")
 
     max_duration = float(np.max(chirp_duration(b.m1, b.m2, fl))) * DURATION_MARGIN
+    if max_duration > n / fs:
+        raise ValueError(
+            f"templates last up to {max_duration:.4g} s from f_low={fl} Hz, longer than the {n / fs:g} s of strain; raise f_low"
+        )
     pad_start = int(math.ceil((max_duration + t_spec / 2) * fs)) + 1
     pad_end = int(math.ceil(t_spec / 2 * fs)) + 1
     try:
@@ -212,16 +233,19 @@ def search(
     gates: list[tuple[int, int]] = []
     if gate_threshold is not None:
         gthr = positive_scalar("gate_threshold", gate_threshold)
+        for name, value in (("gate_half_width", gate_half_width), ("gate_taper", gate_taper)):
+            if nonnegative_scalar(name, value) > t_spec:
+                raise ValueError(f"{name}={value} s is longer than psd_segment_duration={t_spec} s: gates are for short transients")
         gates = find_gates(x, fs, gthr, f_low=fl, psd_segment_duration=t_spec,
-                           half_width=nonnegative_scalar("gate_half_width", gate_half_width))
+                           half_width=float(gate_half_width))
         if gates:
-            x = apply_gates(x, fs, gates, taper=nonnegative_scalar("gate_taper", gate_taper))
+            x = apply_gates(x, fs, gates, taper=float(gate_taper))
             total = sum(bb - a for a, bb in gates) / fs
             warnings.warn(f"gated {len(gates)} interval(s), {total:g} s in all; see info['gates']", GatingWarning, stacklevel=2)
 
     df = fs / seg_len
     n_freq = seg_len // 2 + 1
-    cluster_samples = int(round(window * fs))
+    cluster_samples = int(round(min(window, n / fs) * fs))
     columns: dict[str, list[np.ndarray]] = {}
     bar = None
     if progress:

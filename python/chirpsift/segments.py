@@ -48,10 +48,10 @@ def plan_segments(n_samples: int, length: int, pad_start: int, pad_end: int) -> 
     stride = length - pad_start - pad_end
     if stride < 1:
         raise ValueError(
-            f"segments of {length} samples leave nothing to analyse after discarding {pad_start} + {pad_end} corrupted samples"
+            f"length={length} leaves nothing to analyse after discarding pad_start={pad_start} + pad_end={pad_end} samples"
         )
     if n_samples < length:
-        raise ValueError(f"data of {n_samples} samples is shorter than one segment of {length}")
+        raise ValueError(f"n_samples={n_samples} is shorter than one segment of length={length}")
     plans = []
     start = 0
     covered = pad_start

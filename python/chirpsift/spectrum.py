@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import choice, nonnegative_scalar, positive_scalar, positive_int, psd_array, real_array
+from ._validate import check_allocation, choice, finite_output, nonnegative_scalar, positive_int, positive_scalar, psd_array, real_array
 
 __all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "truncate_inverse_psd", "whiten"]
 
@@ -89,8 +89,10 @@ def welch(x, sample_rate, segment_duration=4.0, overlap=0.5, average="median", w
     if ov >= 1:
         raise ValueError(f"overlap must be below 1, got {ov}")
     choice("average", average, ("median", "mean"))
-    if detrend not in (False, None, "constant"):
+    if not (detrend is None or detrend is False or (isinstance(detrend, (bool, np.bool_)) and not detrend)
+            or (isinstance(detrend, str) and detrend == "constant")):
         raise ValueError(f"detrend must be False or 'constant', got {detrend!r}")
+    detrend = isinstance(detrend, str)
     nperseg = int(round(seg * fs))
     if nperseg < 2:
         raise ValueError(f"segment_duration={seg} s at sample_rate={fs} Hz gives {nperseg} samples; need at least 2")
@@ -101,7 +103,8 @@ def welch(x, sample_rate, segment_duration=4.0, overlap=0.5, average="median", w
     if step < 1:
         raise ValueError(f"overlap={ov} leaves no step between segments of {nperseg} samples")
     w = _welch_window(window, nperseg)
-    psd = _core.welch(np.atleast_2d(a), fs, step, w, detrend == "constant", average == "median")
+    psd = finite_output(_core.welch(np.atleast_2d(a), fs, step, w, detrend, average == "median"), "x",
+                        " (values too large for a float64 PSD)")
     freqs = np.arange(nperseg // 2 + 1) * (fs / nperseg)
     return freqs, (psd[0] if a.ndim == 1 else psd)
 
@@ -186,7 +189,9 @@ def psd_to_grid(freqs, psd, df, n_freq):
     if f.shape[0] >= 2 and not np.all(np.diff(f) > 0):
         i = int(np.argmax(np.diff(f) <= 0))
         raise ValueError(f"freqs must increase strictly, but freqs[{i + 1}]={f[i + 1]} <= freqs[{i}]={f[i]}")
-    return _core.psd_to_grid(f, p, positive_scalar("df", df), positive_int("n_freq", n_freq))
+    nf = positive_int("n_freq", n_freq)
+    check_allocation("n_freq", nf, 8)
+    return _core.psd_to_grid(f, p, positive_scalar("df", df), nf)
 
 
 def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
@@ -273,5 +278,6 @@ def whiten(x, psd, sample_rate, f_low=None):
     fl = 0.0 if f_low is None else nonnegative_scalar("f_low", f_low)
     if fl >= fs / 2:
         raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz")
-    out = _core.whiten(x2, np.ascontiguousarray(p2), fs, fl)
+    out = finite_output(_core.whiten(x2, np.ascontiguousarray(p2), fs, fl), "x or psd",
+                        " (x too large or psd too small for float64)")
     return out[0] if a.ndim == 1 else out

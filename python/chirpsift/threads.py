@@ -19,7 +19,7 @@ def set_threads(n):
         thread count: work is split per template or channel and reduced in a fixed
         order.
     """
-    _core.set_threads(positive_int("n", n))
+    _core.set_threads(positive_int("n", n, maximum=4096))
 
 
 def get_threads():

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import positive_int, positive_scalar, real_array
+from ._validate import broadcast, check_allocation, dtype_choice, finite_output, positive_int, positive_scalar, real_array
 
 __all__ = ["taylorf2", "chirp_duration", "isco_frequency", "T_SUN", "MPC", "C_SI"]
 
@@ -60,7 +60,7 @@ def isco_frequency(m1, m2):
         ``r = 6 G M / c^2`` (about 4400 Hz / (M / Msun)).
     """
     a, b = _masses(m1, m2)
-    m = np.broadcast_arrays(a, b)
+    m = broadcast(("m1", "m2"), (a, b))
     total = np.ascontiguousarray((m[0] + m[1]).reshape(-1))
     out = _core.isco_frequency(total).reshape(m[0].shape)
     return float(out) if out.ndim == 0 else out
@@ -98,10 +98,14 @@ def chirp_duration(m1, m2, f_low, phase_order=7):
     """
     a, b = _masses(m1, m2)
     fl = positive_scalar("f_low", f_low)
-    m = np.broadcast_arrays(a, b)
-    out = _core.chirp_duration(
-        np.ascontiguousarray(m[0].reshape(-1)), np.ascontiguousarray(m[1].reshape(-1)), fl, _phase_order(phase_order)
-    ).reshape(m[0].shape)
+    m = broadcast(("m1", "m2"), (a, b))
+    m1v, m2v = (np.ascontiguousarray(x.reshape(-1)) for x in m)
+    above = fl >= _core.isco_frequency(np.ascontiguousarray(m1v + m2v))
+    if above.any():
+        i = int(np.argmax(above))
+        raise ValueError(f"f_low={fl} Hz is at or above the ISCO frequency of m1={m1v[i]}, m2={m2v[i]}: no inspiral from there")
+    out = _core.chirp_duration(m1v, m2v, fl, _phase_order(phase_order)).reshape(m[0].shape)
+    finite_output(out, "m1, m2 or f_low", " (parameters too extreme for the post-Newtonian series)")
     return float(out) if out.ndim == 0 else out
 
 
@@ -175,19 +179,15 @@ def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None, dist
     """
     a, b = _masses(m1, m2)
     c1, c2 = _spins(chi1, chi2)
-    try:
-        arrays = np.broadcast_arrays(a, b, c1, c2)
-    except ValueError as exc:
-        raise ValueError(f"m1, m2, chi1, chi2 must broadcast together, got shapes {a.shape}, {b.shape}, {c1.shape}, {c2.shape}") from exc
+    arrays = broadcast(("m1", "m2", "chi1", "chi2"), (a, b, c1, c2))
     m1v, m2v, c1v, c2v = (np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in arrays)
     fl = positive_scalar("f_low", f_low)
     dfv = positive_scalar("df", df)
     nf = positive_int("n_freq", n_freq)
     dist = positive_scalar("distance", distance)
     order = _phase_order(phase_order)
-    dt = np.dtype(dtype)
-    if dt not in (np.dtype(np.complex64), np.dtype(np.complex128)):
-        raise TypeError(f"dtype must be complex64 or complex128, got {dt}")
+    dt = dtype_choice("dtype", dtype, (np.complex64, np.complex128))
+    check_allocation("n_freq", m1v.shape[0] * nf, dt.itemsize)
     f_top = (nf - 1) * dfv
     if fl >= f_top:
         raise ValueError(f"f_low={fl} Hz must be below the highest bin frequency (n_freq - 1) * df = {f_top} Hz")
@@ -202,4 +202,5 @@ def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None, dist
     bad = ~(fh > fl)
     if bad.any():
         raise ValueError(f"f_high must exceed f_low={fl} Hz, got {fh[np.argmax(bad)]} Hz (template {int(np.argmax(bad))})")
-    return _core.taylorf2(m1v, m2v, c1v, c2v, fl, dfv, nf, np.ascontiguousarray(fh), dist, order, dt == np.complex128)
+    out = _core.taylorf2(m1v, m2v, c1v, c2v, fl, dfv, nf, np.ascontiguousarray(fh), dist, order, dt == np.complex128)
+    return finite_output(out, "m1, m2, distance or df", f" (template values do not fit in {dt.name})")

@@ -177,11 +177,17 @@ impl DesignCurve {
         }
     }
 
-    /// One-sided PSD in 1/Hz at frequency `f` (Hz).
+    /// One-sided PSD in 1/Hz at frequency `f` (Hz); `inf` where the fit overflows
+    /// (every fit grows without bound at high frequency).
     pub fn psd(self, f: f64) -> f64 {
         if !(f >= self.f_min()) || !f.is_finite() {
             return f64::INFINITY;
         }
+        let s = self.fit(f);
+        if s.is_nan() { f64::INFINITY } else { s }
+    }
+
+    fn fit(self, f: f64) -> f64 {
         match self {
             DesignCurve::Gen1FourKm => {
                 let x = f / 150.0;
