@@ -184,7 +184,11 @@ impl DesignCurve {
             return f64::INFINITY;
         }
         let s = self.fit(f);
-        if s.is_nan() { f64::INFINITY } else { s }
+        if s.is_nan() {
+            f64::INFINITY
+        } else {
+            s
+        }
     }
 
     fn fit(self, f: f64) -> f64 {
