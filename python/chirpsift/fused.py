@@ -22,7 +22,11 @@ def _valid_range(valid, n):
     """``(start, stop)`` integers with ``1 <= start < stop <= n - 1``."""
     if valid is None:
         return 1, n - 1
-    if isinstance(valid, (str, bytes, dict)) or not hasattr(valid, "__len__") or len(valid) != 2:
+    try:
+        ndim = np.ndim(valid)
+    except ValueError:  # ragged nesting
+        ndim = -1
+    if isinstance(valid, (str, bytes, dict)) or ndim != 1 or len(valid) != 2:
         raise TypeError(f"valid must be a pair of sample indices (start, stop), got {valid!r}")
     out = []
     for v in valid:
