@@ -480,6 +480,50 @@ fn bench_inverse_fft(py: Python<'_>, n: usize, repeats: usize) -> PyResult<f64> 
     }))
 }
 
+/// Seconds per template to generate `m1[i], m2[i]` (non-spinning) on `n_freq` bins
+/// into one reused complex64 buffer, as the fused kernel does, on the calling thread:
+/// the benchmarks' measure of template generation alone.
+#[pyfunction]
+fn bench_template_generation<'py>(
+    py: Python<'py>,
+    m1: PyReadonlyArray1<'py, f64>,
+    m2: PyReadonlyArray1<'py, f64>,
+    f_low: f64,
+    df: f64,
+    n_freq: usize,
+    repeats: usize,
+) -> PyResult<f64> {
+    let (a, b) = (m1.as_slice()?, m2.as_slice()?);
+    if a.is_empty() || a.len() != b.len() || repeats == 0 {
+        return Err(PyValueError::new_err("m1 and m2 must be non-empty and of equal length, repeats positive"));
+    }
+    let models = a
+        .iter()
+        .zip(b)
+        .map(|(&x, &y)| {
+            let bin = waveform::Binary::new(x, y, 0.0, 0.0)?;
+            Ok((waveform::TaylorF2::new(&bin, 1.0, 7)?, waveform::isco_frequency(x + y)))
+        })
+        .collect::<CoreResult<Vec<_>>>()
+        .map_err(|e| PyValueError::new_err(e.to_string()))?;
+    Ok(py.detach(|| {
+        let mut buf = vec![Complex32::new(0.0, 0.0); n_freq];
+        let start = std::time::Instant::now();
+        for _ in 0..repeats {
+            for (model, f_high) in &models {
+                let (lo, hi) = filter::band(f_low, Some(*f_high), df, n_freq);
+                model.for_each_block(lo, hi, df, |k0, block| {
+                    for (o, h) in buf[k0..k0 + block.len()].iter_mut().zip(block) {
+                        *o = Complex32::new(h.re as f32, h.im as f32);
+                    }
+                });
+            }
+        }
+        std::hint::black_box(&buf);
+        start.elapsed().as_secs_f64() / (repeats * models.len()) as f64
+    }))
+}
+
 #[pymodule]
 fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(set_threads, m)?)?;
@@ -497,6 +541,7 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(correlate, m)?)?;
     m.add_function(wrap_pyfunction!(search_segment, m)?)?;
     m.add_function(wrap_pyfunction!(bench_inverse_fft, m)?)?;
+    m.add_function(wrap_pyfunction!(bench_template_generation, m)?)?;
     m.add("T_SUN", waveform::T_SUN)?;
     m.add("MPC", waveform::MPC)?;
     m.add("C_SI", waveform::C_SI)?;
