@@ -391,70 +391,20 @@ fn search_segment<'py>(
         search::search_segment(&segment, &templates, &settings)
     })?;
     let out = pyo3::types::PyDict::new(py);
-    out.set_item(
-        "template",
-        triggers
-            .iter()
-            .map(|t| t.template as i64)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "index",
-        triggers
-            .iter()
-            .map(|t| t.index as i64)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "position",
-        triggers
-            .iter()
-            .map(|t| t.position)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "snr",
-        triggers
-            .iter()
-            .map(|t| t.snr)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "phase",
-        triggers
-            .iter()
-            .map(|t| t.phase)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "sigma",
-        triggers
-            .iter()
-            .map(|t| t.sigma)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "chisq",
-        triggers
-            .iter()
-            .map(|t| t.chisq)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
-    out.set_item(
-        "chisq_dof",
-        triggers
-            .iter()
-            .map(|t| t.chisq_dof as i64)
-            .collect::<Vec<_>>()
-            .into_pyarray(py),
-    )?;
+    let ints = |f: fn(&search::Trigger) -> i64| {
+        triggers.iter().map(f).collect::<Vec<_>>().into_pyarray(py)
+    };
+    let floats = |f: fn(&search::Trigger) -> f64| {
+        triggers.iter().map(f).collect::<Vec<_>>().into_pyarray(py)
+    };
+    out.set_item("template", ints(|t| t.template as i64))?;
+    out.set_item("index", ints(|t| t.index as i64))?;
+    out.set_item("position", floats(|t| t.position))?;
+    out.set_item("snr", floats(|t| t.snr))?;
+    out.set_item("phase", floats(|t| t.phase))?;
+    out.set_item("sigma", floats(|t| t.sigma))?;
+    out.set_item("chisq", floats(|t| t.chisq))?;
+    out.set_item("chisq_dof", ints(|t| t.chisq_dof as i64))?;
     Ok(out)
 }
 
@@ -495,14 +445,19 @@ fn bench_template_generation<'py>(
 ) -> PyResult<f64> {
     let (a, b) = (m1.as_slice()?, m2.as_slice()?);
     if a.is_empty() || a.len() != b.len() || repeats == 0 {
-        return Err(PyValueError::new_err("m1 and m2 must be non-empty and of equal length, repeats positive"));
+        return Err(PyValueError::new_err(
+            "m1 and m2 must be non-empty and of equal length, repeats positive",
+        ));
     }
     let models = a
         .iter()
         .zip(b)
         .map(|(&x, &y)| {
             let bin = waveform::Binary::new(x, y, 0.0, 0.0)?;
-            Ok((waveform::TaylorF2::new(&bin, 1.0, 7)?, waveform::isco_frequency(x + y)))
+            Ok((
+                waveform::TaylorF2::new(&bin, 1.0, 7)?,
+                waveform::isco_frequency(x + y),
+            ))
         })
         .collect::<CoreResult<Vec<_>>>()
         .map_err(|e| PyValueError::new_err(e.to_string()))?;

@@ -185,15 +185,7 @@ impl TaylorF2 {
     /// Psi(f) in radians, evaluated directly (f64).
     #[inline]
     pub fn phase(&self, f: f64) -> f64 {
-        let v = (PI * self.m_sec * f).cbrt();
-        let lnv = v.ln();
-        let p = &self.psi;
-        // sum_k psi_k v^k + v^5 psi5 * 3 ln v + v^6 psi6_log ln v, by Horner.
-        let tail = p[5] + self.psi5_log * lnv + v * (p[6] + self.psi6_log * lnv + v * p[7]);
-        let series = p[0] + v * (p[1] + v * (p[2] + v * (p[3] + v * (p[4] + v * tail))));
-        let v2 = v * v;
-        let v5 = v2 * v2 * v;
-        -PI / 4.0 + self.newtonian * series / v5
+        self.phase_amplitude(f).0
     }
 
     /// |h~(f)|: the Newtonian stationary-phase amplitude.
@@ -305,6 +297,7 @@ impl TaylorF2 {
         let v = (PI * self.m_sec * f).cbrt();
         let lnv = v.ln();
         let p = &self.psi;
+        // sum_k psi_k v^k + v^5 psi5 * 3 ln v + v^6 psi6_log ln v, by Horner.
         let tail = p[5] + self.psi5_log * lnv + v * (p[6] + self.psi6_log * lnv + v * p[7]);
         let series = p[0] + v * (p[1] + v * (p[2] + v * (p[3] + v * (p[4] + v * tail))));
         let v2 = v * v;
