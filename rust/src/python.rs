@@ -253,10 +253,8 @@ fn isco_frequency<'py>(
     m_total: PyReadonlyArray1<'py, f64>,
 ) -> PyResult<Bound<'py, PyArray1<f64>>> {
     let m = m_total.as_slice()?;
-    Ok(m.iter()
-        .map(|&x| waveform::isco_frequency(x))
-        .collect::<Vec<f64>>()
-        .into_pyarray(py))
+    let out = run(py, || Ok(m.iter().map(|&x| waveform::isco_frequency(x)).collect::<Vec<f64>>()))?;
+    Ok(out.into_pyarray(py))
 }
 
 /// Dispatch over complex64 / complex128 template arrays.
