@@ -100,11 +100,12 @@ pub fn snr_series<T: Planned, H: AsComplex64>(
     let plan = fft::inverse::<T>(n);
     let zero = Complex::new(T::zero(), T::zero());
     let mut out = vec![zero; k_count * n];
+    let pool = crate::scratch::Pool::new(|| vec![zero; plan.get_inplace_scratch_len()]);
     out.par_chunks_mut(n)
         .zip(templates.par_chunks(n_freq))
         .zip(norms.par_iter())
         .for_each_init(
-            || vec![zero; plan.get_inplace_scratch_len()],
+            || pool.take(),
             |scratch, ((row, h), &s)| {
                 let scale = 4.0 * df / s;
                 for k in k_lo..k_hi {
@@ -167,10 +168,11 @@ pub fn correlate(data: &[f64], templates: &[f64], m: usize, mode: Mode) -> Resul
     let k_count = templates.len() / m;
     let mut out = vec![0.0f64; k_count * len];
     let inv = 1.0 / nfft as f64;
+    let pool = crate::scratch::Pool::new(|| RealScratch::<f64>::new(nfft));
     out.par_chunks_mut(len.max(1))
         .zip(templates.par_chunks(m))
         .for_each_init(
-            || RealScratch::<f64>::new(nfft),
+            || pool.take(),
             |fft, (row, t)| {
                 fft.time[..m].copy_from_slice(t);
                 fft.time[m..].iter_mut().for_each(|x| *x = 0.0);

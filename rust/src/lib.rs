@@ -6,6 +6,7 @@
 pub mod error;
 pub mod fft;
 pub mod filter;
+pub mod scratch;
 pub mod search;
 pub mod spectrum;
 pub mod threads;

@@ -141,11 +141,12 @@ fn whiten<'py>(
     let out = run(py, || {
         use rayon::prelude::*;
         let mut out = vec![0.0f64; channels * n];
+        let pool = crate::scratch::Pool::new(|| crate::fft::RealScratch::<f64>::new(n));
         out.par_chunks_mut(n)
             .zip(xs.par_chunks(n))
             .enumerate()
             .for_each_init(
-                || crate::fft::RealScratch::<f64>::new(n),
+                || pool.take(),
                 |fft, (c, (o, row))| {
                     let p = if per_channel {
                         &ps[c * n_freq..(c + 1) * n_freq]
@@ -253,7 +254,11 @@ fn isco_frequency<'py>(
     m_total: PyReadonlyArray1<'py, f64>,
 ) -> PyResult<Bound<'py, PyArray1<f64>>> {
     let m = m_total.as_slice()?;
-    let out = run(py, || Ok(m.iter().map(|&x| waveform::isco_frequency(x)).collect::<Vec<f64>>()))?;
+    let out = run(py, || {
+        Ok(m.iter()
+            .map(|&x| waveform::isco_frequency(x))
+            .collect::<Vec<f64>>())
+    })?;
     Ok(out.into_pyarray(py))
 }
 

@@ -238,14 +238,15 @@ pub fn search_segment(
         .max()
         .unwrap_or(0);
     let zero = Complex32::new(0.0, 0.0);
+    let pool = crate::scratch::Pool::new(|| Scratch {
+        buf: vec![zero; n],
+        fft_scratch: vec![zero; scratch_len],
+    });
     let per_template: Vec<Vec<Trigger>> = templates
         .par_iter()
         .enumerate()
         .map_init(
-            || Scratch {
-                buf: vec![zero; n],
-                fft_scratch: vec![zero; scratch_len],
-            },
+            || pool.take(),
             |scratch, (i, t)| filter_one(segment, t, i, s, &plans, scratch),
         )
         .collect();

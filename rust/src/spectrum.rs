@@ -63,8 +63,9 @@ pub fn welch(
 
     // One periodogram per segment, row-major (segment, frequency).
     let mut grams = vec![0.0f64; n_seg * n_freq];
+    let pool = crate::scratch::Pool::new(|| RealScratch::<f64>::new(nperseg));
     grams.par_chunks_mut(n_freq).enumerate().for_each_init(
-        || RealScratch::<f64>::new(nperseg),
+        || pool.take(),
         |fft, (s, row)| {
             let seg = &x[s * step..s * step + nperseg];
             let mean = if detrend {

@@ -1,0 +1,92 @@
+//! Reusable per-job scratch buffers for rayon's `map_init` / `for_each_init`.
+//!
+//! rayon calls the init closure once per split job, not once per thread, and with
+//! work stealing a call can split many times. Large buffers (a segment-length FFT
+//! buffer is several MiB) would then be allocated and page-faulted again and again;
+//! a pool hands finished jobs' buffers to the next job instead.
+
+use std::ops::{Deref, DerefMut};
+use std::sync::Mutex;
+
+/// Buffers made by `make`, recycled between jobs of one parallel call.
+pub struct Pool<T, F: Fn() -> T> {
+    free: Mutex<Vec<T>>,
+    make: F,
+}
+
+impl<T, F: Fn() -> T> Pool<T, F> {
+    pub fn new(make: F) -> Self {
+        Pool {
+            free: Mutex::new(Vec::new()),
+            make,
+        }
+    }
+
+    /// A buffer for one job; it returns to the pool when the job drops it.
+    pub fn take(&self) -> Lease<'_, T, F> {
+        let item = self
+            .free
+            .lock()
+            .unwrap_or_else(|e| e.into_inner())
+            .pop()
+            .unwrap_or_else(|| (self.make)());
+        Lease {
+            pool: self,
+            item: Some(item),
+        }
+    }
+}
+
+/// A buffer on loan from a [`Pool`].
+pub struct Lease<'a, T, F: Fn() -> T> {
+    pool: &'a Pool<T, F>,
+    item: Option<T>,
+}
+
+impl<T, F: Fn() -> T> Deref for Lease<'_, T, F> {
+    type Target = T;
+    fn deref(&self) -> &T {
+        self.item.as_ref().expect("present until drop")
+    }
+}
+
+impl<T, F: Fn() -> T> DerefMut for Lease<'_, T, F> {
+    fn deref_mut(&mut self) -> &mut T {
+        self.item.as_mut().expect("present until drop")
+    }
+}
+
+impl<T, F: Fn() -> T> Drop for Lease<'_, T, F> {
+    fn drop(&mut self) {
+        if let Some(item) = self.item.take() {
+            self.pool
+                .free
+                .lock()
+                .unwrap_or_else(|e| e.into_inner())
+                .push(item);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rayon::prelude::*;
+    use std::sync::atomic::{AtomicUsize, Ordering};
+
+    #[test]
+    fn buffers_are_reused_across_jobs() {
+        let made = AtomicUsize::new(0);
+        let pool = Pool::new(|| {
+            made.fetch_add(1, Ordering::SeqCst);
+            vec![0u8; 16]
+        });
+        let sum: usize = (0..10_000usize)
+            .into_par_iter()
+            .map_init(|| pool.take(), |buf, i| buf.len() + i % 2)
+            .sum();
+        assert_eq!(sum, 10_000 * 16 + 5_000);
+        // At most one live buffer per worker thread at any time.
+        assert!(made.load(Ordering::SeqCst) <= rayon::current_num_threads());
+    }
+}
