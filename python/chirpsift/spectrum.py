@@ -70,9 +70,8 @@ def welch(x, sample_rate, segment_duration=4.0, overlap=0.5, average="median", w
     ----------
     .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of
        power spectra", IEEE Trans. Audio Electroacoust. 15, 70 (1967).
-    .. [2] B. Allen et al., "FINDCHIRP: an algorithm for detection of gravitational
-       waves from inspiraling compact binaries", Phys. Rev. D 85, 122006 (2012),
-       arXiv:gr-qc/0509116 (median PSD estimate and its bias).
+    .. [2] B. Allen et al., Phys. Rev. D 85, 122006 (2012), arXiv:gr-qc/0509116
+       (median PSD estimate and its bias).
 
     Examples
     --------

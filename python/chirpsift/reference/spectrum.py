@@ -43,9 +43,8 @@ def median_bias(n):
     References
     ----------
     .. [1] Allen, B., Anderson, W. G., Brady, P. R., Brown, D. A. and
-       Creighton, J. D. E. 2012, "FINDCHIRP: an algorithm for detection of
-       gravitational waves from inspiraling compact binaries", PRD 85,
-       122006, arXiv:gr-qc/0509116 (appendix on median PSD estimation).
+       Creighton, J. D. E. 2012, PRD 85, 122006, arXiv:gr-qc/0509116
+       (appendix on median PSD estimation).
     """
     n = int(n)
     if n < 1:
