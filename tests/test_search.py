@@ -160,3 +160,19 @@ def test_signals_at_segment_joins_are_found_exactly_once():
     trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=seg, snr_threshold=15.0, cluster_window=0.5)
     assert len(trig) == len(times)
     np.testing.assert_allclose(np.sort(trig["time"]), np.sort(times), atol=1.0 / FS)
+
+
+def test_gates_found_in_every_whitening_block_and_nowhere_else():
+    # Gating whitens block by block (64 PSD segments each). Gaussian noise exceeds 6
+    # standard deviations with probability 2e-9 per sample (erfc(6 / sqrt 2), scipy
+    # free: common practice), so ~0.001 false gates are expected in 600 s at 1024 Hz.
+    from chirpsift.gating import find_gates
+
+    x = _data(10, duration=600.0)
+    t = np.arange(x.size) / FS
+    for t0 in (100.0, 430.0):  # different blocks
+        x = x + 5e-20 * np.exp(-(((t - t0) / 0.01) ** 2)) * np.sin(2 * np.pi * 150 * t)
+    gates = find_gates(x, FS, 6.0, f_low=30.0, psd_segment_duration=4.0)
+    assert len(gates) == 2
+    for (a, b), t0 in zip(gates, (100.0, 430.0)):
+        assert a / FS < t0 < b / FS

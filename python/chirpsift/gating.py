@@ -9,13 +9,49 @@ from .spectrum import psd_to_grid, truncate_inverse_psd, welch, whiten
 __all__ = ["find_gates", "apply_gates"]
 
 
+#: Whitening block length for gating, in units of ``psd_segment_duration``.
+BLOCK_SEGMENTS = 64
+
+
+def _loud_samples(strain, sample_rate, threshold, f_low, psd_segment_duration):
+    """Indices whose whitened amplitude exceeds ``threshold``, block by block.
+
+    Each block of ``BLOCK_SEGMENTS * psd_segment_duration`` is whitened with its own
+    median PSD (so slow changes of the noise level are followed and memory stays
+    bounded on long data), padded by ``psd_segment_duration`` of neighbouring data
+    so the truncated whitening filter's wrap-around never reaches the block.
+    """
+    n = strain.shape[0]
+    core = int(round(BLOCK_SEGMENTS * psd_segment_duration * sample_rate))
+    pad = int(round(psd_segment_duration * sample_rate))
+    edge = pad // 2  # the data's own ends: corrupted, never examined
+    loud = []
+    for start in range(0, n, core):
+        lo, hi = max(0, start - pad), min(n, start + core + pad)
+        if (hi - lo) % 2:  # the truncation works on rfft grids of even length
+            if lo > 0:
+                lo -= 1
+            else:
+                hi -= 1
+        block = strain[lo:hi]
+        m = block.shape[0]
+        freqs, psd = welch(block, sample_rate, psd_segment_duration, average="median")
+        grid = psd_to_grid(freqs, psd, sample_rate / m, m // 2 + 1)
+        smooth = truncate_inverse_psd(grid, sample_rate, psd_segment_duration, f_low)
+        white = whiten(block, smooth, sample_rate, f_low)
+        a, b = max(start, edge), min(start + core, n - edge)
+        if b > a:
+            loud.append(np.flatnonzero(np.abs(white[a - lo:b - lo]) > threshold) + a)
+    return np.concatenate(loud) if loud else np.zeros(0, dtype=int)
+
+
 def find_gates(strain, sample_rate, threshold, *, f_low, psd_segment_duration=4.0, half_width=0.25):
     """Sample intervals around whitened samples louder than ``threshold``.
 
     Parameters
     ----------
     strain : ndarray, shape (n,)
-        Data (finite).
+        Data (finite), at least one ``psd_segment_duration`` long.
     sample_rate : float
         Hz.
     threshold : float
@@ -23,9 +59,10 @@ def find_gates(strain, sample_rate, threshold, *, f_low, psd_segment_duration=4.
     f_low : float
         Whitening low-frequency cutoff (Hz).
     psd_segment_duration : float
-        Welch segment length (s) for the whole-data median PSD, also the length of
-        the truncated whitening filter; the first and last half of it are not
-        examined (they are corrupted by the circular filter).
+        Welch segment length (s) of the median PSD, also the length of the truncated
+        whitening filter. Data are whitened in blocks of 64 such lengths, each with its
+        own PSD; the first and last half filter length of the data are not examined
+        (they are corrupted by the circular filter).
     half_width : float
         Seconds zeroed on either side of each loud sample.
 
@@ -35,14 +72,7 @@ def find_gates(strain, sample_rate, threshold, *, f_low, psd_segment_duration=4.
         Merged, sorted half-open sample intervals to zero.
     """
     n = strain.shape[0]
-    freqs, psd = welch(strain, sample_rate, psd_segment_duration, average="median")
-    grid = psd_to_grid(freqs, psd, sample_rate / n, n // 2 + 1)
-    if n % 2 == 1:
-        grid = np.append(grid, grid[-1])  # truncation works on even-length grids
-    smooth = truncate_inverse_psd(grid, sample_rate, psd_segment_duration, f_low)[: n // 2 + 1]
-    white = whiten(strain, smooth, sample_rate, f_low)
-    edge = int(round(psd_segment_duration * sample_rate / 2))
-    loud = np.flatnonzero(np.abs(white[edge:n - edge]) > threshold) + edge
+    loud = _loud_samples(strain, sample_rate, threshold, f_low, psd_segment_duration)
     hw = int(round(half_width * sample_rate))
     gates: list[tuple[int, int]] = []
     for i in loud:
