@@ -176,3 +176,29 @@ def test_gates_found_in_every_whitening_block_and_nowhere_else():
     assert len(gates) == 2
     for (a, b), t0 in zip(gates, (100.0, 430.0)):
         assert a / FS < t0 < b / FS
+
+
+def test_noise_only_trigger_rate_matches_gaussian_expectation():
+    # Through the whole pipeline (segments, PSD truncation, clustering, merging), noise
+    # triggers above u = 4.5 follow Rice's up-crossing rate of the SNR envelope,
+    # u sqrt(Delta / 2 pi) exp(-u^2 / 2) per template (Rice 1945, from memory), summed
+    # over templates and the analysed time. The PSD is given: an estimated one inflates
+    # the SNR variance (see search's Notes). Poisson counting error, 4 sigma.
+    bank = cs.Bank.from_any({"m1": [6.0, 10.0, 14.0], "m2": [5.0, 8.0, 10.0]})
+    u = 4.5
+    x = _data(21, duration=1024.0)
+    trig, info = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, psd="gen2-zero-detuned",
+                           snr_threshold=u, cluster_window=0.05, full_output=True)
+    start, stop = info["analysed"][0]
+    n = int(64 * FS)
+    f = np.arange(n // 2 + 1) * FS / n
+    psd = cs.design_psd(f)
+    expected = 0.0
+    for m1, m2 in zip(bank.m1, bank.m2):
+        h = cs.taylorf2(m1, m2, f_low=30.0, df=FS / n, n_freq=f.size, dtype=np.complex128)[0]
+        w = np.abs(h) ** 2 * np.where(np.isfinite(psd), 1 / psd, 0.0)
+        w /= w.sum()
+        omega = 2 * np.pi * f
+        delta = (w * omega**2).sum() - (w * omega).sum() ** 2
+        expected += (stop - start) * u * np.sqrt(delta / (2 * np.pi)) * np.exp(-u * u / 2)
+    assert abs(len(trig) - expected) < 4 * np.sqrt(expected), (len(trig), expected)
