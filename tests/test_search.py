@@ -122,6 +122,7 @@ def test_bank_clustering_keeps_one_trigger_per_window():
         (dict(f_low=30.0, segment_duration=4.0), "too short"),
         (dict(f_low=30.0, snr_threshold=-1.0), "snr_threshold"),
         (dict(f_low=30.0, chisq_bins=1), "chisq_bins"),
+        (dict(f_low=30.0, psd_duration=32.0), "psd_duration"),
     ],
 )
 def test_search_rejects_bad_settings(kwargs, match):
@@ -178,17 +179,20 @@ def test_gates_found_in_every_whitening_block_and_nowhere_else():
         assert a / FS < t0 < b / FS
 
 
-def test_noise_only_trigger_rate_matches_gaussian_expectation():
+@pytest.mark.parametrize("psd_kwargs", [dict(psd="gen2-zero-detuned"), dict(psd=None, psd_duration=1024.0)],
+                         ids=["known-psd", "estimated-from-1024s"])
+def test_noise_only_trigger_rate_matches_gaussian_expectation(psd_kwargs):
     # Through the whole pipeline (segments, PSD truncation, clustering, merging), noise
     # triggers above u = 4.5 follow Rice's up-crossing rate of the SNR envelope,
     # u sqrt(Delta / 2 pi) exp(-u^2 / 2) per template (Rice 1945, from memory), summed
-    # over templates and the analysed time. The PSD is given: an estimated one inflates
-    # the SNR variance (see search's Notes). Poisson counting error, 4 sigma.
+    # over templates and the analysed time. The PSD is given, or estimated from all
+    # 1024 s (a PSD from few averages inflates the SNR variance: see search's Notes).
+    # Poisson counting error, 4 sigma.
     bank = cs.Bank.from_any({"m1": [6.0, 10.0, 14.0], "m2": [5.0, 8.0, 10.0]})
     u = 4.5
     x = _data(21, duration=1024.0)
-    trig, info = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, psd="gen2-zero-detuned",
-                           snr_threshold=u, cluster_window=0.05, full_output=True)
+    trig, info = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=u, cluster_window=0.05,
+                           full_output=True, **psd_kwargs)
     start, stop = info["analysed"][0]
     n = int(64 * FS)
     f = np.arange(n // 2 + 1) * FS / n

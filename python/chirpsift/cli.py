@@ -49,6 +49,7 @@ _SEARCH_ARGS = (
     "chisq_bins",
     "gate_threshold",
     "psd_segment_duration",
+    "psd_duration",
     "bank_cluster",
 )
 
@@ -150,6 +151,8 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--chisq-bins", type=_positive_int, metavar="P", help="number of chi-squared frequency bands")
     g.add_argument("--gate-threshold", type=_positive_float, metavar="X", help="threshold for gating loud glitches")
     g.add_argument("--psd-segment-duration", type=_positive_float, metavar="S", help="Welch segment length, s")
+    g.add_argument("--psd-duration", type=_positive_float, metavar="S",
+                   help="seconds of data per PSD estimate, centred on each segment (default: the segment)")
     g.add_argument(
         "--bank-cluster",
         action=argparse.BooleanOptionalAction,

@@ -17,6 +17,7 @@ A configuration file has up to two tables, with kebab-case keys::
     chisq-bins = 16
     gate-threshold = 50.0
     psd-segment-duration = 4.0   # s
+    psd-duration = 1024.0        # s of data per PSD estimate
     bank-cluster = false
 
 The ``[search]`` keys map to the keyword arguments of :func:`chirpsift.search` with
@@ -43,6 +44,7 @@ SEARCH_KEYS: dict[str, tuple[str, str]] = {
     "chisq-bins": ("chisq_bins", "count"),
     "gate-threshold": ("gate_threshold", "positive"),
     "psd-segment-duration": ("psd_segment_duration", "positive"),
+    "psd-duration": ("psd_duration", "positive"),
     "bank-cluster": ("bank_cluster", "bool"),
 }
 INPUT_KEYS: dict[str, tuple[str, str]] = {

@@ -74,10 +74,11 @@ def _check_psd_argument(psd):
     return psd_array("psd", psd, ndim=1)
 
 
-def _segment_psd(psd, segment, sample_rate, n_freq, df, psd_segment_duration, f_low):
-    """PSD on the segment's grid, then inverse spectrum truncation."""
+def _segment_psd(psd, block, sample_rate, n_freq, df, psd_segment_duration, f_low):
+    """PSD on the segment's grid (estimated from ``block`` when ``psd`` is None), then
+    inverse spectrum truncation."""
     if psd is None:
-        freqs, est = welch(segment, sample_rate, psd_segment_duration, average="median")
+        freqs, est = welch(block, sample_rate, psd_segment_duration, average="median")
         grid = psd_to_grid(freqs, est, df, n_freq)
     elif isinstance(psd, str):
         grid = design_psd(np.arange(n_freq) * df, psd)
@@ -110,6 +111,7 @@ def search(
     gate_half_width=0.25,
     gate_taper=0.125,
     psd_segment_duration=4.0,
+    psd_duration=None,
     bank_cluster=False,
     phase_order=7,
     progress=False,
@@ -151,6 +153,12 @@ def search(
         each at most ``psd_segment_duration``) before filtering. Gates are reported (a :class:`GatingWarning` and ``info``).
     psd_segment_duration : float, optional
         Welch segment length (s) and length of the truncated inverse-PSD filter.
+    psd_duration : float, optional
+        Seconds of data, centred on each segment (shifted inward at the ends of the
+        data), from which its PSD is estimated when ``psd`` is None; default the
+        segment itself. Longer blocks average more and shrink the excess noise
+        variance an estimated PSD brings (Notes), at the cost of following changes
+        of the noise more slowly.
     bank_cluster : bool, optional
         After per-template clustering, also keep only the trigger with the largest
         reweighted SNR within ``cluster_window`` across the whole bank.
@@ -185,8 +193,8 @@ def search(
     the SNR in noise by roughly that relative scatter. Near threshold this matters:
     in 1,024 s of Gaussian noise at 1024 Hz with 64 s segments and 4 s Welch segments
     we counted 94 triggers above SNR 4.5 where the known PSD gave 76 and Rice's formula
-    predicts 70. Longer segments (more averages) shrink the effect; Gaussian-noise
-    rates should not be used as a false-alarm estimate either way.
+    predicts 70. A longer ``psd_duration`` (more averages) shrinks the effect;
+    Gaussian-noise rates should not be used as a false-alarm estimate either way.
 
     References
     ----------
@@ -213,6 +221,9 @@ def search(
     bins = positive_int("chisq_bins", chisq_bins, minimum=2)
     if t_spec * fs > seg_len:
         raise ValueError(f"psd_segment_duration={t_spec} s is longer than segment_duration={segment_duration} s")
+    psd_len = seg_len if psd_duration is None else int(round(positive_scalar("psd_duration", psd_duration) * fs))
+    if psd_len < seg_len:
+        raise ValueError(f"psd_duration={psd_duration} s must be at least segment_duration={segment_duration} s")
     n = x.shape[0]
     if n < seg_len:
         raise ValueError(
@@ -263,7 +274,8 @@ def search(
     try:
         for plan in plans:
             segment = x[plan.start:plan.start + plan.length]
-            seg_psd = _segment_psd(psd, segment, fs, n_freq, df, t_spec, fl)
+            lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, n - psd_len))
+            seg_psd = _segment_psd(psd, x[lo:lo + psd_len], fs, n_freq, df, t_spec, fl)
             data_fd = np.fft.rfft(segment) / fs
             found = filter_segment(
                 data_fd, seg_psd, df, b.m1, b.m2, b.chi1, b.chi2, f_low=fl, snr_threshold=thr,
