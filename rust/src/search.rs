@@ -603,33 +603,3 @@ mod tests {
         assert!(chisq.abs() < 1e-20);
     }
 }
-
-#[cfg(test)]
-mod timing {
-    use super::*;
-
-    /// Profiling probe (`cargo test --release -- --ignored --nocapture`); prints only.
-    #[test]
-    #[ignore]
-    fn segment_setup_cost() {
-        let n_freq = (1 << 19) + 1;
-        let data: Vec<Complex64> = (0..n_freq)
-            .map(|k| Complex64::new(1e-23 * (k as f64).sin(), 1e-23))
-            .collect();
-        let psd: Vec<f64> = (0..n_freq)
-            .map(|k| if k < 5000 { f64::INFINITY } else { 1e-47 })
-            .collect();
-        for _ in 0..3 {
-            let t = std::time::Instant::now();
-            let seg = Segment::new(&data, &psd, 1.0 / 256.0).unwrap();
-            let a = t.elapsed();
-            let t = std::time::Instant::now();
-            let mut d = 1;
-            while d <= MAX_DECIMATION {
-                let _ = fft::inverse::<f32>(seg.n / d);
-                d *= 2;
-            }
-            println!("segment {:?} plans {:?}", a, t.elapsed());
-        }
-    }
-}
