@@ -3,8 +3,9 @@
 //! and Allen's chi-squared at the surviving peaks.
 //!
 //! Per template and per thread: generate the template straight into the product
-//! `q_k h~_k*` (with `q = 4 df d~ / S`), inverse-FFT in place, scan the analysable
-//! samples. Nothing of size (templates x samples) exists; each thread owns one
+//! `q_k h~_k*` (with `q = 4 df d~ / S`), inverse-FFT it on a grid decimated to the
+//! template's bandwidth, scan the analysable samples, and re-evaluate candidates
+//! exactly. Nothing of size (templates x samples) exists; each thread holds one
 //! buffer of the segment length.
 //!
 //! Scales: strain-scale numbers (PSD ~1e-47, h~ ~1e-22) are rescaled into O(1)
@@ -122,7 +123,7 @@ impl Segment {
     /// (band edges rounded to whole moment chunks).
     fn frequency_variance(&self, k_lo: usize, k_hi: usize) -> f64 {
         let (c_lo, c_hi) = (k_lo / MOMENT_CHUNK, k_hi.div_ceil(MOMENT_CHUNK));
-        let m: Vec<f64> = self.moments.iter().map(|p| p[c_hi] - p[c_lo]).collect();
+        let m = self.moments.each_ref().map(|p| p[c_hi] - p[c_lo]);
         if m[0] > 0.0 {
             (m[2] / m[0] - (m[1] / m[0]).powi(2)).max(0.0)
         } else {
@@ -222,8 +223,8 @@ pub fn search_segment(
             )
         },
     )?;
-    ensure(s.chisq_bins >= 1, "chisq_bins", || {
-        "must be at least 1".into()
+    ensure(s.chisq_bins >= 2, "chisq_bins", || {
+        "must be at least 2 (2p - 2 degrees of freedom)".into()
     })?;
     // One plan per decimation D = 2^i (transform length N / D), planned once here.
     let mut plans = Vec::new();
@@ -301,29 +302,22 @@ fn filter_one(
                 false,
             );
         } else {
-            // Fold bins m >= M onto m mod M: at most one wrap inside a block (n <= M).
-            let start = m0 % m_len;
-            let first = n.min(m_len - start);
-            fill_run(
-                &mut buf[start..start + first],
-                &block[..first],
-                &q[..first],
-                &w[..first],
-                inv_h,
-                &mut partial,
-                true,
-            );
-            if first < n {
-                let rest = n - first;
+            // Fold bins m >= M onto m mod M, one contiguous run per wrap.
+            let mut done = 0;
+            while done < n {
+                let start = (m0 + done) % m_len;
+                let take = (n - done).min(m_len - start);
+                let run = done..done + take;
                 fill_run(
-                    &mut buf[..rest],
-                    &block[first..],
-                    &q[first..],
-                    &w[first..],
+                    &mut buf[start..start + take],
+                    &block[run.clone()],
+                    &q[run.clone()],
+                    &w[run],
                     inv_h,
                     &mut partial,
                     true,
                 );
+                done += take;
             }
         }
     });
@@ -338,19 +332,23 @@ fn filter_one(
     plans[dec.trailing_zeros() as usize].process_with_scratch(buf, &mut scratch.fft_scratch);
 
     let threshold = s.snr_threshold / to_snr;
-    let (kept, positions) = if dec == 1 {
+    // (peak sample, refined position) of every surviving peak, in time order.
+    let kept: Vec<(usize, f64)> = if dec == 1 {
         let peaks = find_peaks(
             buf,
             s.valid_start,
             s.valid_stop,
             (threshold * threshold) as f32,
         );
-        let kept = cluster_peaks(&peaks, s.cluster);
-        let positions: Vec<f64> = kept
-            .iter()
-            .map(|&(j, _)| j as f64 + parabolic_offset(buf, j))
-            .collect();
-        (kept, positions)
+        cluster_peaks(&peaks, s.cluster)
+            .into_iter()
+            .map(|i| {
+                (
+                    peaks[i].0,
+                    peaks[i].0 as f64 + parabolic_offset(buf, peaks[i].0),
+                )
+            })
+            .collect::<Vec<_>>()
     } else {
         // Coarse candidates (threshold lowered by the decimation loss bound), then
         // exact |z| at the five full-rate samples around each.
@@ -358,13 +356,16 @@ fn filter_one(
         let lo = (s.valid_start / dec).saturating_sub(1).max(1);
         let hi = (s.valid_stop.div_ceil(dec) + 1).min(m_len - 1);
         let coarse = find_peaks(buf, lo, hi, (coarse_thr * coarse_thr) as f32);
-        let coarse = cluster_peaks(&coarse, s.cluster / dec);
-        if coarse.is_empty() {
+        let survivors = cluster_peaks(&coarse, s.cluster / dec);
+        if survivors.is_empty() {
             return Vec::new();
         }
-        let centres: Vec<i64> = coarse
+        let centres: Vec<i64> = survivors
             .iter()
-            .map(|&(j, _)| ((j as f64 + parabolic_offset(buf, j)) * dec as f64).round() as i64)
+            .map(|&i| {
+                let j = coarse[i].0;
+                ((j as f64 + parabolic_offset(buf, j)) * dec as f64).round() as i64
+            })
             .collect();
         let probe: Vec<f64> = centres
             .iter()
@@ -393,32 +394,24 @@ fn filter_one(
             } else {
                 0.0
             };
-            refined.push(((j as usize, (b / to_snr).powi(2) as f32), j as f64 + delta));
+            refined.push((j as usize, (b / to_snr).powi(2) as f32, j as f64 + delta));
         }
-        refined.sort_by_key(|r| r.0 .0);
-        refined.dedup_by_key(|r| r.0 .0);
-        let peaks: Vec<(usize, f32)> = refined.iter().map(|r| r.0).collect();
-        let kept = cluster_peaks(&peaks, s.cluster);
-        let positions = kept
-            .iter()
-            .map(|k| {
-                refined
-                    .iter()
-                    .find(|r| r.0 .0 == k.0)
-                    .map(|r| r.1)
-                    .unwrap_or(k.0 as f64)
-            })
-            .collect();
-        (kept, positions)
+        refined.sort_by_key(|r| r.0);
+        refined.dedup_by_key(|r| r.0);
+        let peaks: Vec<(usize, f32)> = refined.iter().map(|r| (r.0, r.1)).collect();
+        cluster_peaks(&peaks, s.cluster)
+            .into_iter()
+            .map(|i| (refined[i].0, refined[i].2))
+            .collect()
     };
     if kept.is_empty() {
         return Vec::new();
     }
+    let positions: Vec<f64> = kept.iter().map(|k| k.1).collect();
     let evals = evaluate_bands(seg, t, k_lo, k_hi, inv_h, norm, &positions, s.chisq_bins);
     kept.iter()
-        .zip(positions)
         .zip(evals)
-        .map(|((&(j, _), pos), bands)| {
+        .map(|(&(j, pos), bands)| {
             let (z, chisq) = combine_bands(&bands, to_snr);
             Trigger {
                 template: index,
@@ -485,9 +478,9 @@ pub fn find_peaks(
     out
 }
 
-/// Keep each peak unless a louder one lies within `window` samples (ties: the
-/// earlier peak wins). `peaks` is sorted by index.
-pub fn cluster_peaks(peaks: &[(usize, f32)], window: usize) -> Vec<(usize, f32)> {
+/// Positions in `peaks` of the peaks with no louder one within `window` samples
+/// (ties: the earlier peak wins). `peaks` is sorted by sample index.
+pub fn cluster_peaks(peaks: &[(usize, f32)], window: usize) -> Vec<usize> {
     let mut kept = Vec::new();
     let mut lo = 0usize;
     for (i, &(j, p)) in peaks.iter().enumerate() {
@@ -505,7 +498,7 @@ pub fn cluster_peaks(peaks: &[(usize, f32)], window: usize) -> Vec<(usize, f32)>
             m += 1;
         }
         if best {
-            kept.push((j, p));
+            kept.push(i);
         }
     }
     kept
@@ -586,12 +579,9 @@ mod tests {
     #[test]
     fn clustering_keeps_loudest_in_window() {
         let peaks = vec![(10, 1.0), (12, 3.0), (20, 2.0), (40, 2.0), (44, 2.0)];
-        assert_eq!(
-            cluster_peaks(&peaks, 5),
-            vec![(12, 3.0), (20, 2.0), (40, 2.0)]
-        );
-        assert_eq!(cluster_peaks(&peaks, 100), vec![(12, 3.0)]);
-        assert_eq!(cluster_peaks(&peaks, 0), peaks);
+        assert_eq!(cluster_peaks(&peaks, 5), vec![1, 2, 3]);
+        assert_eq!(cluster_peaks(&peaks, 100), vec![1]);
+        assert_eq!(cluster_peaks(&peaks, 0), vec![0, 1, 2, 3, 4]);
     }
 
     #[test]
