@@ -35,11 +35,19 @@ pub fn band(f_low: f64, f_high: Option<f64>, df: f64, n_freq: usize) -> (usize, 
     (k_lo, k_hi.max(k_lo))
 }
 
-/// `1/S`, zero where `S` is infinite.
+/// `1/S` of one bin, zero where `S` is infinite (an excluded bin).
+#[inline]
+pub fn inverse_psd_bin(s: f64) -> f64 {
+    if s.is_finite() && s > 0.0 {
+        1.0 / s
+    } else {
+        0.0
+    }
+}
+
+/// `1/S` per bin, zero where `S` is infinite.
 pub fn inverse_psd(psd: &[f64]) -> Vec<f64> {
-    psd.iter()
-        .map(|&s| if s.is_finite() { 1.0 / s } else { 0.0 })
-        .collect()
+    psd.iter().map(|&s| inverse_psd_bin(s)).collect()
 }
 
 /// `sigma^2 = 4 df sum_{band} |h~_k|^2 / S_k`.

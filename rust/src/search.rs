@@ -13,7 +13,7 @@
 
 use crate::error::{ensure, Result};
 use crate::fft;
-use crate::filter::band;
+use crate::filter::{band, inverse_psd_bin};
 use crate::waveform::TaylorF2;
 use num_complex::{Complex32, Complex64};
 use rayon::prelude::*;
@@ -44,14 +44,7 @@ impl Segment {
         })?;
         // Parallel per-bin passes; the maxima are order-independent, so the result
         // does not depend on the thread count.
-        let inv = |k: usize| {
-            let s = psd[k];
-            if s.is_finite() && s > 0.0 {
-                1.0 / s
-            } else {
-                0.0
-            }
-        };
+        let inv = |k: usize| inverse_psd_bin(psd[k]);
         let (q_max, w_max) = (0..n_freq)
             .into_par_iter()
             .map(|k| {

@@ -6,9 +6,9 @@
 //! matched filter peaks at the coalescence time.
 //!
 //! Generation is blockwise: the exact phase and amplitude are evaluated at four
-//! nodes per block and a cubic through them is stepped bin by bin with a complex
-//! rotation recurrence, so the per-bin cost is a few multiplies instead of a cube
-//! root, a logarithm and a sine/cosine. Block widths are chosen from the fourth
+//! nodes per block and a cubic through them is stepped bin by bin with complex
+//! rotation recurrences (four interleaved chains per block), so the per-bin cost is
+//! a few multiplies instead of a cube root, a logarithm and a sine/cosine. Block widths are chosen from the fourth
 //! derivative of the leading-order phase so the interpolation error stays below
 //! `PHASE_TOLERANCE` radians.
 //!
@@ -249,9 +249,9 @@ impl TaylorF2 {
             if len < MIN_BLOCK {
                 let len = len.max(1);
                 for (j, o) in out[..len].iter_mut().enumerate() {
-                    let f = (k + j) as f64 * df;
-                    let (s, c) = self.phase(f).sin_cos();
-                    *o = Complex64::new(c, -s) * self.amplitude(f);
+                    let (phase, amp) = self.phase_amplitude((k + j) as f64 * df);
+                    let (s, c) = phase.sin_cos();
+                    *o = Complex64::new(c, -s) * amp;
                 }
                 emit(k, &out[..len]);
                 k += len;
