@@ -11,6 +11,7 @@ pub mod search;
 pub mod spectrum;
 pub mod threads;
 pub mod waveform;
+pub mod yardstick;
 
 #[cfg(feature = "python")]
 mod python;

@@ -74,12 +74,7 @@ fn welch<'py>(
         spectrum::Average::Mean
     };
     let out = run(py, || {
-        use rayon::prelude::*;
-        let rows: CoreResult<Vec<Vec<f64>>> = xs
-            .par_chunks(n.max(1))
-            .map(|row| spectrum::welch(row, sample_rate, step, w, detrend, average))
-            .collect();
-        Ok(rows?.concat())
+        spectrum::welch_channels(xs, n, sample_rate, step, w, detrend, average)
     })?;
     to_2d(py, channels, n_freq, out)
 }
@@ -136,27 +131,16 @@ fn whiten<'py>(
 ) -> PyResult<Bound<'py, PyArray2<f64>>> {
     let (channels, n) = (x.shape()[0], x.shape()[1]);
     let n_freq = psd.shape()[1];
-    let per_channel = psd.shape()[0] > 1;
     let (xs, ps) = (x.as_slice()?, psd.as_slice()?);
     let out = run(py, || {
-        use rayon::prelude::*;
-        let mut out = vec![0.0f64; channels * n];
-        let pool = crate::scratch::Pool::new(|| crate::fft::RealScratch::<f64>::new(n));
-        out.par_chunks_mut(n)
-            .zip(xs.par_chunks(n))
-            .enumerate()
-            .for_each_init(
-                || pool.take(),
-                |fft, (c, (o, row))| {
-                    let p = if per_channel {
-                        &ps[c * n_freq..(c + 1) * n_freq]
-                    } else {
-                        &ps[..n_freq]
-                    };
-                    spectrum::whiten_into(row, p, sample_rate, f_low, fft, o);
-                },
-            );
-        Ok(out)
+        Ok(spectrum::whiten_channels(
+            xs,
+            n,
+            ps,
+            n_freq,
+            sample_rate,
+            f_low,
+        ))
     })?;
     to_2d(py, channels, n, out)
 }
@@ -186,41 +170,36 @@ fn taylorf2<'py>(
         f_high.as_slice()?,
     );
     let k = m1.len();
-    let build = || -> CoreResult<Vec<waveform::TaylorF2>> {
-        (0..k)
-            .map(|i| {
-                waveform::TaylorF2::new(
-                    &waveform::Binary::new(m1[i], m2[i], chi1[i], chi2[i])?,
-                    distance,
-                    phase_order,
-                )
-            })
-            .collect()
-    };
-    macro_rules! generate {
-        ($t:ty, $conv:expr) => {{
-            let out = run(py, || {
-                use rayon::prelude::*;
-                let models = build()?;
-                let mut out = vec![<$t>::new(0.0, 0.0); k * n_freq];
-                out.par_chunks_mut(n_freq.max(1))
-                    .enumerate()
-                    .for_each(|(i, row)| {
-                        let (k_lo, k_hi) = filter::band(f_low, Some(f_high[i]), df, n_freq);
-                        models[i].for_each_bin(k_lo, k_hi, df, |kk, h| row[kk] = $conv(h));
-                    });
-                Ok(out)
-            })?;
-            Ok(to_2d(py, k, n_freq, out)?.into_any())
-        }};
-    }
+    let models = || waveform::models(m1, m2, chi1, chi2, distance, phase_order);
     if double {
-        generate!(Complex64, |h: Complex64| h)
+        let zero = Complex64::new(0.0, 0.0);
+        let out = run(py, || {
+            Ok(waveform::spectra(
+                &models()?,
+                f_low,
+                f_high,
+                df,
+                n_freq,
+                zero,
+                |h| h,
+            ))
+        })?;
+        Ok(to_2d(py, k, n_freq, out)?.into_any())
     } else {
-        generate!(Complex32, |h: Complex64| Complex32::new(
-            h.re as f32,
-            h.im as f32
-        ))
+        let zero = Complex32::new(0.0, 0.0);
+        let store = |h: Complex64| Complex32::new(h.re as f32, h.im as f32);
+        let out = run(py, || {
+            Ok(waveform::spectra(
+                &models()?,
+                f_low,
+                f_high,
+                df,
+                n_freq,
+                zero,
+                store,
+            ))
+        })?;
+        Ok(to_2d(py, k, n_freq, out)?.into_any())
     }
 }
 
@@ -382,15 +361,12 @@ fn search_segment<'py>(
     };
     let triggers = run(py, || {
         let segment = search::Segment::new(d, p, df)?;
-        let templates = (0..m1.len())
-            .map(|i| {
-                let b = waveform::Binary::new(m1[i], m2[i], chi1[i], chi2[i])?;
-                Ok(search::Template {
-                    model: waveform::TaylorF2::new(&b, 1.0, phase_order)?,
-                    f_high: f_high[i],
-                })
-            })
-            .collect::<CoreResult<Vec<_>>>()?;
+        let templates: Vec<search::Template> =
+            waveform::models(m1, m2, chi1, chi2, 1.0, phase_order)?
+                .into_iter()
+                .zip(f_high)
+                .map(|(model, &f_high)| search::Template { model, f_high })
+                .collect();
         search::search_segment(&segment, &templates, &settings)
     })?;
     let out = pyo3::types::PyDict::new(py);
@@ -420,17 +396,7 @@ fn bench_inverse_fft(py: Python<'_>, n: usize, repeats: usize) -> PyResult<f64> 
             "n and repeats must be positive, got {n} and {repeats}"
         )));
     }
-    Ok(py.detach(|| {
-        let plan = crate::fft::inverse::<f32>(n);
-        let mut buf = vec![Complex32::new(1.0, 0.5); n];
-        let mut scratch = vec![Complex32::new(0.0, 0.0); plan.get_inplace_scratch_len()];
-        plan.process_with_scratch(&mut buf, &mut scratch);
-        let start = std::time::Instant::now();
-        for _ in 0..repeats {
-            plan.process_with_scratch(&mut buf, &mut scratch);
-        }
-        start.elapsed().as_secs_f64() / repeats as f64
-    }))
+    Ok(py.detach(|| crate::yardstick::inverse_fft_seconds(n, repeats)))
 }
 
 /// Seconds per template to generate `m1[i], m2[i]` (non-spinning) on `n_freq` bins
@@ -452,34 +418,14 @@ fn bench_template_generation<'py>(
             "m1 and m2 must be non-empty and of equal length, repeats positive",
         ));
     }
-    let models = a
-        .iter()
-        .zip(b)
-        .map(|(&x, &y)| {
-            let bin = waveform::Binary::new(x, y, 0.0, 0.0)?;
-            Ok((
-                waveform::TaylorF2::new(&bin, 1.0, 7)?,
-                waveform::isco_frequency(x + y),
-            ))
-        })
-        .collect::<CoreResult<Vec<_>>>()
-        .map_err(|e| PyValueError::new_err(e.to_string()))?;
-    Ok(py.detach(|| {
-        let mut buf = vec![Complex32::new(0.0, 0.0); n_freq];
-        let start = std::time::Instant::now();
-        for _ in 0..repeats {
-            for (model, f_high) in &models {
-                let (lo, hi) = filter::band(f_low, Some(*f_high), df, n_freq);
-                model.for_each_block(lo, hi, df, |k0, block| {
-                    for (o, h) in buf[k0..k0 + block.len()].iter_mut().zip(block) {
-                        *o = Complex32::new(h.re as f32, h.im as f32);
-                    }
-                });
-            }
-        }
-        std::hint::black_box(&buf);
-        start.elapsed().as_secs_f64() / (repeats * models.len()) as f64
-    }))
+    let zeros = vec![0.0; a.len()];
+    let models: Vec<(waveform::TaylorF2, f64)> = waveform::models(a, b, &zeros, &zeros, 1.0, 7)
+        .map_err(|e| PyValueError::new_err(e.to_string()))?
+        .into_iter()
+        .zip(a.iter().zip(b))
+        .map(|(model, (&x, &y))| (model, waveform::isco_frequency(x + y)))
+        .collect();
+    Ok(py.detach(|| crate::yardstick::generation_seconds(&models, f_low, df, n_freq, repeats)))
 }
 
 #[pymodule]

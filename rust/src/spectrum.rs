@@ -342,6 +342,54 @@ pub fn whiten_into(
     out.copy_from_slice(&fft.time);
 }
 
+/// [`welch`] of each row of `x` (row-major, `n` samples a row), rows in parallel;
+/// the PSDs come back concatenated.
+pub fn welch_channels(
+    x: &[f64],
+    n: usize,
+    sample_rate: f64,
+    step: usize,
+    window: &[f64],
+    detrend: bool,
+    average: Average,
+) -> Result<Vec<f64>> {
+    let rows: Result<Vec<Vec<f64>>> = x
+        .par_chunks(n.max(1))
+        .map(|row| welch(row, sample_rate, step, window, detrend, average))
+        .collect();
+    Ok(rows?.concat())
+}
+
+/// [`whiten_into`] for each row of `x` (`n` samples a row) with the matching row of
+/// `psd` (`n_freq` bins a row; a single row serves every channel), rows in parallel.
+pub fn whiten_channels(
+    x: &[f64],
+    n: usize,
+    psd: &[f64],
+    n_freq: usize,
+    sample_rate: f64,
+    f_low: f64,
+) -> Vec<f64> {
+    let per_channel = psd.len() > n_freq;
+    let mut out = vec![0.0f64; x.len()];
+    let pool = crate::scratch::Pool::new(|| RealScratch::<f64>::new(n));
+    out.par_chunks_mut(n)
+        .zip(x.par_chunks(n))
+        .enumerate()
+        .for_each_init(
+            || pool.take(),
+            |fft, (c, (o, row))| {
+                let p = if per_channel {
+                    &psd[c * n_freq..(c + 1) * n_freq]
+                } else {
+                    &psd[..n_freq]
+                };
+                whiten_into(row, p, sample_rate, f_low, fft, o);
+            },
+        );
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

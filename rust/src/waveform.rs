@@ -308,6 +308,52 @@ impl TaylorF2 {
     }
 }
 
+/// Phase models for templates `(m1[i], m2[i], chi1[i], chi2[i])` at `distance` Mpc.
+pub fn models(
+    m1: &[f64],
+    m2: &[f64],
+    chi1: &[f64],
+    chi2: &[f64],
+    distance: f64,
+    phase_order: usize,
+) -> Result<Vec<TaylorF2>> {
+    (0..m1.len())
+        .map(|i| {
+            TaylorF2::new(
+                &Binary::new(m1[i], m2[i], chi1[i], chi2[i])?,
+                distance,
+                phase_order,
+            )
+        })
+        .collect()
+}
+
+/// Templates `(K, n_freq)` row-major, row `i` nonzero on `f_low <= f < f_high[i]`,
+/// stored through `store` (e.g. to complex64); rows in parallel.
+pub fn spectra<C: Copy + Send + Sync>(
+    models: &[TaylorF2],
+    f_low: f64,
+    f_high: &[f64],
+    df: f64,
+    n_freq: usize,
+    zero: C,
+    store: impl Fn(Complex64) -> C + Sync,
+) -> Vec<C> {
+    use rayon::prelude::*;
+    let mut out = vec![zero; models.len() * n_freq];
+    out.par_chunks_mut(n_freq.max(1))
+        .enumerate()
+        .for_each(|(i, row)| {
+            let (k_lo, k_hi) = crate::filter::band(f_low, Some(f_high[i]), df, n_freq);
+            models[i].for_each_block(k_lo, k_hi, df, |k0, block| {
+                for (o, &h) in row[k0..k0 + block.len()].iter_mut().zip(block) {
+                    *o = store(h);
+                }
+            });
+        });
+    out
+}
+
 /// Recurrence state of the block's chains, structure-of-arrays so the lane loop
 /// vectorises: `w` (the rotating phasor), `r1..r3` (its rotation and the rotation's
 /// first and second differences), `a, b1..b3` (amplitude and its differences).
