@@ -1,7 +1,6 @@
 """The single-site search pipeline: segmentation, recovery of injections, gating,
 bad input."""
 
-import warnings
 
 import numpy as np
 import pytest

@@ -133,8 +133,8 @@ def search(
     f_low : float
         Lower frequency cutoff of templates and filters (Hz).
     psd : None, str, callable, (freqs, values) or ndarray, optional
-        ``None`` (default): estimated per segment from the segment itself (Welch,
-        median average). A design-curve name, a function of frequency, a sampled
+        ``None`` (default): estimated per segment (Welch, median average) from the
+        segment itself or from ``psd_duration`` seconds around it. A design-curve name, a function of frequency, a sampled
         ``(freqs, values)`` pair, or values on the segment's rfft grid are used as given.
     segment_duration : float, optional
         Segment length (s). Each segment discards its first
@@ -151,6 +151,11 @@ def search(
         If set, samples whose whitened amplitude exceeds this are gated (zeroed over
         ``gate_half_width`` s either side with ``gate_taper`` s inverse Tukey tapers,
         each at most ``psd_segment_duration``) before filtering. Gates are reported (a :class:`GatingWarning` and ``info``).
+    gate_half_width : float, optional
+        Seconds zeroed on either side of each loud sample (at most ``psd_segment_duration``).
+    gate_taper : float, optional
+        Length (s) of the half-cosine taper on each side of a gate (at most
+        ``psd_segment_duration``).
     psd_segment_duration : float, optional
         Welch segment length (s) and length of the truncated inverse-PSD filter.
     psd_duration : float, optional
@@ -230,8 +235,9 @@ def search(
             f"strain has {n} samples ({n / fs:g} s), shorter than segment_duration={segment_duration} s; "
             "use a shorter segment_duration or more data"
         )
-    if np.any(isco_frequency(b.m1, b.m2) <= fl):
-        i = int(np.argmax(isco_frequency(b.m1, b.m2) <= fl))
+    ends_below = np.atleast_1d(isco_frequency(b.m1, b.m2)) <= fl
+    if ends_below.any():
+        i = int(np.argmax(ends_below))
         raise ValueError(f"template {i} (m1={b.m1[i]}, m2={b.m2[i]}) ends below f_low={fl} Hz")
 
     max_duration = float(np.max(chirp_duration(b.m1, b.m2, fl))) * DURATION_MARGIN
@@ -271,11 +277,16 @@ def search(
         from tqdm import tqdm
 
         bar = tqdm(total=len(plans) * len(b), unit="tmpl", desc="chirpsift search", file=sys.stderr)
+    # A given PSD is the same on every segment's grid: resample and truncate it once.
+    fixed_psd = None if psd is None else _segment_psd(psd, None, fs, n_freq, df, t_spec, fl)
     try:
         for plan in plans:
             segment = x[plan.start:plan.start + plan.length]
-            lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, n - psd_len))
-            seg_psd = _segment_psd(psd, x[lo:lo + psd_len], fs, n_freq, df, t_spec, fl)
+            if fixed_psd is None:
+                lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, n - psd_len))
+                seg_psd = _segment_psd(None, x[lo:lo + psd_len], fs, n_freq, df, t_spec, fl)
+            else:
+                seg_psd = fixed_psd
             data_fd = np.fft.rfft(segment) / fs
             found = filter_segment(
                 data_fd, seg_psd, df, b.m1, b.m2, b.chi1, b.chi2, f_low=fl, snr_threshold=thr,
