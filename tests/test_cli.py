@@ -197,7 +197,7 @@ def test_unexpected_failure_exits_one(tmp_path, monkeypatch, capsys):
     def boom(*a, **k):
         raise RuntimeError("kernel exploded")
 
-    monkeypatch.setattr(chirpsift, "search", boom, raising=False)
+    monkeypatch.setattr(chirpsift.pipeline, "search", boom)
     rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30", "--output", str(tmp_path / "t.parquet")])
     err = capsys.readouterr().err
     assert rc == 1 and "kernel exploded" in err

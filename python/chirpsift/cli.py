@@ -30,15 +30,14 @@ from pathlib import Path
 
 import numpy as np
 
+from .threads import get_threads
+
 __all__ = ["main", "build_parser"]
 
 PROG = "chirpsift"
 
-#: Candidate trigger-table field names, first match wins.
-_TIME_FIELDS = ("time", "t_coalescence", "coalescence_time", "t_c", "tc", "end_time")
-_SNR_FIELDS = ("snr", "rho")
-_RW_FIELDS = ("reweighted_snr", "snr_reweighted", "rw_snr", "rwsnr")
-_TEMPLATE_FIELDS = ("template", "template_index", "template_id")
+#: Trigger fields copied into the run summary for the loudest trigger.
+_LOUDEST_FIELDS = ("time", "template_id", "snr", "reweighted_snr", "chisq", "m1", "m2", "chi1", "chi2")
 
 #: search() keyword arguments that the command line and config files can set.
 _SEARCH_ARGS = (
@@ -241,117 +240,57 @@ def _check_writable(path: Path, what: str) -> None:
         raise PermissionError(f"cannot write {what} into {folder}")
 
 
-def _field(triggers: np.ndarray, candidates) -> str | None:
-    names = triggers.dtype.names or ()
-    for c in candidates:
-        if c in names:
-            return c
-    return None
-
-
-def _loudest(triggers, bank) -> dict | None:
-    """The trigger with the largest reweighted SNR (or SNR), as plain Python values."""
-    if triggers is None or len(triggers) == 0 or triggers.dtype.names is None:
+def _loudest(triggers: np.ndarray) -> dict | None:
+    """The trigger with the largest reweighted SNR, as plain Python values."""
+    if len(triggers) == 0:
         return None
-    rank = _field(triggers, _RW_FIELDS) or _field(triggers, _SNR_FIELDS)
-    if rank is None:
-        return None
-    values = np.asarray(triggers[rank], dtype=np.float64)
-    i = int(np.nanargmax(values)) if np.isfinite(values).any() else 0
-    row = triggers[i]
-    out: dict = {"index": i}
-    tf = _field(triggers, _TIME_FIELDS)
-    if tf:
-        out["time"] = float(row[tf])
-    sf = _field(triggers, _SNR_FIELDS)
-    if sf:
-        out["snr"] = float(row[sf])
-    rf = _field(triggers, _RW_FIELDS)
-    if rf:
-        out["reweighted_snr"] = float(row[rf])
-    names = triggers.dtype.names
-    if "m1" in names and "m2" in names:
-        out["m1"], out["m2"] = float(row["m1"]), float(row["m2"])
-    else:
-        tpl = _field(triggers, _TEMPLATE_FIELDS)
-        if tpl is not None and bank is not None:
-            k = int(row[tpl])
-            out["template"] = k
-            if 0 <= k < len(bank):
-                out["m1"], out["m2"] = float(bank.m1[k]), float(bank.m2[k])
-    for extra in ("chisq", "chi1", "chi2"):
-        if extra in names:
-            out[extra] = float(row[extra])
-    return out
+    row = triggers[int(np.argmax(triggers["reweighted_snr"]))]
+    return {name: row[name].item() for name in _LOUDEST_FIELDS}
 
 
 def _describe_loudest(loud: dict | None) -> str:
     if loud is None:
         return "no triggers"
-    parts = []
-    if "time" in loud:
-        parts.append(f"t = {loud['time']:.4f} s")
-    if "m1" in loud:
-        parts.append(f"template {loud['m1']:.3f} + {loud['m2']:.3f} Msun")
-    elif "template" in loud:
-        parts.append(f"template #{loud['template']}")
-    if "snr" in loud:
-        parts.append(f"SNR {loud['snr']:.2f}")
-    if "reweighted_snr" in loud:
-        parts.append(f"reweighted SNR {loud['reweighted_snr']:.2f}")
-    return ", ".join(parts)
+    return (
+        f"t = {loud['time']:.4f} s, template {loud['m1']:.3f} + {loud['m2']:.3f} Msun, "
+        f"SNR {loud['snr']:.2f}, reweighted SNR {loud['reweighted_snr']:.2f}"
+    )
 
 
 def _effective_settings(settings: dict) -> dict:
     """The given search settings completed with ``chirpsift.search``'s own defaults."""
     import inspect
 
-    import chirpsift
+    from .pipeline import search
 
     out = {}
-    search = getattr(chirpsift, "search", None)
-    if search is not None:
-        skip = {"strain", "sample_rate", "bank", "t0", "progress", "full_output"}
-        for name, param in inspect.signature(search).parameters.items():
-            if name in skip or param.default is inspect.Parameter.empty:
-                continue
-            if param.default is None or isinstance(param.default, (bool, int, float, str)):
-                out[name] = param.default
+    skip = {"strain", "sample_rate", "bank", "t0", "progress", "full_output"}
+    for name, param in inspect.signature(search).parameters.items():
+        if name in skip or param.default is inspect.Parameter.empty:
+            continue
+        if param.default is None or isinstance(param.default, (bool, int, float, str)):
+            out[name] = param.default
     out.update({k: v for k, v in settings.items() if v is not None})
     return out
 
 
-def _threads_used(requested: int | None):
-    import chirpsift
-
-    getter = getattr(chirpsift, "get_threads", None)
-    return getter() if getter is not None else requested
-
-
 def _pairs(values) -> list:
-    return [[float(a), float(b)] for a, b in (values or [])]
+    return [[float(a), float(b)] for a, b in values]
 
 
 def _run_search(strain, bank, settings: dict, progress: bool):
-    import chirpsift
+    from .pipeline import search
 
-    search = getattr(chirpsift, "search", None)
-    if search is None:
-        raise RuntimeError("chirpsift.search is not available in this installation")
     kwargs = {k: v for k, v in settings.items() if v is not None}
-    result = search(strain.data, strain.sample_rate, bank, t0=strain.t0, progress=progress, full_output=True, **kwargs)
-    if not (isinstance(result, tuple) and len(result) == 2):
-        raise RuntimeError("chirpsift.search(full_output=True) did not return (triggers, info)")
-    triggers, info = result
-    return triggers, dict(info or {})
+    return search(strain.data, strain.sample_rate, bank, t0=strain.t0, progress=progress, full_output=True, **kwargs)
 
 
 def _summary(
-    *, command, argv, strain, strain_path, dataset, bank, bank_path, config_path, settings, threads, triggers, info,
+    *, command, argv, strain, strain_path, dataset, bank, bank_path, config_path, settings, triggers, info,
     wall, extra=None,
 ) -> dict:
-    gates = _pairs(info.get("gates"))
-    analysed = _pairs(info.get("analysed"))
+    gates = _pairs(info["gates"])
+    analysed = _pairs(info["analysed"])
     doc = {
         "summary_version": 1,
         "command": command,
@@ -374,29 +313,22 @@ def _summary(
             },
             "config": None if config_path is None else os.path.abspath(config_path),
         },
-        "settings": {**_effective_settings(settings), "threads": _threads_used(threads)},
+        "settings": {**_effective_settings(settings), "threads": get_threads()},
         "counts": {
             "triggers": int(len(triggers)),
-            "templates": int(info.get("templates", len(bank))),
-            "segments": info.get("segments"),
+            "templates": int(info["templates"]),
+            "segments": int(info["segments"]),
             "gates": len(gates),
         },
         "gates": gates,
         "analysed": analysed,
         "analysed_duration": float(sum(b - a for a, b in analysed)),
-        "loudest": _loudest(triggers, bank),
+        "loudest": _loudest(triggers),
         "wall_time_s": wall,
     }
     if extra:
         doc.update(extra)
     return doc
-
-
-def _as_records(triggers) -> np.ndarray:
-    arr = np.asarray(triggers)
-    if arr.dtype.names is None:
-        raise RuntimeError("chirpsift.search returned triggers that are not a structured array")
-    return arr
 
 
 # ---------------------------------------------------------------------------
@@ -437,12 +369,11 @@ def _cmd_search(args, argv) -> int:
     _set_threads(args.threads)
 
     triggers, info = _run_search(strain, bank, settings, progress=not args.no_progress)
-    triggers = _as_records(triggers)
     wall = time.perf_counter() - started
 
     doc = _summary(
         command="search", argv=argv, strain=strain, strain_path=inputs["strain"], dataset=inputs.get("dataset"),
-        bank=bank, bank_path=inputs["bank"], config_path=args.config, settings=settings, threads=args.threads,
+        bank=bank, bank_path=inputs["bank"], config_path=args.config, settings=settings,
         triggers=triggers, info=info, wall=wall,
         extra={"outputs": {"triggers": os.path.abspath(output), "summary": os.path.abspath(summary_path)}},
     )
@@ -509,13 +440,12 @@ def _cmd_demo(args, argv) -> int:
         f"(optimal SNR {DEMO_TARGET_SNR:g}); searching with {len(bank)} templates from {DEMO_F_LOW:g} Hz."
     )
     triggers, info = _run_search(strain, bank, settings, progress=not args.no_progress)
-    triggers = _as_records(triggers)
     wall = time.perf_counter() - started
 
-    loud = _loudest(triggers, bank)
+    loud = _loudest(triggers)
     injected = {"site": DEMO_SITE, "time": tc, "m1": m1, "m2": m2, "distance": distance,
                 "optimal_snr": DEMO_TARGET_SNR, "phase": 0.7}
-    analysed = _pairs(info.get("analysed"))
+    analysed = _pairs(info["analysed"])
     covered = any(a <= tc < b for a, b in analysed) if analysed else None
     width = 12
     print(f"{'':{width}} {'time (s)':>16} {'m1':>7} {'m2':>7} {'SNR':>7} {'rw SNR':>7}")
@@ -523,12 +453,9 @@ def _cmd_demo(args, argv) -> int:
     if loud is None:
         print(f"{'loudest':{width}} no triggers")
     else:
-        def fmt(key, spec):
-            return format(loud[key], spec) if key in loud else "-"
-
         print(
-            f"{'loudest':{width}} {fmt('time', '16.4f'):>16} {fmt('m1', '7.3f'):>7} {fmt('m2', '7.3f'):>7} "
-            f"{fmt('snr', '7.2f'):>7} {fmt('reweighted_snr', '7.2f'):>7}"
+            f"{'loudest':{width}} {loud['time']:16.4f} {loud['m1']:7.3f} {loud['m2']:7.3f} "
+            f"{loud['snr']:7.2f} {loud['reweighted_snr']:7.2f}"
         )
     if covered is False:
         print("note: the injection time lies outside the analysed intervals reported by the search")
@@ -540,7 +467,7 @@ def _cmd_demo(args, argv) -> int:
         doc = _summary(
             command="demo", argv=argv, strain=strain, strain_path=str(out_dir / "strain.npz"), dataset=None,
             bank=bank, bank_path=str(out_dir / "bank.npz"), config_path=None, settings=settings,
-            threads=args.threads, triggers=triggers, info=info, wall=wall,
+            triggers=triggers, info=info, wall=wall,
             extra={"injection": injected, "seed": args.seed},
         )
         write_triggers(out_dir / "triggers.parquet", triggers, doc)
