@@ -7,13 +7,6 @@ import numpy as np
 RUST_REPEATS = 10
 
 
-def rust_available():
-    """Whether the compiled core exposes its single-threaded inverse-FFT yardstick."""
-    from chirpsift import _core
-
-    return hasattr(_core, "bench_inverse_fft")
-
-
 def rust_ifft(n):
     """``(callable, transforms per call)`` timing rustfft's complex64 inverse FFT."""
     from chirpsift import _core

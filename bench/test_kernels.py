@@ -15,7 +15,7 @@ import chirpsift
 import chirpsift.reference as ref
 from chirpsift.reference.segment import filter_segment as ref_filter_segment
 
-from _helpers import fftw_ifft, reference_subset, rust_available, rust_ifft, scipy_ifft, self_timed
+from _helpers import fftw_ifft, reference_subset, rust_ifft, scipy_ifft, self_timed
 
 KERNELS = ("welch", "whiten", "taylorf2", "snr_series", "correlate", "filter_segment")
 #: Template length of the correlate group (s).
@@ -45,8 +45,6 @@ def test_bare_ifft(benchmark, w1, kernel, which):
     n = w1.segment_samples
     benchmark.group = kernel
     if which == "rustfft":
-        if not rust_available():
-            pytest.skip("chirpsift._core.bench_inverse_fft is not available in this build")
         raw, per = rust_ifft(n)
         own: list[float] = []
         fn = self_timed(raw, own)

@@ -392,27 +392,12 @@ def yardstick(n: int, repeats: int = 20) -> tuple[float, str]:
     -------
     seconds : float
     label : str
-        ``"rustfft"`` when the compiled core provides ``bench_inverse_fft`` (planned
-        once, in place with scratch), else ``"scipy pocketfft"``
-        (``scipy.fft.ifft(..., workers=1)`` on complex64, best of several batches).
+        ``"rustfft"``: the core's transform, planned once, in place with scratch.
     """
     from . import _core
 
-    if hasattr(_core, "bench_inverse_fft"):
-        _core.bench_inverse_fft(int(n), 1)  # plan and warm up
-        return min(float(_core.bench_inverse_fft(int(n), int(repeats))) for _ in range(3)), "rustfft"
-    import scipy.fft
-
-    rng = np.random.default_rng(0)
-    z = (rng.standard_normal(n) + 1j * rng.standard_normal(n)).astype(np.complex64)
-    scipy.fft.ifft(z, workers=1)
-    batch = max(1, int(repeats) // 3)
-
-    def once():
-        for _ in range(batch):
-            scipy.fft.ifft(z, workers=1, overwrite_x=True)
-
-    return _best(once, 3) / batch, "scipy pocketfft"
+    _core.bench_inverse_fft(int(n), 1)  # plan and warm up
+    return min(float(_core.bench_inverse_fft(int(n), int(repeats))) for _ in range(3)), "rustfft"
 
 
 def _cpu_ticks():

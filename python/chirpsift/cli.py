@@ -30,7 +30,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .threads import get_threads
+from .threads import get_threads, set_threads
 
 __all__ = ["main", "build_parser"]
 
@@ -198,20 +198,9 @@ def build_parser() -> argparse.ArgumentParser:
 # helpers
 # ---------------------------------------------------------------------------
 def _version() -> str:
-    try:
-        import chirpsift
+    from . import __version__
 
-        v = getattr(chirpsift, "__version__", None)
-        if v:
-            return str(v)
-    except ImportError:
-        pass
-    try:
-        from importlib.metadata import version
-
-        return version("chirpsift")
-    except Exception:
-        return "unknown"
+    return __version__
 
 
 def _versions() -> dict:
@@ -219,15 +208,8 @@ def _versions() -> dict:
 
 
 def _set_threads(n: int | None) -> None:
-    if n is None:
-        return
-    import chirpsift
-
-    setter = getattr(chirpsift, "set_threads", None)
-    if setter is not None:
-        setter(n)
-    else:
-        os.environ["CHIRPSIFT_THREADS"] = str(n)
+    if n is not None:
+        set_threads(n)
 
 
 def _check_writable(path: Path, what: str) -> None:
