@@ -195,9 +195,9 @@ BASES = {
                                        f_high=None, dtype=np.complex64)),
     "correlate": (cs.correlate, dict(data=NOISE[:64], templates=NOISE[64:88].reshape(3, 8), mode="valid")),
     "filter_segment": (cs.filter_segment, dict(data_fd=DATA_FD, psd=WHITE_PSD, df=DF, m1=[5.0, 8.0], m2=5.0,
-                                               chi1=0.0, chi2=0.0, f_low=20.0, f_high=None, snr_threshold=3.0,
-                                               cluster_samples=4, chisq_bins=4, valid=None, phase_order=7)),
-    "reweighted_snr": (cs.reweighted_snr, dict(snr=[6.0, 8.0], chisq=[10.0, 60.0], dof=[14, 14])),
+                                               chi1=0.0, chi2=0.0, f_low=20.0, f_high=None, min_snr=3.0,
+                                               cluster_samples=4, chi2_bands=4, valid=None, phase_order=7)),
+    "reweighted_snr": (cs.reweighted_snr, dict(snr=[6.0, 8.0], chi2=[10.0, 60.0], dof=[14, 14])),
     "plan_segments": (cs.plan_segments, dict(n_samples=1000, length=200, pad_start=30, pad_end=10)),
     "cluster_in_time": (cs.cluster_in_time, dict(times=[0.0, 0.5, 3.0], values=[5.0, 6.0, 7.0], window=1.0,
                                                  groups=None)),
@@ -226,9 +226,9 @@ RELATED = {
     "times": {"values", "groups"},
     "values": {"times"},
     "groups": {"times"},
-    "snr": {"chisq", "dof"},
-    "chisq": {"snr", "dof"},
-    "dof": {"snr", "chisq"},
+    "snr": {"chi2", "dof"},
+    "chi2": {"snr", "dof"},
+    "dof": {"snr", "chi2"},
     "n_samples": {"length"},
     "length": {"n_samples", "pad_start", "pad_end"},
     "pad_start": {"length", "pad_end"},
@@ -262,7 +262,7 @@ def test_one_junk_argument(name, data):
 @given(data=st.data())
 def test_search_one_junk_argument(data):
     base = dict(strain=STRAIN, sample_rate=128.0, bank=TINY_BANK, t0=0.0, f_low=30.0, segment_duration=8.0,
-                psd_segment_duration=2.0, snr_threshold=4.0, cluster_window=0.5, chisq_bins=4, psd=None,
+                welch_duration=2.0, min_snr=4.0, peak_window=0.5, chi2_bands=4, psd=None,
                 phase_order=7, bank_cluster=False)
     kwargs, arg = corrupt(data, base)
     names = names_for("search", arg, kwargs[arg])
@@ -270,8 +270,8 @@ def test_search_one_junk_argument(data):
         names |= {"curve", "freqs"}
     if names is not None and arg == "bank":
         names |= {"m1", "m2", "chi1", "chi2", "template"}
-    if names is not None and arg in ("sample_rate", "f_low", "segment_duration", "psd_segment_duration", "bank"):
-        names |= {"segment_duration", "psd_segment_duration", "f_low", "strain"}
+    if names is not None and arg in ("sample_rate", "f_low", "segment_duration", "welch_duration", "bank"):
+        names |= {"segment_duration", "welch_duration", "f_low", "strain"}
     out = call(cs.search, names=names, **kwargs)
     if out is not None:
         assert out.dtype == cs.TRIGGER_DTYPE
@@ -486,7 +486,7 @@ def test_waveform_layouts_match():
 
 
 def test_filter_segment_layouts_match():
-    base = dict(f_low=20.0, snr_threshold=3.0, cluster_samples=4, chisq_bins=4)
+    base = dict(f_low=20.0, min_snr=3.0, cluster_samples=4, chi2_bands=4)
     r0 = cs.filter_segment(DATA_FD, WHITE_PSD, DF, [5.0, 8.0], 5.0, **base)
     assert len(r0["snr"]) > 0
     for label, dv in _variants(DATA_FD):
@@ -499,8 +499,8 @@ def test_filter_segment_layouts_match():
 
 
 def test_search_accepts_lists_and_strided_strain():
-    kw = dict(sample_rate=128.0, bank=TINY_BANK, f_low=30.0, segment_duration=8.0, psd_segment_duration=2.0,
-              snr_threshold=3.5)
+    kw = dict(sample_rate=128.0, bank=TINY_BANK, f_low=30.0, segment_duration=8.0, welch_duration=2.0,
+              min_snr=3.5)
     t0 = cs.search(STRAIN, **kw)
     wide = np.zeros(2 * STRAIN.size)
     wide[::2] = STRAIN
@@ -571,11 +571,11 @@ NAN_INF_CASES = [
     ("fused psd nan", lambda: cs.filter_segment(DATA_FD, _with(WHITE_PSD, 9, np.nan), DF, 5.0, 5.0, f_low=20.0),
      r"\bpsd\b"),
     ("search strain nan", lambda: cs.search(_with(STRAIN, 100, np.nan), 128.0, TINY_BANK, f_low=30.0,
-                                             segment_duration=8.0, psd_segment_duration=2.0), r"\bstrain\b"),
+                                             segment_duration=8.0, welch_duration=2.0), r"\bstrain\b"),
     ("search strain inf", lambda: cs.search(_with(STRAIN, 100, np.inf), 128.0, TINY_BANK, f_low=30.0,
-                                             segment_duration=8.0, psd_segment_duration=2.0), r"\bstrain\b"),
+                                             segment_duration=8.0, welch_duration=2.0), r"\bstrain\b"),
     ("search psd nan", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                          psd_segment_duration=2.0, psd=np.full(513, np.nan)), r"\bpsd\b"),
+                                          welch_duration=2.0, psd=np.full(513, np.nan)), r"\bpsd\b"),
     ("taylorf2 f_low nan", lambda: cs.taylorf2(1.4, 1.4, f_low=np.nan, df=1.0, n_freq=65), r"\bf_low\b"),
     ("taylorf2 df inf", lambda: cs.taylorf2(1.4, 1.4, f_low=20.0, df=np.inf, n_freq=65), r"\bdf\b"),
     ("taylorf2 f_high nan", lambda: cs.taylorf2(1.4, 1.4, f_low=20.0, df=1.0, n_freq=65, f_high=np.nan), r"\bf_high\b"),
@@ -583,7 +583,7 @@ NAN_INF_CASES = [
      r"\bdistance\b"),
     ("sample_rate nan", lambda: cs.welch(NOISE, np.nan, 2.0), r"\bsample_rate\b"),
     ("reweighted snr nan", lambda: cs.reweighted_snr([np.nan], [1.0], [2]), r"\bsnr\b"),
-    ("reweighted chisq inf", lambda: cs.reweighted_snr([1.0], [np.inf], [2]), r"\bchisq\b"),
+    ("reweighted chi2 inf", lambda: cs.reweighted_snr([1.0], [np.inf], [2]), r"\bchi2\b"),
     ("cluster times nan", lambda: cs.cluster_in_time([0.0, np.nan], [1.0, 2.0], 1.0), r"\btimes\b"),
     ("cluster values inf", lambda: cs.cluster_in_time([0.0, 1.0], [1.0, np.inf], 1.0), r"\bvalues\b"),
     ("cluster window nan", lambda: cs.cluster_in_time([0.0, 1.0], [1.0, 2.0], np.nan), r"\bwindow\b"),
@@ -603,7 +603,7 @@ BAD_PSD_CASES = [
     ("fused psd zero", lambda: cs.filter_segment(DATA_FD, _with(WHITE_PSD, 60, 0.0), DF, 5.0, 5.0, f_low=20.0),
      r"\bpsd\b"),
     ("search psd negative", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                               psd_segment_duration=2.0, psd=-np.ones(513)), r"\bpsd\b"),
+                                               welch_duration=2.0, psd=-np.ones(513)), r"\bpsd\b"),
     ("sigma psd inf over band", lambda: cs.sigma(TEMPLATES, np.full(NF, np.inf), DF, 20.0), r"\bpsd\b"),
     ("fused psd inf over band", lambda: cs.filter_segment(DATA_FD, np.full(NF, np.inf), DF, 5.0, 5.0, f_low=20.0),
      r"\bpsd\b"),
@@ -624,7 +624,7 @@ MASS_SPIN_CASES = [
     ("bank m2 zero", lambda: Bank.from_any({"m1": [1.0], "m2": [0.0]}), r"\bm2\b"),
     ("bank chi1 one", lambda: Bank.from_any({"m1": [1.0], "m2": [1.0], "chi1": [1.0]}), r"\bchi1\b"),
     ("search bank spin", lambda: cs.search(STRAIN, 128.0, {"m1": [10.0], "m2": [10.0], "chi2": [-1.0]}, f_low=30.0,
-                                            segment_duration=8.0, psd_segment_duration=2.0), r"\bchi2\b"),
+                                            segment_duration=8.0, welch_duration=2.0), r"\bchi2\b"),
 ]
 
 BAND_CASES = [
@@ -643,15 +643,15 @@ BAND_CASES = [
     ("fused f_high below f_low", lambda: cs.filter_segment(DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=40.0, f_high=30.0),
      r"\bf_high\b"),
     ("search f_low at nyquist", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=64.0, segment_duration=8.0,
-                                                   psd_segment_duration=2.0), r"\bf_low\b"),
+                                                   welch_duration=2.0), r"\bf_low\b"),
     ("chirp_duration f_low zero", lambda: cs.chirp_duration(1.4, 1.4, 0.0), r"\bf_low\b"),
     ("negative sample_rate", lambda: cs.whiten(X128, PSD65, -128.0), r"\bsample_rate\b"),
     ("zero df", lambda: cs.sigma(TEMPLATES, WHITE_PSD, 0.0, 20.0), r"\bdf\b"),
     ("negative f_low", lambda: cs.snr_series(DATA_FD, TEMPLATES, WHITE_PSD, DF, -1.0), r"\bf_low\b"),
-    ("zero snr_threshold", lambda: cs.filter_segment(DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=20.0, snr_threshold=0.0),
+    ("zero min_snr", lambda: cs.filter_segment(DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=20.0, min_snr=0.0),
      r"\bsnr_threshold\b"),
-    ("negative cluster_window", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                                   psd_segment_duration=2.0, cluster_window=-1.0), r"\bcluster_window\b"),
+    ("negative peak_window", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
+                                                   welch_duration=2.0, peak_window=-1.0), r"\bcluster_window\b"),
     ("zero threads", lambda: cs.set_threads(0), r"\bn\b"),
     ("overlap one", lambda: cs.welch(NOISE, 64.0, 2.0, overlap=1.0), r"\boverlap\b"),
     ("negative dof", lambda: cs.reweighted_snr([5.0], [1.0], [-2]), r"\bdof\b"),
@@ -678,12 +678,12 @@ LENGTH_CASES = [
     ("taylorf2 f_high length", lambda: cs.taylorf2([1.0, 2.0], 1.0, f_low=20.0, df=1.0, n_freq=65,
                                                     f_high=[50.0, 60.0, 70.0]), r"\bf_high\b"),
     ("search psd array bins", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                                 psd_segment_duration=2.0, psd=np.ones(100)), r"\bpsd\b"),
+                                                 welch_duration=2.0, psd=np.ones(100)), r"\bpsd\b"),
     ("search psd pair lengths", lambda: cs.search(STRAIN, 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                                   psd_segment_duration=2.0, psd=(np.arange(10.0), np.ones(9))),
+                                                   welch_duration=2.0, psd=(np.arange(10.0), np.ones(9))),
      r"\bpsd\b"),
     ("search strain too short", lambda: cs.search(STRAIN[:500], 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                                   psd_segment_duration=2.0), r"\bstrain\b"),
+                                                   welch_duration=2.0), r"\bstrain\b"),
     ("reweighted lengths", lambda: cs.reweighted_snr([1.0, 2.0], [1.0, 2.0, 3.0], [2]), r"\bsnr\b"),
     ("cluster lengths", lambda: cs.cluster_in_time([0.0, 1.0], [1.0], 1.0), r"\btimes\b"),
     ("cluster groups length", lambda: cs.cluster_in_time([0.0, 1.0], [1.0, 2.0], 1.0, groups=[0]), r"\bgroups\b"),
@@ -706,7 +706,7 @@ DIM_CASES = [
     ("correlate 3-D templates", lambda: cs.correlate(np.ones(5), np.ones((1, 1, 2))), r"\btemplates\b"),
     ("fused 2-D data", lambda: cs.filter_segment(DATA_FD[None], WHITE_PSD, DF, 5.0, 5.0, f_low=20.0), r"\bdata_fd\b"),
     ("search 2-D strain", lambda: cs.search(STRAIN[None], 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                             psd_segment_duration=2.0), r"\bstrain\b"),
+                                             welch_duration=2.0), r"\bstrain\b"),
     ("cluster 2-D times", lambda: cs.cluster_in_time(np.ones((2, 2)), np.ones((2, 2)), 1.0), r"\btimes\b"),
     ("bank 1-D array", lambda: Bank.from_any(np.ones(2)), r"\bbank\b"),
     ("bank 3 columns", lambda: Bank.from_any(np.ones((2, 3))), r"\bbank\b"),
@@ -729,9 +729,9 @@ EMPTY_CASES = [
     ("correlate templates", lambda: cs.correlate(np.ones(5), np.ones((0, 3))), r"\btemplates\b"),
     ("fused masses", lambda: cs.filter_segment(DATA_FD, WHITE_PSD, DF, [], 5.0, f_low=20.0), r"\bm1\b"),
     ("search strain", lambda: cs.search([], 128.0, TINY_BANK, f_low=30.0, segment_duration=8.0,
-                                         psd_segment_duration=2.0), r"\bstrain\b"),
+                                         welch_duration=2.0), r"\bstrain\b"),
     ("search bank", lambda: cs.search(STRAIN, 128.0, Bank([], []), f_low=30.0, segment_duration=8.0,
-                                       psd_segment_duration=2.0), r"\bbank\b"),
+                                       welch_duration=2.0), r"\bbank\b"),
 ]
 
 TYPE_CASES = [
@@ -753,8 +753,8 @@ TYPE_CASES = [
     ("sigma templates str", lambda: cs.sigma(np.array(["a"] * NF), WHITE_PSD, DF, 20.0), r"\btemplates\b"),
     ("snr dtype", lambda: cs.snr_series(DATA_FD, TEMPLATES, WHITE_PSD, DF, 20.0, dtype=np.float32), r"\bdtype\b"),
     ("correlate complex", lambda: cs.correlate(np.ones(5, complex), np.ones(2)), r"\bdata\b"),
-    ("fused chisq_bins float", lambda: cs.filter_segment(DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=20.0,
-                                                          chisq_bins=4.0), r"\bchisq_bins\b"),
+    ("fused chi2_bands float", lambda: cs.filter_segment(DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=20.0,
+                                                          chi2_bands=4.0), r"\bchi2_bands\b"),
     ("search bank list", lambda: cs.search(STRAIN, 128.0, [[10.0, 10.0]], f_low=30.0), r"\bbank\b"),
     ("set_threads float", lambda: cs.set_threads(2.0), r"\bn\b"),
     ("set_threads None", lambda: cs.set_threads(None), r"\bn\b"),
@@ -842,10 +842,10 @@ def test_regression_taylorf2_huge_n_freq_is_refused():
     _expect_clean_error("cs.taylorf2(1.4, 1.4, f_low=20.0, df=1.0, n_freq=10**13)", "n_freq")
 
 
-def test_regression_filter_segment_huge_chisq_bins_is_refused():
+def test_regression_filter_segment_huge_chi2_bands_is_refused():
     _expect_clean_error(
-        "cs.filter_segment(np.ones(513, complex), np.ones(513), 0.5, 5.0, 5.0, f_low=20.0, chisq_bins=10**12)",
-        "chisq_bins",
+        "cs.filter_segment(np.ones(513, complex), np.ones(513), 0.5, 5.0, 5.0, f_low=20.0, chi2_bands=10**12)",
+        "chi2_bands",
     )
 
 
@@ -895,7 +895,7 @@ def test_regression_set_threads_huge_int_no_overflow_error():
         cs.set_threads(before)
 
 
-@pytest.mark.parametrize("arg", ["chisq_bins", "cluster_samples"])
+@pytest.mark.parametrize("arg", ["chi2_bands", "cluster_samples"])
 def test_regression_filter_segment_huge_int_no_overflow_error(arg):
     call(cs.filter_segment, DATA_FD, WHITE_PSD, DF, 5.0, 5.0, f_low=20.0, names={arg}, **{arg: 10**30})
 
@@ -931,7 +931,7 @@ def test_regression_filter_segment_unvalidated_arguments(kwargs, name):
     call(cs.filter_segment, DATA_FD, WHITE_PSD, DF, [5.0, 6.0], 5.0, f_low=20.0, names={name}, **kwargs)
 
 
-SEARCH_KW = dict(sample_rate=128.0, bank=TINY_BANK, f_low=30.0, segment_duration=8.0, psd_segment_duration=2.0)
+SEARCH_KW = dict(sample_rate=128.0, bank=TINY_BANK, f_low=30.0, segment_duration=8.0, welch_duration=2.0)
 SEARCH_BAD = [
     pytest.param({"t0": "a"}, "t0", id="t0-str"),
     pytest.param({"t0": 1j}, "t0", id="t0-complex"),
@@ -940,8 +940,8 @@ SEARCH_BAD = [
     pytest.param({"psd": object()}, "psd", id="psd-object"),
     pytest.param({"psd": np.array(["a"] * 513)}, "psd", id="psd-str-array"),
     pytest.param({"psd": lambda f: np.ones(3)}, "psd", id="psd-callable-wrong-shape"),
-    pytest.param({"cluster_window": 1e30}, "cluster_window", id="cluster_window-huge"),
-    pytest.param({"chisq_bins": 10**30}, "chisq_bins", id="chisq_bins-huge"),
+    pytest.param({"peak_window": 1e30}, "peak_window", id="peak_window-huge"),
+    pytest.param({"chi2_bands": 10**30}, "chi2_bands", id="chi2_bands-huge"),
     pytest.param({"gate_threshold": 1.0, "gate_half_width": 1e300}, "gate_half_width", id="gate_half_width-huge"),
     pytest.param({"gate_threshold": 1.0, "gate_taper": 1e300}, "gate_taper", id="gate_taper-huge"),
     pytest.param({"strain": np.zeros(STRAIN.size)}, "strain", id="strain-all-zero"),

@@ -118,7 +118,7 @@ def test_to_records(bank):
 
 def test_from_any_forms(bank):
     assert Bank.from_any(bank) is bank
-    rec = np.zeros(2, dtype=[("m1", "f4"), ("m2", "f8"), ("template_id", "i8")])
+    rec = np.zeros(2, dtype=[("m1", "f4"), ("m2", "f8"), ("template", "i8")])
     rec["m1"], rec["m2"] = [3.0, 4.0], [1.0, 2.0]
     b = Bank.from_any(rec)
     np.testing.assert_array_equal(b.m1, [3.0, 4.0])

@@ -40,11 +40,11 @@ t0 = 12.5
 [search]
 f-low = 30
 segment-duration = 32.0
-snr-threshold = 6.0
-cluster-window = 0.5
-chisq-bins = 8
+min-snr = 6.0
+peak-window = 0.5
+chi2-bands = 8
 gate-threshold = 40.0
-psd-segment-duration = 2.0
+welch-duration = 2.0
 bank-cluster = true
 """
     )
@@ -58,11 +58,11 @@ bank-cluster = true
     assert cfg.search == {
         "f_low": 30.0,
         "segment_duration": 32.0,
-        "snr_threshold": 6.0,
-        "cluster_window": 0.5,
-        "chisq_bins": 8,
+        "min_snr": 6.0,
+        "peak_window": 0.5,
+        "chi2_bands": 8,
         "gate_threshold": 40.0,
-        "psd_segment_duration": 2.0,
+        "welch_duration": 2.0,
         "bank_cluster": True,
     }
 
@@ -72,7 +72,7 @@ def test_config_unknown_key_lists_allowed(tmp_path):
     p.write_text("[search]\nflow = 20\n")
     with pytest.raises(ValueError, match=r"unknown key\(s\) \['flow'\] in \[search\]") as e:
         load_config(p)
-    for key in ("f-low", "segment-duration", "snr-threshold", "bank-cluster"):
+    for key in ("f-low", "segment-duration", "min-snr", "bank-cluster"):
         assert key in str(e.value)
     p.write_text("[output]\nx = 1\n")
     with pytest.raises(ValueError, match="allowed tables"):
@@ -83,9 +83,9 @@ def test_config_unknown_key_lists_allowed(tmp_path):
     "body, pattern",
     [
         ("[search]\nf-low = -3\n", "f-low must be positive"),
-        ("[search]\nchisq-bins = 2.5\n", "chisq-bins must be a positive integer"),
+        ("[search]\nchi2-bands = 2.5\n", "chi2-bands must be a positive integer"),
         ("[search]\nbank-cluster = 1\n", "bank-cluster must be true or false"),
-        ("[search]\nsnr-threshold = 'high'\n", "snr-threshold must be a number"),
+        ("[search]\nsnr-threshold = 'high'\n", "min-snr must be a number"),
         ("[input]\nstrain = 3\n", "strain must be a non-empty string"),
         ("[search\n", "invalid TOML"),
     ],
@@ -103,8 +103,8 @@ def test_config_missing_file(tmp_path):
 
 
 def test_merge_cli_overrides_file():
-    merged = merge_settings({"f_low": 20.0, "chisq_bins": 16}, {"f_low": 30.0, "chisq_bins": None, "x": 1})
-    assert merged == {"f_low": 30.0, "chisq_bins": 16, "x": 1}
+    merged = merge_settings({"f_low": 20.0, "chi2_bands": 16}, {"f_low": 30.0, "chi2_bands": None, "x": 1})
+    assert merged == {"f_low": 30.0, "chi2_bands": 16, "x": 1}
 
 
 # ---------------------------------------------------------------------------
@@ -268,10 +268,10 @@ def test_search_from_config_with_cli_override(small_run, capsys):
         "[search]\nf-low = 30\nsegment-duration = 32\nsnr-threshold = 50\n"
     )
     out = d / "cfg.parquet"
-    rc = main(["search", "--config", str(cfg), "--snr-threshold", "6", "--output", str(out), "--no-progress"])
+    rc = main(["search", "--config", str(cfg), "--min-snr", "6", "--output", str(out), "--no-progress"])
     assert rc == 0, capsys.readouterr().err
     doc = json.loads((d / "cfg.json").read_text())
-    assert doc["settings"]["snr_threshold"] == 6.0
+    assert doc["settings"]["min_snr"] == 6.0
     assert doc["inputs"]["config"] == os.path.abspath(cfg)
     assert doc["counts"]["triggers"] > 0
 

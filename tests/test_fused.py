@@ -36,7 +36,7 @@ def test_fused_kernel_equals_numpy_twin():
     data = gaussian_noise_fd(rng) + injection(9.0, 7.0, 14.0, 70.3, 0.4)
     m1 = np.array([9.0, 8.5, 10.0, 6.0])
     m2 = np.array([7.0, 7.0, 7.5, 6.0])
-    kw = dict(f_low=F_LOW, snr_threshold=4.5, cluster_samples=256, chisq_bins=8, valid=(int(20 * FS), int(120 * FS)))
+    kw = dict(f_low=F_LOW, min_snr=4.5, cluster_samples=256, chi2_bands=8, valid=(int(20 * FS), int(120 * FS)))
     a = cs.filter_segment(data, PSD, DF, m1, m2, **kw)
     b = ref_segment.filter_segment(data, PSD, DF, m1, m2, **kw)
     assert len(a["snr"]) > 4  # loud injection plus noise peaks in every template
@@ -46,7 +46,7 @@ def test_fused_kernel_equals_numpy_twin():
     np.testing.assert_allclose(a["position"], b["position"], atol=1e-3)
     np.testing.assert_allclose(a["snr"], b["snr"], rtol=1e-4)
     np.testing.assert_allclose(a["sigma"], b["sigma"], rtol=1e-6)
-    np.testing.assert_allclose(a["chisq"], b["chisq"], rtol=1e-3, atol=1e-3)
+    np.testing.assert_allclose(a["chi2"], b["chi2"], rtol=1e-3, atol=1e-3)
     np.testing.assert_allclose(np.angle(np.exp(1j * (a["phase"] - b["phase"]))), 0.0, atol=1e-3)
 
 
@@ -54,7 +54,7 @@ def test_results_do_not_depend_on_thread_count():
     rng = np.random.default_rng(3)
     data = gaussian_noise_fd(rng)
     m1 = np.linspace(5, 12, 9)
-    kw = dict(f_low=F_LOW, snr_threshold=4.0, cluster_samples=100, valid=(int(10 * FS), int(120 * FS)))
+    kw = dict(f_low=F_LOW, min_snr=4.0, cluster_samples=100, valid=(int(10 * FS), int(120 * FS)))
     before = cs.get_threads()
     try:
         cs.set_threads(1)
@@ -84,14 +84,14 @@ def test_noise_peak_rate_follows_rice_formula():
     trials = 8
     count = 0
     for _ in range(trials):
-        out = cs.filter_segment(gaussian_noise_fd(rng), PSD, DF, m1, m2, f_low=F_LOW, snr_threshold=u, valid=valid)
+        out = cs.filter_segment(gaussian_noise_fd(rng), PSD, DF, m1, m2, f_low=F_LOW, min_snr=u, valid=valid)
         count += len(out["snr"])
     expected = trials * (valid[1] - valid[0]) / FS * u * np.sqrt(delta / (2 * np.pi)) * np.exp(-u * u / 2)
     # Poisson counting error; 4 sigma.
     assert abs(count - expected) < 4 * np.sqrt(expected), (count, expected)
 
 
-def test_chisq_in_noise_has_allen_mean():
+def test_chi2_in_noise_has_allen_mean():
     # Allen 2005 (PRD 71, 062001): in Gaussian noise chi^2 has 2p - 2 degrees of
     # freedom, mean 2p - 2. At peaks of |z| the condition d|z|/dt = 0 is one linear
     # constraint on the band sums, which can remove up to one degree of freedom
@@ -101,29 +101,29 @@ def test_chisq_in_noise_has_allen_mean():
     rng = np.random.default_rng(7)
     chis = []
     for _ in range(3):
-        out = cs.filter_segment(gaussian_noise_fd(rng), PSD, DF, 10.0, 8.0, f_low=F_LOW, snr_threshold=2.0,
-                                chisq_bins=p, valid=(int(10 * FS), int(120 * FS)))
-        chis.append(out["chisq"])
-        assert np.all(out["chisq_dof"] == 2 * p - 2)
+        out = cs.filter_segment(gaussian_noise_fd(rng), PSD, DF, 10.0, 8.0, f_low=F_LOW, min_snr=2.0,
+                                chi2_bands=p, valid=(int(10 * FS), int(120 * FS)))
+        chis.append(out["chi2"])
+        assert np.all(out["chi2_dof"] == 2 * p - 2)
     chis = np.concatenate(chis)
     err = 4 * np.sqrt(2 * (2 * p - 2) / chis.size)
     assert 2 * p - 3 - err < chis.mean() < 2 * p - 2 + err, (chis.mean(), chis.size)
 
 
 @pytest.mark.parametrize("snr", [10.0, 40.0])
-def test_exactly_matching_signal_leaves_chisq_at_noise_level(snr):
+def test_exactly_matching_signal_leaves_chi2_at_noise_level(snr):
     # Allen 2005: a signal matching the template contributes z/p to every band, which
     # cancels in z_l - z/p, so chi^2 keeps its noise distribution at any amplitude.
     # With 2p - 2 = 14 dof (p = 8), P(chi^2 > 40) = scipy.stats.chi2.sf(40, 14) = 2.6e-4,
     # so a single trial exceeding 40 signals a failure.
     rng = np.random.default_rng(int(snr))
     data = gaussian_noise_fd(rng) + injection(9.0, 7.0, snr, 64.0 + 0.37 / FS)
-    out = cs.filter_segment(data, PSD, DF, 9.0, 7.0, f_low=F_LOW, snr_threshold=snr / 2, chisq_bins=8,
+    out = cs.filter_segment(data, PSD, DF, 9.0, 7.0, f_low=F_LOW, min_snr=snr / 2, chi2_bands=8,
                             cluster_samples=int(FS), valid=(int(10 * FS), int(120 * FS)))
     loud = int(np.argmax(out["snr"]))
     assert abs(out["snr"][loud] - snr) < 4.0  # SNR of a matching template: optimal SNR +- noise
     assert abs(out["position"][loud] / FS - (64.0 + 0.37 / FS)) < 1.0 / FS
-    assert out["chisq"][loud] < 40.0
+    assert out["chi2"][loud] < 40.0
 
 
 def sine_gaussian_fd(f0, q, t0, snr):
@@ -139,14 +139,14 @@ def test_glitch_is_down_weighted_but_signal_is_not():
     # reweighted SNR then falls well below the SNR. A matching chirp keeps its SNR.
     rng = np.random.default_rng(99)
     data = gaussian_noise_fd(rng) + sine_gaussian_fd(120.0, 9.0, 40.0, 300.0) + injection(9.0, 7.0, 12.0, 90.0)
-    out = cs.filter_segment(data, PSD, DF, 9.0, 7.0, f_low=F_LOW, snr_threshold=6.0, chisq_bins=16,
+    out = cs.filter_segment(data, PSD, DF, 9.0, 7.0, f_low=F_LOW, min_snr=6.0, chi2_bands=16,
                             cluster_samples=int(2 * FS), valid=(int(10 * FS), int(120 * FS)))
     t = out["position"] / FS
-    rw = cs.reweighted_snr(out["snr"], out["chisq"], out["chisq_dof"])
+    rw = cs.reweighted_snr(out["snr"], out["chi2"], out["chi2_dof"])
     glitch = np.argmin(np.abs(t - 40.0))
     chirp = np.argmin(np.abs(t - 90.0))
     assert abs(t[glitch] - 40.0) < 0.5 and abs(t[chirp] - 90.0) < 1.0 / FS
-    assert out["chisq"][glitch] / out["chisq_dof"][glitch] > 10
+    assert out["chi2"][glitch] / out["chi2_dof"][glitch] > 10
     assert rw[glitch] < 0.5 * out["snr"][glitch]
     assert rw[chirp] > 0.9 * out["snr"][chirp]
 
@@ -155,10 +155,10 @@ def test_reweighted_snr_matches_published_check_values():
     # Babak et al. 2013 (arXiv:1208.3491) formula; check values from shared REFERENCES item 7
     # (computed from the formula, which is from memory).
     rho = np.array([10, 10, 10, 8, 12.0])
-    chisq = np.array([30, 60, 150, 100, 20.0])
+    chi2 = np.array([30, 60, 150, 100, 20.0])
     p = np.array([16, 16, 16, 16, 4])
     expected = [10, 7.782717, 5.013141, 4.896591, 7.344887]
-    np.testing.assert_allclose(cs.reweighted_snr(rho, chisq, 2 * p - 2), expected, rtol=1e-6)
+    np.testing.assert_allclose(cs.reweighted_snr(rho, chi2, 2 * p - 2), expected, rtol=1e-6)
 
 
 def test_filter_segment_rejects_bad_input():
@@ -194,7 +194,7 @@ def test_decimated_search_matches_full_rate_series(m1, m2):
     sig = cs.sigma(h, psd, 1 / t, f_low)
     t_c = 50.0 + 0.31 / fs
     data = noise + h * np.exp(-2j * np.pi * f * t_c) * (15.0 / sig)
-    kw = dict(f_low=f_low, snr_threshold=8.0, cluster_samples=int(fs), chisq_bins=8, valid=(int(30 * fs), int(62 * fs)))
+    kw = dict(f_low=f_low, min_snr=8.0, cluster_samples=int(fs), chi2_bands=8, valid=(int(30 * fs), int(62 * fs)))
     a = cs.filter_segment(data, psd, 1 / t, m1, m2, **kw)
     b = ref_segment.filter_segment(data, psd, 1 / t, m1, m2, **kw)
     assert len(a["snr"]) == len(b["snr"]) == 1
@@ -229,11 +229,11 @@ def test_folded_decimation_matches_full_rate_series():
     band = np.count_nonzero(h)
     assert band > n / 16 and 0.5 * (np.pi * sigma_f * 16 / fs) ** 2 < 0.02  # folds at D >= 16
     data = noise + h * np.exp(-2j * np.pi * f * 28.0) * (20.0 / cs.sigma(h, psd, 1 / t, 30.0))
-    kw = dict(f_low=30.0, snr_threshold=10.0, cluster_samples=int(fs), chisq_bins=8, valid=(int(20 * fs), int(31 * fs)))
+    kw = dict(f_low=30.0, min_snr=10.0, cluster_samples=int(fs), chi2_bands=8, valid=(int(20 * fs), int(31 * fs)))
     a = cs.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
     b = ref_segment.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
     assert len(a["snr"]) == len(b["snr"]) == 1
     assert a["index"][0] == b["index"][0]
     assert abs(a["snr"][0] / b["snr"][0] - 1) < 5e-3
     assert abs(a["position"][0] - b["position"][0]) < 0.1
-    assert abs(a["chisq"][0] - b["chisq"][0]) < 1e-3 * max(1.0, b["chisq"][0])
+    assert abs(a["chi2"][0] - b["chi2"][0]) < 1e-3 * max(1.0, b["chi2"][0])

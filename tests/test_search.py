@@ -58,7 +58,7 @@ def test_injection_recovered_at_right_time_template_and_snr():
     x = _data(1, inject=dict(m1=m1, m2=m2, t_coalescence=t_c, distance=float(distance), phase=0.3, t0=t0))
     trig, info = cs.search(x, FS, bank, t0=t0, f_low=30.0, segment_duration=64.0, full_output=True)
     best = trig[np.argmax(trig["snr"])]
-    assert best["template_id"] == 1
+    assert best["template"] == 1
     assert abs(best["time"] - t_c) < 1.0 / FS
     assert abs(best["snr"] - 10.0) < 3.5  # |z| fluctuates by ~1 around the optimal SNR
     assert info["segments"] >= 4
@@ -77,16 +77,16 @@ def test_search_on_one_segment_matches_numpy_twin():
 
     x = _data(4, duration=64.0)
     bank = cs.Bank.from_any({"m1": [8.0, 10.0], "m2": [6.0, 8.0]})
-    trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=4.0, cluster_window=0.5)
+    trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, min_snr=4.0, peak_window=0.5)
     psd = ref.truncate_inverse_psd(ref.psd_to_grid(*ref.welch(x, FS, 4.0), 1 / 64.0, x.size // 2 + 1), FS, 4.0, 30.0)
     longest = max(ref.chirp_duration(m1, m2, 30.0) for m1, m2 in zip(bank.m1, bank.m2))
     pad_start = int(np.ceil((longest * 1.1 + 2.0) * FS)) + 1  # search's documented discard
     pad_end = int(np.ceil(2.0 * FS)) + 1
     direct = ref_segment.filter_segment(np.fft.rfft(x) / FS, psd, 1 / 64.0, bank.m1, bank.m2, f_low=30.0,
-                                        snr_threshold=4.0, cluster_samples=512, valid=(pad_start, x.size - pad_end))
+                                        min_snr=4.0, cluster_samples=512, valid=(pad_start, x.size - pad_end))
     assert len(trig) == len(direct["snr"]) > 0
     order = np.argsort(direct["position"], kind="stable")
-    np.testing.assert_array_equal(trig["template_id"], direct["template"][order])
+    np.testing.assert_array_equal(trig["template"], direct["template"][order])
     np.testing.assert_allclose(trig["time"], direct["position"][order] / FS, atol=1e-3 / FS)
     np.testing.assert_allclose(trig["snr"], direct["snr"][order], rtol=1e-4)
 
@@ -113,8 +113,8 @@ def test_gating_removes_loud_glitch_and_reports_it():
 def test_bank_clustering_keeps_one_trigger_per_window():
     x = _data(6, duration=64.0)
     bank = cs.Bank.from_any({"m1": np.linspace(6, 12, 6), "m2": np.full(6, 6.0)})
-    per_template = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=4.0)
-    across = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=4.0, bank_cluster=True)
+    per_template = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, min_snr=4.0)
+    across = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, min_snr=4.0, bank_cluster=True)
     assert 0 < len(across) < len(per_template)
     t = across["time"]
     close = np.abs(t[:, None] - t[None, :]) <= 1.0
@@ -128,8 +128,8 @@ def test_bank_clustering_keeps_one_trigger_per_window():
         (dict(f_low=600.0), "f_low"),
         (dict(f_low=30.0, segment_duration=512.0), "shorter than segment_duration"),
         (dict(f_low=30.0, segment_duration=4.0), "too short"),
-        (dict(f_low=30.0, snr_threshold=-1.0), "snr_threshold"),
-        (dict(f_low=30.0, chisq_bins=1), "chisq_bins"),
+        (dict(f_low=30.0, min_snr=-1.0), "min_snr"),
+        (dict(f_low=30.0, chi2_bands=1), "chi2_bands"),
         (dict(f_low=30.0, psd_duration=32.0), "psd_duration"),
     ],
 )
@@ -166,7 +166,7 @@ def test_signals_at_segment_joins_are_found_exactly_once():
     x = _data(9, duration)
     for t_c in times:
         x = synthetic.inject_taylorf2(x, FS, f_low=25.0, m1=9.0, m2=7.0, t_coalescence=t_c, distance=distance)
-    trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=seg, snr_threshold=15.0, cluster_window=0.5)
+    trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=seg, min_snr=15.0, peak_window=0.5)
     assert len(trig) == len(times)
     np.testing.assert_allclose(np.sort(trig["time"]), np.sort(times), atol=1.0 / FS)
 
@@ -181,7 +181,7 @@ def test_gates_found_in_every_whitening_block_and_nowhere_else():
     t = np.arange(x.size) / FS
     for t0 in (100.0, 430.0):  # different blocks
         x = x + 5e-20 * np.exp(-(((t - t0) / 0.01) ** 2)) * np.sin(2 * np.pi * 150 * t)
-    gates = find_gates(x, FS, 6.0, f_low=30.0, psd_segment_duration=4.0)
+    gates = find_gates(x, FS, 6.0, f_low=30.0, welch_duration=4.0)
     assert len(gates) == 2
     for (a, b), t0 in zip(gates, (100.0, 430.0)):
         assert a / FS < t0 < b / FS
@@ -199,7 +199,7 @@ def test_noise_only_trigger_rate_matches_gaussian_expectation(psd_kwargs):
     bank = cs.Bank.from_any({"m1": [6.0, 10.0, 14.0], "m2": [5.0, 8.0, 10.0]})
     u = 4.5
     x = _data(21, duration=1024.0)
-    trig, info = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, snr_threshold=u, cluster_window=0.05,
+    trig, info = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, min_snr=u, peak_window=0.05,
                            full_output=True, **psd_kwargs)
     start, stop = info["analysed"][0]
     n = int(64 * FS)

@@ -30,8 +30,8 @@ def correlate(data: NDArray[np.float64], templates: NDArray[np.float64], mode: s
 def search_segment(
     data: NDArray[np.complex128], psd: NDArray[np.float64], df: float,
     m1: NDArray[np.float64], m2: NDArray[np.float64], chi1: NDArray[np.float64], chi2: NDArray[np.float64],
-    f_high: NDArray[np.float64], phase_order: int, f_low: float, snr_threshold: float, cluster: int,
-    chisq_bins: int, valid_start: int, valid_stop: int,
+    f_high: NDArray[np.float64], phase_order: int, f_low: float, min_snr: float, cluster: int,
+    chi2_bands: int, valid_start: int, valid_stop: int,
 ) -> dict[str, NDArray[np.generic]]: ...
 def bench_inverse_fft(n: int, repeats: int) -> float: ...
 def bench_template_generation(m1: NDArray[np.float64], m2: NDArray[np.float64], f_low: float, df: float, n_freq: int, repeats: int) -> float: ...

@@ -311,9 +311,9 @@ class Workload:
         """Keyword arguments of :func:`chirpsift.filter_segment` for this workload."""
         return {
             "f_low": self.f_low,
-            "snr_threshold": _SNR_THRESHOLD,
+            "min_snr": _SNR_THRESHOLD,
             "cluster_samples": self.cluster_samples,
-            "chisq_bins": _CHISQ_BINS,
+            "chi2_bands": _CHISQ_BINS,
             "valid": self.valid(),
         }
 
@@ -548,8 +548,8 @@ def _w3_run(w: Workload, bank, threads: int, tmp: str, tag: str) -> dict:
     bank_path = os.path.join(tmp, f"bank-{tag}.npz")
     bank.save(bank_path)
     settings = {"threads": int(threads), "sample_rate": w.sample_rate, "f_low": w.f_low,
-                "segment_duration": w.segment_duration, "psd_segment_duration": _PSD_SEGMENT,
-                "snr_threshold": _SNR_THRESHOLD, "cluster_window": _CLUSTER_WINDOW, "chisq_bins": _CHISQ_BINS}
+                "segment_duration": w.segment_duration, "welch_duration": _PSD_SEGMENT,
+                "min_snr": _SNR_THRESHOLD, "peak_window": _CLUSTER_WINDOW, "chi2_bands": _CHISQ_BINS}
     cmd = [sys.executable, "-c", _W3_LAUNCHER, sys.executable, "-c", _W3_CHILD, strain_path, bank_path,
            json.dumps(settings)]
     r = subprocess.run(cmd, capture_output=True, text=True)

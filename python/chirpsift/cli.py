@@ -37,17 +37,17 @@ __all__ = ["main", "build_parser"]
 PROG = "chirpsift"
 
 #: Trigger fields copied into the run summary for the loudest trigger.
-_LOUDEST_FIELDS = ("time", "template_id", "snr", "reweighted_snr", "chisq", "m1", "m2", "chi1", "chi2")
+_LOUDEST_FIELDS = ("time", "template", "snr", "reweighted_snr", "chi2", "m1", "m2", "spin1", "spin2")
 
 #: search() keyword arguments that the command line and config files can set.
 _SEARCH_ARGS = (
     "f_low",
     "segment_duration",
-    "snr_threshold",
-    "cluster_window",
-    "chisq_bins",
+    "min_snr",
+    "peak_window",
+    "chi2_bands",
     "gate_threshold",
-    "psd_segment_duration",
+    "welch_duration",
     "psd_duration",
     "bank_cluster",
 )
@@ -145,11 +145,11 @@ def build_parser() -> argparse.ArgumentParser:
     g = s.add_argument_group("search settings")
     g.add_argument("--f-low", type=_positive_float, metavar="HZ", help="low-frequency cutoff in Hz (required)")
     g.add_argument("--segment-duration", type=_positive_float, metavar="S", help="analysis segment length, s")
-    g.add_argument("--snr-threshold", type=_positive_float, metavar="X", help="SNR threshold for triggers")
-    g.add_argument("--cluster-window", type=_nonnegative_float, metavar="S", help="trigger clustering window, s")
-    g.add_argument("--chisq-bins", type=_positive_int, metavar="P", help="number of chi-squared frequency bands")
+    g.add_argument("--min-snr", type=_positive_float, metavar="X", help="SNR threshold for triggers")
+    g.add_argument("--peak-window", type=_nonnegative_float, metavar="S", help="trigger clustering window, s")
+    g.add_argument("--chi2-bands", type=_positive_int, metavar="P", help="number of chi-squared frequency bands")
     g.add_argument("--gate-threshold", type=_positive_float, metavar="X", help="threshold for gating loud glitches")
-    g.add_argument("--psd-segment-duration", type=_positive_float, metavar="S", help="Welch segment length, s")
+    g.add_argument("--welch-duration", type=_positive_float, metavar="S", help="Welch segment length, s")
     g.add_argument("--psd-duration", type=_positive_float, metavar="S",
                    help="seconds of data per PSD estimate, centred on each segment (default: the segment)")
     g.add_argument(
@@ -363,7 +363,7 @@ def _cmd_search(args, argv) -> int:
     write_json_atomic(summary_path, doc)
 
     counts = doc["counts"]
-    threshold = doc["settings"].get("snr_threshold")
+    threshold = doc["settings"].get("min_snr")
     above = f" above SNR {threshold:g}" if threshold is not None else ""
     print(
         f"Searched {strain.duration:g} s of strain from {strain.source} ({strain.sample_rate:g} Hz, "

@@ -12,11 +12,11 @@ A configuration file has up to two tables, with kebab-case keys::
     [search]
     f-low = 20.0                 # Hz
     segment-duration = 256.0     # s
-    snr-threshold = 5.5
-    cluster-window = 1.0         # s
-    chisq-bins = 16
+    min-snr = 5.5
+    peak-window = 1.0         # s
+    chi2-bands = 16
     gate-threshold = 50.0
-    psd-segment-duration = 4.0   # s
+    welch-duration = 4.0   # s
     psd-duration = 1024.0        # s of data per PSD estimate
     bank-cluster = false
 
@@ -39,11 +39,11 @@ __all__ = ["RunConfig", "load_config", "merge_settings", "SEARCH_KEYS", "INPUT_K
 SEARCH_KEYS: dict[str, tuple[str, str]] = {
     "f-low": ("f_low", "positive"),
     "segment-duration": ("segment_duration", "positive"),
-    "snr-threshold": ("snr_threshold", "positive"),
-    "cluster-window": ("cluster_window", "nonnegative"),
-    "chisq-bins": ("chisq_bins", "count"),
+    "min-snr": ("min_snr", "positive"),
+    "peak-window": ("peak_window", "nonnegative"),
+    "chi2-bands": ("chi2_bands", "count"),
     "gate-threshold": ("gate_threshold", "positive"),
-    "psd-segment-duration": ("psd_segment_duration", "positive"),
+    "welch-duration": ("welch_duration", "positive"),
     "psd-duration": ("psd_duration", "positive"),
     "bank-cluster": ("bank_cluster", "bool"),
 }

@@ -15,7 +15,7 @@ from .waveform import _masses, _phase_order, _spins
 __all__ = ["filter_segment", "TRIGGER_COLUMNS"]
 
 #: Columns returned by :func:`filter_segment`.
-TRIGGER_COLUMNS = ("template", "index", "position", "snr", "phase", "sigma", "chisq", "chisq_dof")
+TRIGGER_COLUMNS = ("template", "index", "position", "snr", "phase", "sigma", "chi2", "chi2_dof")
 
 
 def _valid_range(valid, n):
@@ -50,9 +50,9 @@ def filter_segment(
     *,
     f_low,
     f_high=None,
-    snr_threshold=5.5,
+    min_snr=5.5,
     cluster_samples=0,
-    chisq_bins=16,
+    chi2_bands=16,
     valid=None,
     phase_order=7,
 ):
@@ -73,12 +73,12 @@ def filter_segment(
         Lower frequency cutoff (Hz).
     f_high : float or array_like, optional
         Upper cutoffs (Hz, exclusive); default each template's ISCO frequency.
-    snr_threshold : float, optional
+    min_snr : float, optional
         Samples with ``|z|`` at or above this are peak candidates.
     cluster_samples : int, optional
         A peak survives only if no louder peak of the same template lies within this
         many samples (ties go to the earlier one).
-    chisq_bins : int, optional
+    chi2_bands : int, optional
         Number ``p`` of frequency bands of equal expected SNR^2 for Allen's chi-squared.
     valid : (int, int), optional
         Analysable samples ``[start, stop)``; default all but the first and last sample.
@@ -92,8 +92,8 @@ def filter_segment(
         template and then time: ``template`` (index), ``index`` (peak sample),
         ``position`` (refined peak, fractional samples from the segment start),
         ``snr`` and ``phase`` (``|z|`` and ``arg z`` evaluated exactly at
-        ``position``), ``sigma`` (norm of the template at 1 Mpc), ``chisq`` and
-        ``chisq_dof`` (``2 p - 2``).
+        ``position``), ``sigma`` (norm of the template at 1 Mpc), ``chi2`` and
+        ``chi2_dof`` (``2 p - 2``).
 
     Notes
     -----
@@ -138,11 +138,11 @@ def filter_segment(
             raise ValueError(f"f_high must be a scalar or hold one value per template ({m1v.shape[0]}), got shape {fh.shape}") from None
     if not np.all(fh > fl):
         raise ValueError(f"f_high must exceed f_low={fl} Hz for every template, got min {fh.min()} Hz")
-    thr = positive_scalar("snr_threshold", snr_threshold)
+    thr = positive_scalar("min_snr", min_snr)
     # A window longer than the segment clusters the whole segment, as n does.
     cl = min(positive_int("cluster_samples", cluster_samples, minimum=0), n)
     k_low = int(np.ceil(fl / dfv))
-    bins = positive_int("chisq_bins", chisq_bins, minimum=2, maximum=max(2, d.shape[0] - k_low))
+    bins = positive_int("chi2_bands", chi2_bands, minimum=2, maximum=max(2, d.shape[0] - k_low))
     start, stop = _valid_range(valid, n)
     if not np.isfinite(p[int(np.ceil(fl / dfv)):]).any():
         raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")

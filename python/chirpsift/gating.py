@@ -9,21 +9,21 @@ from .spectrum import psd_to_grid, truncate_inverse_psd, welch, whiten
 __all__ = ["find_gates", "apply_gates"]
 
 
-#: Whitening block length for gating, in units of ``psd_segment_duration``.
+#: Whitening block length for gating, in units of ``welch_duration``.
 BLOCK_SEGMENTS = 64
 
 
-def _loud_samples(strain, sample_rate, threshold, f_low, psd_segment_duration):
+def _loud_samples(strain, sample_rate, threshold, f_low, welch_duration):
     """Indices whose whitened amplitude exceeds ``threshold``, block by block.
 
-    Each block of ``BLOCK_SEGMENTS * psd_segment_duration`` is whitened with its own
+    Each block of ``BLOCK_SEGMENTS * welch_duration`` is whitened with its own
     median PSD (so slow changes of the noise level are followed and memory stays
-    bounded on long data), padded by ``psd_segment_duration`` of neighbouring data
+    bounded on long data), padded by ``welch_duration`` of neighbouring data
     so the truncated whitening filter's wrap-around never reaches the block.
     """
     n = strain.shape[0]
-    core = int(round(BLOCK_SEGMENTS * psd_segment_duration * sample_rate))
-    pad = int(round(psd_segment_duration * sample_rate))
+    core = int(round(BLOCK_SEGMENTS * welch_duration * sample_rate))
+    pad = int(round(welch_duration * sample_rate))
     edge = pad // 2  # the data's own ends: corrupted, never examined
     loud = []
     for start in range(0, n, core):
@@ -35,9 +35,9 @@ def _loud_samples(strain, sample_rate, threshold, f_low, psd_segment_duration):
                 hi -= 1
         block = strain[lo:hi]
         m = block.shape[0]
-        freqs, psd = welch(block, sample_rate, psd_segment_duration, average="median")
+        freqs, psd = welch(block, sample_rate, welch_duration, average="median")
         grid = psd_to_grid(freqs, psd, sample_rate / m, m // 2 + 1)
-        smooth = truncate_inverse_psd(grid, sample_rate, psd_segment_duration, f_low)
+        smooth = truncate_inverse_psd(grid, sample_rate, welch_duration, f_low)
         white = whiten(block, smooth, sample_rate, f_low)
         a, b = max(start, edge), min(start + core, n - edge)
         if b > a:
@@ -45,20 +45,20 @@ def _loud_samples(strain, sample_rate, threshold, f_low, psd_segment_duration):
     return np.concatenate(loud) if loud else np.zeros(0, dtype=int)
 
 
-def find_gates(strain, sample_rate, threshold, *, f_low, psd_segment_duration=4.0, half_width=0.25):
+def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, half_width=0.25):
     """Sample intervals around whitened samples louder than ``threshold``.
 
     Parameters
     ----------
     strain : ndarray, shape (n,)
-        Data (finite), at least one ``psd_segment_duration`` long.
+        Data (finite), at least one ``welch_duration`` long.
     sample_rate : float
         Hz.
     threshold : float
         Gate where the whitened data exceed this many standard deviations.
     f_low : float
         Whitening low-frequency cutoff (Hz).
-    psd_segment_duration : float
+    welch_duration : float
         Welch segment length (s) of the median PSD, also the length of the truncated
         whitening filter. Data are whitened in blocks of 64 such lengths, each with its
         own PSD; the first and last half filter length of the data are not examined
@@ -72,7 +72,7 @@ def find_gates(strain, sample_rate, threshold, *, f_low, psd_segment_duration=4.
         Merged, sorted half-open sample intervals to zero.
     """
     n = strain.shape[0]
-    loud = _loud_samples(strain, sample_rate, threshold, f_low, psd_segment_duration)
+    loud = _loud_samples(strain, sample_rate, threshold, f_low, welch_duration)
     hw = int(round(half_width * sample_rate))
     gates: list[tuple[int, int]] = []
     for i in loud:

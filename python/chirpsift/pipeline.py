@@ -24,17 +24,17 @@ __all__ = ["search", "TRIGGER_DTYPE", "GatingWarning"]
 TRIGGER_DTYPE = np.dtype(
     [
         ("time", "f8"),  # absolute coalescence time, t0 + offset (s)
-        ("template_id", "i4"),  # row of the bank
+        ("template", "i4"),  # row of the bank
         ("snr", "f4"),  # |z| at the refined peak
         ("phase", "f4"),  # arg z at the refined peak (rad)
         ("sigma", "f8"),  # template norm at 1 Mpc: effective distance = sigma / snr Mpc
-        ("chisq", "f4"),  # Allen's chi-squared
-        ("chisq_dof", "i4"),  # 2 p - 2
+        ("chi2", "f4"),  # Allen's chi-squared
+        ("chi2_dof", "i4"),  # 2 p - 2
         ("reweighted_snr", "f4"),  # Babak et al. 2013
         ("m1", "f8"),
         ("m2", "f8"),
-        ("chi1", "f8"),
-        ("chi2", "f8"),
+        ("spin1", "f8"),  # aligned spin chi1 of the template (named apart from the chi2 column)
+        ("spin2", "f8"),  # aligned spin chi2 of the template
     ]
 )
 
@@ -74,11 +74,11 @@ def _check_psd_argument(psd):
     return psd_array("psd", psd, ndim=1)
 
 
-def _segment_psd(psd, block, sample_rate, n_freq, df, psd_segment_duration, f_low):
+def _segment_psd(psd, block, sample_rate, n_freq, df, welch_duration, f_low):
     """PSD on the segment's grid (estimated from ``block`` when ``psd`` is None), then
     inverse spectrum truncation."""
     if psd is None:
-        freqs, est = welch(block, sample_rate, psd_segment_duration, average="median")
+        freqs, est = welch(block, sample_rate, welch_duration, average="median")
         grid = psd_to_grid(freqs, est, df, n_freq)
     elif isinstance(psd, str):
         grid = design_psd(np.arange(n_freq) * df, psd)
@@ -92,7 +92,7 @@ def _segment_psd(psd, block, sample_rate, n_freq, df, psd_segment_duration, f_lo
         grid = psd
         if grid.shape != (n_freq,):
             raise ValueError(f"psd given as an array must have {n_freq} bins (the segment's rfft grid), got shape {grid.shape}")
-    return truncate_inverse_psd(grid, sample_rate, psd_segment_duration, f_low)
+    return truncate_inverse_psd(grid, sample_rate, welch_duration, f_low)
 
 
 def search(
@@ -104,13 +104,13 @@ def search(
     f_low,
     psd=None,
     segment_duration=256.0,
-    snr_threshold=5.5,
-    cluster_window=1.0,
-    chisq_bins=16,
+    min_snr=5.5,
+    peak_window=1.0,
+    chi2_bands=16,
     gate_threshold=None,
     gate_half_width=0.25,
     gate_taper=0.125,
-    psd_segment_duration=4.0,
+    welch_duration=4.0,
     psd_duration=None,
     bank_cluster=False,
     phase_order=7,
@@ -138,25 +138,25 @@ def search(
         ``(freqs, values)`` pair, or values on the segment's rfft grid are used as given.
     segment_duration : float, optional
         Segment length (s). Each segment discards its first
-        ``max template duration + psd_segment_duration / 2`` and its last
-        ``psd_segment_duration / 2`` seconds of filter output (wrap-around).
-    snr_threshold : float, optional
+        ``max template duration + welch_duration / 2`` and its last
+        ``welch_duration / 2`` seconds of filter output (wrap-around).
+    min_snr : float, optional
         Minimum SNR of a peak.
-    cluster_window : float, optional
+    peak_window : float, optional
         Half-width (s) of the per-template clustering window: a trigger is kept only
         if no louder peak of the same template lies within it.
-    chisq_bins : int, optional
+    chi2_bands : int, optional
         Number ``p`` of frequency bands of the chi-squared test (dof ``2p - 2``).
     gate_threshold : float, optional
         If set, samples whose whitened amplitude exceeds this are gated (zeroed over
         ``gate_half_width`` s either side with ``gate_taper`` s inverse Tukey tapers,
-        each at most ``psd_segment_duration``) before filtering. Gates are reported (a :class:`GatingWarning` and ``info``).
+        each at most ``welch_duration``) before filtering. Gates are reported (a :class:`GatingWarning` and ``info``).
     gate_half_width : float, optional
-        Seconds zeroed on either side of each loud sample (at most ``psd_segment_duration``).
+        Seconds zeroed on either side of each loud sample (at most ``welch_duration``).
     gate_taper : float, optional
         Length (s) of the half-cosine taper on each side of a gate (at most
-        ``psd_segment_duration``).
-    psd_segment_duration : float, optional
+        ``welch_duration``).
+    welch_duration : float, optional
         Welch segment length (s) and length of the truncated inverse-PSD filter.
     psd_duration : float, optional
         Seconds of data, centred on each segment (shifted inward at the ends of the
@@ -166,7 +166,7 @@ def search(
         of the noise more slowly.
     bank_cluster : bool, optional
         After per-template clustering, also keep only the trigger with the largest
-        reweighted SNR within ``cluster_window`` across the whole bank.
+        reweighted SNR within ``peak_window`` across the whole bank.
     phase_order : int, optional
         PN order of the template phase (twice the PN order).
     progress : bool, optional
@@ -220,12 +220,12 @@ def search(
     if fl >= fs / 2:
         raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz of sample_rate={fs} Hz")
     seg_len = int(round(positive_scalar("segment_duration", segment_duration) * fs)) // 2 * 2
-    t_spec = positive_scalar("psd_segment_duration", psd_segment_duration)
-    thr = positive_scalar("snr_threshold", snr_threshold)
-    window = nonnegative_scalar("cluster_window", cluster_window)
-    bins = positive_int("chisq_bins", chisq_bins, minimum=2)
+    t_spec = positive_scalar("welch_duration", welch_duration)
+    thr = positive_scalar("min_snr", min_snr)
+    window = nonnegative_scalar("peak_window", peak_window)
+    bins = positive_int("chi2_bands", chi2_bands, minimum=2)
     if t_spec * fs > seg_len:
-        raise ValueError(f"psd_segment_duration={t_spec} s is longer than segment_duration={segment_duration} s")
+        raise ValueError(f"welch_duration={t_spec} s is longer than segment_duration={segment_duration} s")
     psd_len = seg_len if psd_duration is None else int(round(positive_scalar("psd_duration", psd_duration) * fs))
     if psd_len < seg_len:
         raise ValueError(f"psd_duration={psd_duration} s must be at least segment_duration={segment_duration} s")
@@ -260,8 +260,8 @@ def search(
         gthr = positive_scalar("gate_threshold", gate_threshold)
         for name, value in (("gate_half_width", gate_half_width), ("gate_taper", gate_taper)):
             if nonnegative_scalar(name, value) > t_spec:
-                raise ValueError(f"{name}={value} s is longer than psd_segment_duration={t_spec} s: gates are for short transients")
-        gates = find_gates(x, fs, gthr, f_low=fl, psd_segment_duration=t_spec,
+                raise ValueError(f"{name}={value} s is longer than welch_duration={t_spec} s: gates are for short transients")
+        gates = find_gates(x, fs, gthr, f_low=fl, welch_duration=t_spec,
                            half_width=float(gate_half_width))
         if gates:
             x = apply_gates(x, fs, gates, taper=float(gate_taper))
@@ -289,8 +289,8 @@ def search(
                 seg_psd = fixed_psd
             data_fd = np.fft.rfft(segment) / fs
             found = filter_segment(
-                data_fd, seg_psd, df, b.m1, b.m2, b.chi1, b.chi2, f_low=fl, snr_threshold=thr,
-                cluster_samples=cluster_samples, chisq_bins=bins,
+                data_fd, seg_psd, df, b.m1, b.m2, b.chi1, b.chi2, f_low=fl, min_snr=thr,
+                cluster_samples=cluster_samples, chi2_bands=bins,
                 valid=(plan.valid_start, plan.valid_stop), phase_order=phase_order,
             )
             found["time"] = t_start + (plan.start + found["position"]) / fs
@@ -305,7 +305,7 @@ def search(
     merged = {k: np.concatenate(v) for k, v in columns.items()}
     keep = cluster_in_time(merged["time"], merged["snr"], window, groups=merged["template"])
     merged = {k: v[keep] for k, v in merged.items()}
-    rw = reweighted_snr(merged["snr"], merged["chisq"], merged["chisq_dof"])
+    rw = reweighted_snr(merged["snr"], merged["chi2"], merged["chi2_dof"])
     if bank_cluster and rw.size:
         keep = cluster_in_time(merged["time"], rw, window)
         merged = {k: v[keep] for k, v in merged.items()}
@@ -314,11 +314,11 @@ def search(
     out = np.zeros(order.size, dtype=TRIGGER_DTYPE)
     tid = merged["template"][order]
     out["time"] = merged["time"][order]
-    out["template_id"] = tid
-    for name in ("snr", "phase", "sigma", "chisq", "chisq_dof"):
+    out["template"] = tid
+    for name in ("snr", "phase", "sigma", "chi2", "chi2_dof"):
         out[name] = merged[name][order]
     out["reweighted_snr"] = rw[order]
-    out["m1"], out["m2"], out["chi1"], out["chi2"] = b.m1[tid], b.m2[tid], b.chi1[tid], b.chi2[tid]
+    out["m1"], out["m2"], out["spin1"], out["spin2"] = b.m1[tid], b.m2[tid], b.chi1[tid], b.chi2[tid]
     if not full_output:
         return out
     info = {

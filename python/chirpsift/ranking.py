@@ -9,14 +9,14 @@ from ._validate import real_array
 __all__ = ["reweighted_snr"]
 
 
-def reweighted_snr(snr, chisq, dof):
+def reweighted_snr(snr, chi2, dof):
     """Reweighted SNR of Babak et al. (2013).
 
     Parameters
     ----------
     snr : array_like
         Matched-filter SNR ``rho``.
-    chisq : array_like
+    chi2 : array_like
         Allen's chi-squared value.
     dof : array_like
         Its degrees of freedom, ``2 p - 2`` for ``p`` bins.
@@ -24,7 +24,7 @@ def reweighted_snr(snr, chisq, dof):
     Returns
     -------
     ndarray
-        ``rho`` where the reduced chi-squared ``chi_r^2 = chisq / dof <= 1``, else
+        ``rho`` where the reduced chi-squared ``chi_r^2 = chi2 / dof <= 1``, else
         ``rho [(1 + (chi_r^2)^3) / 2]^(-1/6)``: triggers whose power is distributed
         over frequency unlike the template's are down-weighted.
 
@@ -34,9 +34,9 @@ def reweighted_snr(snr, chisq, dof):
        coalescence", Phys. Rev. D 87, 024033 (2013), arXiv:1208.3491.
     """
     rho = real_array("snr", snr, ndim=range(0, 8), allow_empty=True)
-    chi = real_array("chisq", chisq, ndim=range(0, 8), allow_empty=True)
+    chi = real_array("chi2", chi2, ndim=range(0, 8), allow_empty=True)
     nu = real_array("dof", dof, ndim=range(0, 8), allow_empty=True)
-    for name, a, low in (("snr", rho, 0.0), ("chisq", chi, 0.0)):
+    for name, a, low in (("snr", rho, 0.0), ("chi2", chi, 0.0)):
         if np.any(a < low):
             raise ValueError(f"{name} must be non-negative, got {a.min()}")
     if np.any(nu <= 0):
@@ -44,7 +44,7 @@ def reweighted_snr(snr, chisq, dof):
     try:
         rho, chi, nu = np.broadcast_arrays(rho, chi, nu)
     except ValueError as exc:
-        raise ValueError(f"snr, chisq and dof must broadcast together, got shapes {rho.shape}, {chi.shape}, {nu.shape}") from exc
+        raise ValueError(f"snr, chi2 and dof must broadcast together, got shapes {rho.shape}, {chi.shape}, {nu.shape}") from exc
     r2 = chi / nu
     factor = np.where(r2 > 1.0, ((1.0 + r2**3) / 2.0) ** (-1.0 / 6.0), 1.0)
     return rho * factor

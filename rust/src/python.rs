@@ -337,9 +337,9 @@ fn search_segment<'py>(
     f_high: PyReadonlyArray1<'py, f64>,
     phase_order: usize,
     f_low: f64,
-    snr_threshold: f64,
+    min_snr: f64,
     cluster: usize,
-    chisq_bins: usize,
+    chi2_bands: usize,
     valid_start: usize,
     valid_stop: usize,
 ) -> PyResult<Bound<'py, pyo3::types::PyDict>> {
@@ -353,9 +353,9 @@ fn search_segment<'py>(
     );
     let settings = search::Settings {
         f_low,
-        snr_threshold,
+        min_snr,
         cluster,
-        chisq_bins,
+        chi2_bands,
         valid_start,
         valid_stop,
     };
@@ -382,8 +382,8 @@ fn search_segment<'py>(
     out.set_item("snr", floats(|t| t.snr))?;
     out.set_item("phase", floats(|t| t.phase))?;
     out.set_item("sigma", floats(|t| t.sigma))?;
-    out.set_item("chisq", floats(|t| t.chisq))?;
-    out.set_item("chisq_dof", ints(|t| t.chisq_dof as i64))?;
+    out.set_item("chi2", floats(|t| t.chi2))?;
+    out.set_item("chi2_dof", ints(|t| t.chi2_dof as i64))?;
     Ok(out)
 }
 

@@ -159,10 +159,10 @@ pub const MAX_DECIMATION_LOSS: f64 = 0.02;
 #[derive(Clone, Debug)]
 pub struct Settings {
     pub f_low: f64,
-    pub snr_threshold: f64,
+    pub min_snr: f64,
     /// Half-width, in samples, within which only the loudest peak survives.
     pub cluster: usize,
-    pub chisq_bins: usize,
+    pub chi2_bands: usize,
     /// Analysable samples `[valid_start, valid_stop)` of the segment.
     pub valid_start: usize,
     pub valid_stop: usize,
@@ -187,8 +187,8 @@ pub struct Trigger {
     pub phase: f64,
     /// Template norm (template at 1 Mpc), strain units.
     pub sigma: f64,
-    pub chisq: f64,
-    pub chisq_dof: usize,
+    pub chi2: f64,
+    pub chi2_dof: usize,
 }
 
 struct Scratch {
@@ -216,7 +216,7 @@ pub fn search_segment(
             )
         },
     )?;
-    ensure(s.chisq_bins >= 2, "chisq_bins", || {
+    ensure(s.chi2_bands >= 2, "chi2_bands", || {
         "must be at least 2 (2p - 2 degrees of freedom)".into()
     })?;
     // One plan per decimation D = 2^i (transform length N / D), planned once here.
@@ -324,7 +324,7 @@ fn filter_one(
     let to_snr = seg.q_scale / sigma_unit;
     plans[dec.trailing_zeros() as usize].process_with_scratch(buf, &mut scratch.fft_scratch);
 
-    let threshold = s.snr_threshold / to_snr;
+    let threshold = s.min_snr / to_snr;
     // (peak sample, refined position) of every surviving peak, in time order.
     let kept: Vec<(usize, f64)> = if dec == 1 {
         let peaks = find_peaks(
@@ -374,7 +374,7 @@ fn filter_one(
             let j = c + best as i64 - 2;
             let is_peak = mag[best] > mag[best - 1] && mag[best] >= mag[best + 1];
             if !is_peak
-                || mag[best] < s.snr_threshold
+                || mag[best] < s.min_snr
                 || j < s.valid_start as i64
                 || j >= s.valid_stop as i64
             {
@@ -401,11 +401,11 @@ fn filter_one(
         return Vec::new();
     }
     let positions: Vec<f64> = kept.iter().map(|k| k.1).collect();
-    let evals = evaluate_bands(seg, t, k_lo, k_hi, inv_h, norm, &positions, s.chisq_bins);
+    let evals = evaluate_bands(seg, t, k_lo, k_hi, inv_h, norm, &positions, s.chi2_bands);
     kept.iter()
         .zip(evals)
         .map(|(&(j, pos), bands)| {
-            let (z, chisq) = combine_bands(&bands, to_snr);
+            let (z, chi2) = combine_bands(&bands, to_snr);
             Trigger {
                 template: index,
                 index: j,
@@ -413,8 +413,8 @@ fn filter_one(
                 snr: z.norm(),
                 phase: z.arg(),
                 sigma,
-                chisq,
-                chisq_dof: 2 * s.chisq_bins - 2,
+                chi2,
+                chi2_dof: 2 * s.chi2_bands - 2,
             }
         })
         .collect()
@@ -557,12 +557,12 @@ fn evaluate_bands(
 fn combine_bands(bands: &[Complex64], to_snr: f64) -> (Complex64, f64) {
     let p = bands.len() as f64;
     let z: Complex64 = bands.iter().sum::<Complex64>() * to_snr;
-    let chisq = bands
+    let chi2 = bands
         .iter()
         .map(|b| (b * to_snr - z / p).norm_sqr())
         .sum::<f64>()
         * p;
-    (z, chisq)
+    (z, chi2)
 }
 
 #[cfg(test)]
@@ -578,11 +578,11 @@ mod tests {
     }
 
     #[test]
-    fn chisq_vanishes_when_bands_share_equally() {
+    fn chi2_vanishes_when_bands_share_equally() {
         // Allen 2005 (PRD 71, 062001): z_l = z / p for a signal matching the template.
         let bands = vec![Complex64::new(1.0, 2.0); 8];
-        let (z, chisq) = combine_bands(&bands, 0.5);
+        let (z, chi2) = combine_bands(&bands, 0.5);
         assert!((z - Complex64::new(4.0, 8.0)).norm() < 1e-12);
-        assert!(chisq.abs() < 1e-20);
+        assert!(chi2.abs() < 1e-20);
     }
 }

@@ -30,8 +30,8 @@ def cluster_peaks(index, value, window):
     return np.asarray(kept, dtype=int)
 
 
-def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_high=None, snr_threshold=5.5,
-                   cluster_samples=0, chisq_bins=16, valid=None, phase_order=7):
+def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_high=None, min_snr=5.5,
+                   cluster_samples=0, chi2_bands=16, valid=None, phase_order=7):
     """Same contract as :func:`chirpsift.filter_segment` (see its docstring).
 
     References
@@ -48,8 +48,8 @@ def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_hig
     start, stop = (1, n - 1) if valid is None else valid
     f = np.arange(n_freq) * df
     inv = np.where(np.isfinite(s), 1.0 / s, 0.0)
-    p = int(chisq_bins)
-    columns = {c: [] for c in ("template", "index", "position", "snr", "phase", "sigma", "chisq", "chisq_dof")}
+    p = int(chi2_bands)
+    columns = {c: [] for c in ("template", "index", "position", "snr", "phase", "sigma", "chi2", "chi2_dof")}
     for i in range(m1.shape[0]):
         h = taylorf2(m1[i], m2[i], chi1[i], chi2[i], f_low=f_low, df=df, n_freq=n_freq, f_high=fh[i],
                      phase_order=phase_order, dtype=np.complex128)[0]
@@ -61,7 +61,7 @@ def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_hig
         sig = np.sqrt(sigma2)
         z = snr_series(d, h, s, df, f_low, fh[i], dtype=np.complex128)[0]
         mag = np.abs(z)
-        peaks = find_peaks(mag, start, stop, snr_threshold)
+        peaks = find_peaks(mag, start, stop, min_snr)
         kept = peaks[cluster_peaks(peaks, mag[peaks], cluster_samples)]
         # Chi-squared bands of equal sigma^2 share; C_k is the norm below bin k.
         below = np.concatenate([[0.0], np.cumsum(weight)[:-1]])
@@ -81,7 +81,7 @@ def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_hig
             columns["snr"].append(abs(zt))
             columns["phase"].append(np.angle(zt))
             columns["sigma"].append(sig)
-            columns["chisq"].append(p * np.sum(np.abs(zl - zt / p) ** 2))
-            columns["chisq_dof"].append(2 * p - 2)
-    kinds = {"template": np.int64, "index": np.int64, "chisq_dof": np.int64}
+            columns["chi2"].append(p * np.sum(np.abs(zl - zt / p) ** 2))
+            columns["chi2_dof"].append(2 * p - 2)
+    kinds = {"template": np.int64, "index": np.int64, "chi2_dof": np.int64}
     return {k: np.asarray(v, dtype=kinds.get(k, np.float64)) for k, v in columns.items()}
