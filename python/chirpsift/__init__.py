@@ -7,8 +7,10 @@ holds a pure-numpy twin of every kernel.
 from .filter import correlate, sigma, snr_series
 from .bank import Bank
 from .clustering import cluster_in_time
-from .fused import TRIGGER_COLUMNS, filter_segment
-from .pipeline import TRIGGER_DTYPE, GatingWarning, search
+from .fused import filter_segment
+from .triggers import TRIGGER_COLUMNS, TRIGGER_DTYPE
+from .gating import GatingWarning
+from .pipeline import SearchSettings, search
 from .ranking import reweighted_snr
 from .segments import plan_segments
 from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_psd, welch, whiten
@@ -20,6 +22,7 @@ __version__ = "0.1.0"
 __all__ = [
     "Bank",
     "GatingWarning",
+    "SearchSettings",
     "TRIGGER_COLUMNS",
     "TRIGGER_DTYPE",
     "cluster_in_time",

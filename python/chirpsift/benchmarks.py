@@ -295,7 +295,7 @@ class Workload:
         If the bank's longest template does not fit in the segment (only at smoke-test
         scales) the middle half of the segment is used; the timing is unaffected.
         """
-        from .pipeline import DURATION_MARGIN
+        from .pipeline.single_site import DURATION_MARGIN
         from .waveform import chirp_duration
 
         n = self.segment_samples

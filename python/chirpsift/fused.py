@@ -12,10 +12,10 @@ from . import _core
 from ._validate import broadcast, complex_array, positive_int, positive_scalar, psd_array, real_array
 from .waveform import _masses, _phase_order, _spins
 
-__all__ = ["filter_segment", "TRIGGER_COLUMNS"]
+__all__ = ["filter_segment", "PEAK_COLUMNS"]
 
-#: Columns returned by :func:`filter_segment`.
-TRIGGER_COLUMNS = ("template", "index", "position", "snr", "phase", "sigma", "chi2", "chi2_dof")
+#: Columns returned by :func:`filter_segment` (shared names mean the same as in the trigger table).
+PEAK_COLUMNS = ("template", "index", "position", "snr", "phase", "sigma", "chi2", "chi2_dof")
 
 
 def _valid_range(valid, n):
@@ -88,7 +88,7 @@ def filter_segment(
     Returns
     -------
     dict of ndarray
-        Columns :data:`TRIGGER_COLUMNS`, one entry per surviving peak, ordered by
+        Columns :data:`PEAK_COLUMNS`, one entry per surviving peak, ordered by
         template and then time: ``template`` (index), ``index`` (peak sample),
         ``position`` (refined peak, fractional samples from the segment start),
         ``snr`` and ``phase`` (``|z|`` and ``arg z`` evaluated exactly at

@@ -6,7 +6,11 @@ import numpy as np
 
 from .spectrum import psd_to_grid, truncate_inverse_psd, welch, whiten
 
-__all__ = ["find_gates", "apply_gates"]
+__all__ = ["find_gates", "apply_gates", "GatingWarning"]
+
+
+class GatingWarning(UserWarning):
+    """Data were gated; the gates are listed in ``info["gates"]``."""
 
 
 #: Whitening block length for gating, in units of ``welch_duration``.

@@ -8,43 +8,27 @@ import warnings
 
 import numpy as np
 
-from ._validate import nonnegative_scalar, positive_int, positive_scalar, psd_array, real_array, real_scalar
-from .bank import Bank
-from .clustering import cluster_in_time
-from .fused import filter_segment
-from .gating import apply_gates, find_gates
-from .ranking import reweighted_snr
-from .segments import plan_segments
-from .spectrum import design_psd, psd_to_grid, truncate_inverse_psd, welch
-from .waveform import chirp_duration, isco_frequency
+from .._validate import positive_scalar, psd_array, real_array, real_scalar
+from ..bank import Bank
+from ..clustering import cluster_in_time
+from ..fused import filter_segment
+from ..gating import GatingWarning, apply_gates, find_gates
+from ..ranking import reweighted_snr
+from ..segments import plan_segments
+from ..spectrum import design_psd, psd_to_grid, truncate_inverse_psd, welch
+from ..triggers import trigger_table
+from ..waveform import chirp_duration, isco_frequency
+from .settings import SearchSettings
 
-__all__ = ["search", "TRIGGER_DTYPE", "GatingWarning"]
+__all__ = ["search"]
 
-#: Fields of the trigger table returned by :func:`search`.
-TRIGGER_DTYPE = np.dtype(
-    [
-        ("time", "f8"),  # absolute coalescence time, t0 + offset (s)
-        ("template", "i4"),  # row of the bank
-        ("snr", "f4"),  # |z| at the refined peak
-        ("phase", "f4"),  # arg z at the refined peak (rad)
-        ("sigma", "f8"),  # template norm at 1 Mpc: effective distance = sigma / snr Mpc
-        ("chi2", "f4"),  # Allen's chi-squared
-        ("chi2_dof", "i4"),  # 2 p - 2
-        ("reweighted_snr", "f4"),  # Babak et al. 2013
-        ("m1", "f8"),
-        ("m2", "f8"),
-        ("spin1", "f8"),  # aligned spin chi1 of the template (named apart from the chi2 column)
-        ("spin2", "f8"),  # aligned spin chi2 of the template
-    ]
-)
+_DEFAULT = SearchSettings  # class attributes are the defaults
+#: Segment length used when segment_duration is None.
+AUTO_SEGMENT_DURATION = 256.0
 
 #: Safety factor on the 3.5PN non-spinning chirp duration when sizing the corrupted
 #: start of each segment (aligned spins change durations by a few per cent).
 DURATION_MARGIN = 1.1
-
-
-class GatingWarning(UserWarning):
-    """Data were gated; the gates are listed in ``info["gates"]``."""
 
 
 def _check_strain(strain, sample_rate):
@@ -103,17 +87,17 @@ def search(
     t0=0.0,
     f_low,
     psd=None,
-    segment_duration=256.0,
-    min_snr=5.5,
-    peak_window=1.0,
-    chi2_bands=16,
-    gate_threshold=None,
-    gate_half_width=0.25,
-    gate_taper=0.125,
-    welch_duration=4.0,
-    psd_duration=None,
-    bank_cluster=False,
-    phase_order=7,
+    segment_duration=_DEFAULT.segment_duration,
+    min_snr=_DEFAULT.min_snr,
+    peak_window=_DEFAULT.peak_window,
+    chi2_bands=_DEFAULT.chi2_bands,
+    gate_threshold=_DEFAULT.gate_threshold,
+    gate_half_width=_DEFAULT.gate_half_width,
+    gate_taper=_DEFAULT.gate_taper,
+    welch_duration=_DEFAULT.welch_duration,
+    psd_duration=_DEFAULT.psd_duration,
+    bank_cluster=_DEFAULT.bank_cluster,
+    phase_order=_DEFAULT.phase_order,
     progress=False,
     full_output=False,
 ):
@@ -214,21 +198,24 @@ def search(
         raise ValueError("bank must hold at least one template")
     t_start = real_scalar("t0", t0)
     psd = _check_psd_argument(psd)
-    if not isinstance(bank_cluster, (bool, np.bool_)):
-        raise TypeError(f"bank_cluster must be True or False, got {bank_cluster!r}")
-    fl = positive_scalar("f_low", f_low)
+    settings = SearchSettings(
+        f_low=f_low, segment_duration=segment_duration, min_snr=min_snr, peak_window=peak_window,
+        chi2_bands=chi2_bands, gate_threshold=gate_threshold, gate_half_width=gate_half_width,
+        gate_taper=gate_taper, welch_duration=welch_duration, psd_duration=psd_duration,
+        bank_cluster=bank_cluster, phase_order=phase_order,
+    )
+    fl = settings.f_low
     if fl >= fs / 2:
         raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz of sample_rate={fs} Hz")
-    seg_len = int(round(positive_scalar("segment_duration", segment_duration) * fs)) // 2 * 2
-    t_spec = positive_scalar("welch_duration", welch_duration)
-    thr = positive_scalar("min_snr", min_snr)
-    window = nonnegative_scalar("peak_window", peak_window)
-    bins = positive_int("chi2_bands", chi2_bands, minimum=2)
-    if t_spec * fs > seg_len:
-        raise ValueError(f"welch_duration={t_spec} s is longer than segment_duration={segment_duration} s")
-    psd_len = seg_len if psd_duration is None else int(round(positive_scalar("psd_duration", psd_duration) * fs))
-    if psd_len < seg_len:
-        raise ValueError(f"psd_duration={psd_duration} s must be at least segment_duration={segment_duration} s")
+    if settings.segment_duration is None:
+        settings = settings.replace(segment_duration=AUTO_SEGMENT_DURATION)
+    segment_duration = settings.segment_duration
+    seg_len = int(round(segment_duration * fs)) // 2 * 2
+    t_spec = settings.welch_duration
+    thr = settings.min_snr
+    window = settings.peak_window
+    bins = settings.chi2_bands
+    psd_len = seg_len if settings.psd_duration is None else int(round(settings.psd_duration * fs))
     n = x.shape[0]
     if n < seg_len:
         raise ValueError(
@@ -256,15 +243,11 @@ def search(
         ) from None
 
     gates: list[tuple[int, int]] = []
-    if gate_threshold is not None:
-        gthr = positive_scalar("gate_threshold", gate_threshold)
-        for name, value in (("gate_half_width", gate_half_width), ("gate_taper", gate_taper)):
-            if nonnegative_scalar(name, value) > t_spec:
-                raise ValueError(f"{name}={value} s is longer than welch_duration={t_spec} s: gates are for short transients")
-        gates = find_gates(x, fs, gthr, f_low=fl, welch_duration=t_spec,
-                           half_width=float(gate_half_width))
+    if settings.gate_threshold is not None:
+        gates = find_gates(x, fs, settings.gate_threshold, f_low=fl, welch_duration=t_spec,
+                           half_width=settings.gate_half_width)
         if gates:
-            x = apply_gates(x, fs, gates, taper=float(gate_taper))
+            x = apply_gates(x, fs, gates, taper=settings.gate_taper)
             total = sum(bb - a for a, bb in gates) / fs
             warnings.warn(f"gated {len(gates)} interval(s), {total:g} s in all; see info['gates']", GatingWarning, stacklevel=2)
 
@@ -291,7 +274,7 @@ def search(
             found = filter_segment(
                 data_fd, seg_psd, df, b.m1, b.m2, b.chi1, b.chi2, f_low=fl, min_snr=thr,
                 cluster_samples=cluster_samples, chi2_bands=bins,
-                valid=(plan.valid_start, plan.valid_stop), phase_order=phase_order,
+                valid=(plan.valid_start, plan.valid_stop), phase_order=settings.phase_order,
             )
             found["time"] = t_start + (plan.start + found["position"]) / fs
             for key, value in found.items():
@@ -306,19 +289,11 @@ def search(
     keep = cluster_in_time(merged["time"], merged["snr"], window, groups=merged["template"])
     merged = {k: v[keep] for k, v in merged.items()}
     rw = reweighted_snr(merged["snr"], merged["chi2"], merged["chi2_dof"])
-    if bank_cluster and rw.size:
+    if settings.bank_cluster and rw.size:
         keep = cluster_in_time(merged["time"], rw, window)
         merged = {k: v[keep] for k, v in merged.items()}
         rw = rw[keep]
-    order = np.argsort(merged["time"], kind="stable")
-    out = np.zeros(order.size, dtype=TRIGGER_DTYPE)
-    tid = merged["template"][order]
-    out["time"] = merged["time"][order]
-    out["template"] = tid
-    for name in ("snr", "phase", "sigma", "chi2", "chi2_dof"):
-        out[name] = merged[name][order]
-    out["reweighted_snr"] = rw[order]
-    out["m1"], out["m2"], out["spin1"], out["spin2"] = b.m1[tid], b.m2[tid], b.chi1[tid], b.chi2[tid]
+    out = trigger_table(merged, merged["time"], rw, b)
     if not full_output:
         return out
     info = {
@@ -331,5 +306,6 @@ def search(
         "pad_end": pad_end / fs,
         "segment_duration": seg_len / fs,
         "sample_rate": fs,
+        "settings": settings.as_dict(),
     }
     return out, info

@@ -1,0 +1,12 @@
+"""The single-site search workflow: long strain in, a table of clustered triggers out.
+
+It composes the numpy API's arrows (gating, spectrum, segments, the fused filter,
+clustering, ranking) and never reaches into the compiled core.
+"""
+
+from ..gating import GatingWarning
+from ..triggers import TRIGGER_DTYPE
+from .settings import SEARCH_OPTIONS, SearchOption, SearchSettings
+from .single_site import search
+
+__all__ = ["search", "SearchSettings", "SearchOption", "SEARCH_OPTIONS", "TRIGGER_DTYPE", "GatingWarning"]
