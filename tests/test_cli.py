@@ -85,7 +85,7 @@ def test_config_unknown_key_lists_allowed(tmp_path):
         ("[search]\nf-low = -3\n", "f-low must be positive"),
         ("[search]\nchi2-bands = 2.5\n", "chi2-bands must be a positive integer"),
         ("[search]\nbank-cluster = 1\n", "bank-cluster must be true or false"),
-        ("[search]\nsnr-threshold = 'high'\n", "min-snr must be a number"),
+        ("[search]\nmin-snr = 'high'\n", "min-snr must be a number"),
         ("[input]\nstrain = 3\n", "strain must be a non-empty string"),
         ("[search\n", "invalid TOML"),
     ],
@@ -265,7 +265,7 @@ def test_search_from_config_with_cli_override(small_run, capsys):
     cfg = d / "run.toml"
     cfg.write_text(
         '[input]\nstrain = "site_b.npz"\nbank = "bank.parquet"\n\n'
-        "[search]\nf-low = 30\nsegment-duration = 32\nsnr-threshold = 50\n"
+        "[search]\nf-low = 30\nsegment-duration = 32\nmin-snr = 50\n"
     )
     out = d / "cfg.parquet"
     rc = main(["search", "--config", str(cfg), "--min-snr", "6", "--output", str(out), "--no-progress"])
