@@ -8,6 +8,7 @@ from hypothesis import given, settings, strategies as st
 
 import chirpsift as cs
 from chirpsift import synthetic
+from chirpsift.reference import chirp_duration as ref_chirp_duration
 
 FS = 1024.0
 
@@ -33,6 +34,31 @@ def test_segments_tile_the_analysable_span_exactly_once(n, length, pad_start, pa
         hits[p.start + p.valid_start:p.start + p.valid_stop] += 1
     assert np.all(hits[pad_start:n - pad_end] == 1)
     assert np.all(hits[:pad_start] == 0) and np.all(hits[n - pad_end:] == 0)
+
+
+def _documented_pads(longest, welch_duration, fs):
+    """The discard of the search's docs: the first 1.1 x longest template + T_spec / 2 and
+    the last T_spec / 2 seconds wrap round (Allen et al. 2012, overlap-save segments),
+    plus one sample each side for the peak refinement."""
+    return int(np.ceil((1.1 * longest + welch_duration / 2) * fs)) + 1, int(np.ceil(welch_duration / 2 * fs)) + 1
+
+
+@pytest.mark.parametrize("longest, t_spec, fs, expected", [
+    (10.0, 4.0, 1024.0, (13313, 2049)),  # (1.1 x 10 + 2) x 1024 + 1 and 2 x 1024 + 1, by hand
+    (0.0, 2.0, 128.0, (129, 129)),  # 1 x 128 + 1 each
+    (3.3, 1.0, 4096.0, (16918, 2049)),  # (3.63 + 0.5) x 4096 = 16916.48, rounded up, + 1
+])
+def test_padding_is_the_documented_discard(longest, t_spec, fs, expected):
+    assert cs.segments.padding(longest, t_spec, fs) == expected == _documented_pads(longest, t_spec, fs)
+
+
+def test_search_reports_the_documented_pads():
+    bank = cs.Bank.from_any({"m1": [8.0, 10.0], "m2": [6.0, 8.0]})
+    info = cs.search(_data(4, duration=64.0), FS, bank, f_low=30.0, segment_duration=64.0, full_output=True)[1]
+    longest = max(ref_chirp_duration(m1, m2, 30.0) for m1, m2 in zip(bank.m1, bank.m2))
+    pad_start, pad_end = _documented_pads(longest, 4.0, FS)
+    assert (info["pad_start"], info["pad_end"]) == (pad_start / FS, pad_end / FS)
+    assert info["analysed"] == [(pad_start / FS, (64 * FS - pad_end) / FS)]
 
 
 def _data(seed, duration=256.0, inject=None):

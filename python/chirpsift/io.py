@@ -24,6 +24,8 @@ from pathlib import Path
 
 import numpy as np
 
+from .condition import find_nonfinite_runs  # re-exported: readers keep NaN runs for the search
+
 __all__ = [
     "StrainSeries",
     "read_strain",
@@ -357,8 +359,9 @@ def read_strain(
 
     Notes
     -----
-    Non-finite samples (NaN, inf) are kept: the search locates and reports them (see
-    :func:`find_nonfinite_runs`).
+    Non-finite samples (NaN, inf) are kept: the search analyses the finite stretches
+    between them and reports the excluded spans (see
+    :func:`chirpsift.condition.find_nonfinite_runs`).
 
     Examples
     --------
@@ -400,44 +403,6 @@ def read_strain(
     fs = _check_sample_rate(fs, where)
     start = _check_t0(start, where)
     return StrainSeries(data=data, sample_rate=fs, t0=start, source=where)
-
-
-# ---------------------------------------------------------------------------
-# non-finite runs
-# ---------------------------------------------------------------------------
-def find_nonfinite_runs(data) -> list[tuple[int, int]]:
-    """Index ranges of consecutive non-finite (NaN or infinite) samples.
-
-    Parameters
-    ----------
-    data : array_like
-        1-D real samples.
-
-    Returns
-    -------
-    list of (int, int)
-        ``(start, stop)`` pairs, half-open (``data[start:stop]`` is the run), in
-        increasing order; empty if every sample is finite.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from chirpsift.io import find_nonfinite_runs
-    >>> find_nonfinite_runs(np.array([0.0, np.nan, np.nan, 1.0, np.inf]))
-    [(1, 3), (4, 5)]
-    """
-    arr = np.asarray(data)
-    if arr.ndim != 1:
-        raise ValueError(f"data must be 1-D, got an array of shape {arr.shape}")
-    if arr.dtype.kind not in "biufc":
-        raise TypeError(f"data must be numeric, got dtype {arr.dtype}")
-    bad = ~np.isfinite(arr)
-    if not bad.any():
-        return []
-    edges = np.diff(np.concatenate(([False], bad, [False])).astype(np.int8))
-    starts = np.flatnonzero(edges == 1)
-    stops = np.flatnonzero(edges == -1)
-    return [(int(a), int(b)) for a, b in zip(starts, stops)]
 
 
 # ---------------------------------------------------------------------------

@@ -1,8 +1,14 @@
-"""The single-site search: long strain in, a table of clustered triggers out."""
+"""The single-site search: long strain in, a table of clustered triggers out.
+
+The flow, one step per function: settings (:class:`SearchSettings`), the strain check
+(:mod:`chirpsift.condition`), pads and segments (:mod:`chirpsift.segments`),
+:func:`_gate`, :func:`_filter_segments` (PSD, data FFT and the fused kernel per
+segment), then clustering and ranking per template, and the trigger table
+(:func:`chirpsift.triggers.trigger_table`).
+"""
 
 from __future__ import annotations
 
-import math
 import sys
 import warnings
 
@@ -11,10 +17,11 @@ import numpy as np
 from .._validate import positive_scalar, psd_array, real_array, real_scalar
 from ..bank import Bank
 from ..clustering import cluster_in_time
+from ..condition import check_strain, find_nonfinite_runs
 from ..fused import filter_segment
 from ..gating import GatingWarning, apply_gates, find_gates
 from ..ranking import reweighted_snr
-from ..segments import plan_segments
+from ..segments import DURATION_MARGIN, padding, plan_segments
 from ..spectrum import design_psd, psd_to_grid, truncate_inverse_psd, welch
 from ..triggers import trigger_table
 from ..waveform import chirp_duration, isco_frequency
@@ -26,27 +33,21 @@ _DEFAULT = SearchSettings  # class attributes are the defaults
 #: Segment length used when segment_duration is None.
 AUTO_SEGMENT_DURATION = 256.0
 
-#: Safety factor on the 3.5PN non-spinning chirp duration when sizing the corrupted
-#: start of each segment (aligned spins change durations by a few per cent).
-DURATION_MARGIN = 1.1
 
-
-def _check_strain(strain, sample_rate):
-    x = real_array("strain", strain, ndim=1, finite=False)
-    bad = ~np.isfinite(x)
-    if bad.any():
-        idx = np.flatnonzero(bad)
-        starts = idx[np.concatenate([[True], np.diff(idx) > 1])]
+def _reject_nonfinite(x, sample_rate):
+    runs = find_nonfinite_runs(x)
+    if runs:
+        count = sum(b - a for a, b in runs)
+        first = runs[0][0]
         raise ValueError(
-            f"strain has {idx.size} non-finite samples in {starts.size} run(s), the first at sample {starts[0]} "
-            f"({starts[0] / sample_rate:g} s after t0); remove gaps or split the data into finite stretches"
+            f"strain has {count} non-finite samples in {len(runs)} run(s), the first at sample {first} "
+            f"({first / sample_rate:g} s after t0); remove gaps or split the data into finite stretches"
         )
-    if not np.any(x):
-        raise ValueError("strain is identically zero: there is no noise to estimate a PSD from")
-    return x
 
 
+# --- the PSD of a segment: given (on the segment's grid) or estimated (from a block) ---
 def _check_psd_argument(psd):
+    """Validate what can be validated before the segment grid is known."""
     if psd is None or callable(psd):
         return psd
     if isinstance(psd, str):
@@ -58,25 +59,69 @@ def _check_psd_argument(psd):
     return psd_array("psd", psd, ndim=1)
 
 
-def _segment_psd(psd, block, sample_rate, n_freq, df, welch_duration, f_low):
-    """PSD on the segment's grid (estimated from ``block`` when ``psd`` is None), then
-    inverse spectrum truncation."""
-    if psd is None:
-        freqs, est = welch(block, sample_rate, welch_duration, average="median")
-        grid = psd_to_grid(freqs, est, df, n_freq)
-    elif isinstance(psd, str):
-        grid = design_psd(np.arange(n_freq) * df, psd)
-    elif callable(psd):
-        grid = psd_array("psd", psd(np.arange(n_freq) * df), ndim=1)
+def _given_psd(psd, n_freq, df):
+    """A user's PSD (curve name, callable, ``(freqs, values)`` or grid values) on the
+    grid ``k df``, ``k < n_freq``."""
+    freqs = np.arange(n_freq) * df
+    if isinstance(psd, str):
+        return design_psd(freqs, psd)
+    if callable(psd):
+        grid = psd_array("psd", psd(freqs), ndim=1)
         if grid.shape != (n_freq,):
             raise ValueError(f"psd callable must return one value per frequency ({n_freq}), got shape {grid.shape}")
-    elif isinstance(psd, tuple) and len(psd) == 2:
-        grid = psd_to_grid(psd[0], psd[1], df, n_freq)
-    else:
-        grid = psd
-        if grid.shape != (n_freq,):
-            raise ValueError(f"psd given as an array must have {n_freq} bins (the segment's rfft grid), got shape {grid.shape}")
-    return truncate_inverse_psd(grid, sample_rate, welch_duration, f_low)
+        return grid
+    if isinstance(psd, tuple):
+        return psd_to_grid(psd[0], psd[1], df, n_freq)
+    if psd.shape != (n_freq,):
+        raise ValueError(f"psd given as an array must have {n_freq} bins (the segment's rfft grid), got shape {psd.shape}")
+    return psd
+
+
+def _estimated_psd(block, sample_rate, n_freq, welch_duration):
+    """Median Welch estimate from ``block``, resampled onto an ``n_freq``-bin rfft grid."""
+    freqs, est = welch(block, sample_rate, welch_duration, average="median")
+    return psd_to_grid(freqs, est, sample_rate / (2 * (n_freq - 1)), n_freq)
+
+
+# --- the steps of the search ---
+def _gate(x, sample_rate, settings):
+    """Zero loud transients; returns the gated data and the gates (sample intervals)."""
+    if settings.gate_threshold is None:
+        return x, []
+    gates = find_gates(x, sample_rate, settings.gate_threshold, f_low=settings.f_low,
+                       welch_duration=settings.welch_duration, half_width=settings.gate_half_width)
+    if gates:
+        x = apply_gates(x, sample_rate, gates, taper=settings.gate_taper)
+    return x, gates
+
+
+def _filter_segments(x, sample_rate, plans, bank, settings, psd_of, cluster_samples):
+    """Run the fused kernel over each planned segment; yields ``(plan, peaks)``.
+
+    ``psd_of(plan)`` gives the truncated PSD of a segment on its rfft grid.
+    """
+    for plan in plans:
+        segment = x[plan.start:plan.start + plan.length]
+        data_fd = np.fft.rfft(segment) / sample_rate
+        peaks = filter_segment(
+            data_fd, psd_of(plan), sample_rate / plan.length, bank.m1, bank.m2, bank.chi1, bank.chi2,
+            f_low=settings.f_low, min_snr=settings.min_snr, cluster_samples=cluster_samples,
+            chi2_bands=settings.chi2_bands, valid=(plan.valid_start, plan.valid_stop),
+            phase_order=settings.phase_order,
+        )
+        yield plan, peaks
+
+
+def _cluster_and_rank(peaks, settings):
+    """Per-template clustering in time, reweighted SNR, then optionally across the bank."""
+    window = settings.peak_window
+    keep = cluster_in_time(peaks["time"], peaks["snr"], window, groups=peaks["template"])
+    peaks = {k: v[keep] for k, v in peaks.items()}
+    peaks["reweighted_snr"] = reweighted_snr(peaks["snr"], peaks["chi2"], peaks["chi2_dof"])
+    if settings.bank_cluster and peaks["snr"].size:
+        keep = cluster_in_time(peaks["time"], peaks["reweighted_snr"], window)
+        peaks = {k: v[keep] for k, v in peaks.items()}
+    return peaks
 
 
 def search(
@@ -192,7 +237,8 @@ def search(
     .. [3] S. Babak et al., Phys. Rev. D 87, 024033 (2013), arXiv:1208.3491.
     """
     fs = positive_scalar("sample_rate", sample_rate)
-    x = _check_strain(strain, fs)
+    x = check_strain(strain)
+    _reject_nonfinite(x, fs)
     b = Bank.from_any(bank)
     if len(b) == 0:
         raise ValueError("bank must hold at least one template")
@@ -212,9 +258,6 @@ def search(
     segment_duration = settings.segment_duration
     seg_len = int(round(segment_duration * fs)) // 2 * 2
     t_spec = settings.welch_duration
-    thr = settings.min_snr
-    window = settings.peak_window
-    bins = settings.chi2_bands
     psd_len = seg_len if settings.psd_duration is None else int(round(settings.psd_duration * fs))
     n = x.shape[0]
     if n < seg_len:
@@ -227,13 +270,13 @@ def search(
         i = int(np.argmax(ends_below))
         raise ValueError(f"template {i} (m1={b.m1[i]}, m2={b.m2[i]}) ends below f_low={fl} Hz")
 
-    max_duration = float(np.max(chirp_duration(b.m1, b.m2, fl))) * DURATION_MARGIN
+    longest = float(np.max(chirp_duration(b.m1, b.m2, fl)))
+    max_duration = longest * DURATION_MARGIN
     if max_duration > n / fs:
         raise ValueError(
             f"templates last up to {max_duration:.4g} s from f_low={fl} Hz, longer than the {n / fs:g} s of strain; raise f_low"
         )
-    pad_start = int(math.ceil((max_duration + t_spec / 2) * fs)) + 1
-    pad_end = int(math.ceil(t_spec / 2 * fs)) + 1
+    pad_start, pad_end = padding(longest, t_spec, fs)
     try:
         plans = plan_segments(n, seg_len, pad_start, pad_end)
     except ValueError as exc:
@@ -242,40 +285,31 @@ def search(
             f"f_low={fl} Hz plus the {t_spec} s whitening filter; raise segment_duration or f_low ({exc})"
         ) from None
 
-    gates: list[tuple[int, int]] = []
-    if settings.gate_threshold is not None:
-        gates = find_gates(x, fs, settings.gate_threshold, f_low=fl, welch_duration=t_spec,
-                           half_width=settings.gate_half_width)
-        if gates:
-            x = apply_gates(x, fs, gates, taper=settings.gate_taper)
-            total = sum(bb - a for a, bb in gates) / fs
-            warnings.warn(f"gated {len(gates)} interval(s), {total:g} s in all; see info['gates']", GatingWarning, stacklevel=2)
+    x, gates = _gate(x, fs, settings)
+    if gates:
+        total = sum(bb - a for a, bb in gates) / fs
+        warnings.warn(f"gated {len(gates)} interval(s), {total:g} s in all; see info['gates']", GatingWarning, stacklevel=2)
 
-    df = fs / seg_len
     n_freq = seg_len // 2 + 1
-    cluster_samples = int(round(min(window, n / fs) * fs))
+    df = fs / seg_len
+    # A given PSD is the same on every segment's grid: resample and truncate it once.
+    fixed_psd = None if psd is None else truncate_inverse_psd(_given_psd(psd, n_freq, df), fs, t_spec, fl)
+
+    def psd_of(plan):
+        if fixed_psd is not None:
+            return fixed_psd
+        lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, n - psd_len))
+        return truncate_inverse_psd(_estimated_psd(x[lo:lo + psd_len], fs, n_freq, t_spec), fs, t_spec, fl)
+
+    cluster_samples = int(round(min(settings.peak_window, n / fs) * fs))
     columns: dict[str, list[np.ndarray]] = {}
     bar = None
     if progress:
         from tqdm import tqdm
 
         bar = tqdm(total=len(plans) * len(b), unit="tmpl", desc="chirpsift search", file=sys.stderr)
-    # A given PSD is the same on every segment's grid: resample and truncate it once.
-    fixed_psd = None if psd is None else _segment_psd(psd, None, fs, n_freq, df, t_spec, fl)
     try:
-        for plan in plans:
-            segment = x[plan.start:plan.start + plan.length]
-            if fixed_psd is None:
-                lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, n - psd_len))
-                seg_psd = _segment_psd(None, x[lo:lo + psd_len], fs, n_freq, df, t_spec, fl)
-            else:
-                seg_psd = fixed_psd
-            data_fd = np.fft.rfft(segment) / fs
-            found = filter_segment(
-                data_fd, seg_psd, df, b.m1, b.m2, b.chi1, b.chi2, f_low=fl, min_snr=thr,
-                cluster_samples=cluster_samples, chi2_bands=bins,
-                valid=(plan.valid_start, plan.valid_stop), phase_order=settings.phase_order,
-            )
+        for plan, found in _filter_segments(x, fs, plans, b, settings, psd_of, cluster_samples):
             found["time"] = t_start + (plan.start + found["position"]) / fs
             for key, value in found.items():
                 columns.setdefault(key, []).append(value)
@@ -285,15 +319,8 @@ def search(
         if bar is not None:
             bar.close()
 
-    merged = {k: np.concatenate(v) for k, v in columns.items()}
-    keep = cluster_in_time(merged["time"], merged["snr"], window, groups=merged["template"])
-    merged = {k: v[keep] for k, v in merged.items()}
-    rw = reweighted_snr(merged["snr"], merged["chi2"], merged["chi2_dof"])
-    if settings.bank_cluster and rw.size:
-        keep = cluster_in_time(merged["time"], rw, window)
-        merged = {k: v[keep] for k, v in merged.items()}
-        rw = rw[keep]
-    out = trigger_table(merged, merged["time"], rw, b)
+    merged = _cluster_and_rank({k: np.concatenate(v) for k, v in columns.items()}, settings)
+    out = trigger_table(merged, merged["time"], merged["reweighted_snr"], b)
     if not full_output:
         return out
     info = {
