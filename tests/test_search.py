@@ -240,3 +240,52 @@ def test_noise_only_trigger_rate_matches_gaussian_expectation(psd_kwargs):
         delta = (w * omega**2).sum() - (w * omega).sum() ** 2
         expected += (stop - start) * u * np.sqrt(delta / (2 * np.pi)) * np.exp(-u * u / 2)
     assert abs(len(trig) - expected) < 4 * np.sqrt(expected), (len(trig), expected)
+
+
+@settings(max_examples=200, deadline=None)
+@given(longest=st.floats(0.0, 3000.0), t_spec=st.sampled_from([0.5, 1.0, 4.0, 16.0]),
+       fs=st.sampled_from([256.0, 1000.0, 4096.0]), n=st.one_of(st.none(), st.integers(2, 10**8)))
+def test_default_segment_length_follows_its_documented_rule(longest, t_spec, fs, n):
+    # Documented: the smallest power of two of samples at least 4 (1.1 T + T_spec) s (pads
+    # then take at most ~1/4) and at least 64 T_spec s, capped by the data (rounded to even).
+    need = max(4 * (1.1 * longest + t_spec), 64 * t_spec) * fs
+    power = 2.0 ** np.ceil(np.log2(need))
+    expected = power if n is None else min(power, n // 2 * 2)
+    length = cs.segments.default_length(longest, t_spec, fs, n)
+    assert length == expected
+    if n is None or power <= n // 2 * 2:
+        assert length >= need > length / 2
+        pads = sum(cs.segments.padding(longest, t_spec, fs))
+        assert pads / length <= 0.25 + 2 / need
+
+
+def test_bank_reaching_one_solar_mass_from_20_hz_searches_600_s():
+    # 1 + 1 Msun lasts ~281 s from 20 Hz (REFERENCES item 3: 1.4 + 1.4 lasts 161 s, and
+    # durations scale as the chirp mass^(-5/3)), longer than a 256 s segment's worth of
+    # pads. The segment is sized from the bank and capped by the 600 s of data, so one
+    # segment analyses all but the documented pads, and the search warns that less than
+    # half of the input is analysed. A loud injection near the end is found.
+    from chirpsift.reference import chirp_duration
+
+    fs, dur, t_c = 1024.0, 600.0, 560.25
+    bank = cs.Bank.from_any({"m1": [1.0, 1.4, 3.0], "m2": [1.0, 1.4, 3.0]})
+    x = synthetic.colored_gaussian_noise(int(dur * fs), fs, "gen2-zero-detuned", seed=31, f_low=15.0)
+    x = synthetic.inject_taylorf2(x, fs, f_low=20.0, m1=1.0, m2=1.0, t_coalescence=t_c, distance=100.0)
+    with pytest.warns(cs.AnalysedFractionWarning, match="only 48% of the 600 s"):
+        trig, info = cs.search(x, fs, bank, f_low=20.0, min_snr=8.0, full_output=True)
+    pad_start, pad_end = _documented_pads(chirp_duration(1.0, 1.0, 20.0), 4.0, fs)
+    assert info["segment_duration"] == dur and info["segments"] == 1
+    assert info["analysed"] == [(pad_start / fs, dur - pad_end / fs)]
+    assert info["analysed_fraction"] == pytest.approx((dur * fs - pad_start - pad_end) / (dur * fs), abs=1e-12)
+    best = trig[np.argmax(trig["snr"])]
+    assert best["template"] == 0 and abs(best["time"] - t_c) < 1 / fs
+
+
+def test_no_fraction_warning_when_most_data_are_analysed():
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", cs.AnalysedFractionWarning)
+        info = cs.search(_data(4, duration=64.0), FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0,
+                         full_output=True)[1]
+    assert info["analysed_fraction"] > 0.5 and info["segment_duration"] == 64.0  # capped by the data

@@ -7,6 +7,7 @@ clustering, ranking) and never reaches into the compiled core.
 from ..gating import GatingWarning
 from ..triggers import TRIGGER_DTYPE
 from .settings import SEARCH_OPTIONS, SearchOption, SearchSettings
-from .single_site import search
+from .single_site import MIN_ANALYSED_FRACTION, AnalysedFractionWarning, search
 
-__all__ = ["search", "SearchSettings", "SearchOption", "SEARCH_OPTIONS", "TRIGGER_DTYPE", "GatingWarning"]
+__all__ = ["search", "SearchSettings", "SearchOption", "SEARCH_OPTIONS", "TRIGGER_DTYPE", "GatingWarning",
+           "AnalysedFractionWarning", "MIN_ANALYSED_FRACTION"]

@@ -58,7 +58,9 @@ def option_key(name: str) -> str:
 SEARCH_OPTIONS: tuple[SearchOption, ...] = (
     SearchOption("f_low", "Hz", "positive", False, "lower frequency cutoff of templates and filters (required)"),
     SearchOption("segment_duration", "s", "positive", True,
-                 "analysis segment length; default: sized from the bank's longest template"),
+                 "analysis segment length; default: sized from the bank's longest template T, the smallest "
+                 "power of two of samples at least 4 (1.1 T + welch_duration) and 64 welch_duration, capped "
+                 "by the data"),
     SearchOption("min_snr", "", "positive", False, "smallest SNR kept as a trigger"),
     SearchOption("peak_window", "s", "nonnegative", False,
                  "half-width of the clustering window: a trigger is kept only if no louder peak of the "

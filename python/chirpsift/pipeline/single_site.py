@@ -11,27 +11,35 @@ from __future__ import annotations
 
 import sys
 import warnings
+from typing import NamedTuple
 
 import numpy as np
 
 from .._validate import positive_scalar, psd_array, real_array, real_scalar
 from ..bank import Bank
 from ..clustering import cluster_in_time
-from ..condition import check_strain, find_nonfinite_runs
+from ..condition import check_strain, find_nonfinite_runs, stretches_between, subtract_intervals
 from ..fused import filter_segment
 from ..gating import GatingWarning, apply_gates, find_gates
 from ..ranking import reweighted_snr
-from ..segments import DURATION_MARGIN, padding, plan_segments
+from ..segments import DURATION_MARGIN, SegmentPlan, default_length, padding, plan_segments
 from ..spectrum import design_psd, psd_to_grid, truncate_inverse_psd, welch
 from ..triggers import trigger_table
 from ..waveform import chirp_duration, isco_frequency
 from .settings import SearchSettings
 
-__all__ = ["search"]
+__all__ = ["search", "AnalysedFractionWarning", "MIN_ANALYSED_FRACTION"]
 
 _DEFAULT = SearchSettings  # class attributes are the defaults
-#: Segment length used when segment_duration is None.
-AUTO_SEGMENT_DURATION = 256.0
+
+#: Below this fraction of the input's duration searched, :func:`search` warns.
+MIN_ANALYSED_FRACTION = 0.5
+
+
+class AnalysedFractionWarning(UserWarning):
+    """Less than :data:`MIN_ANALYSED_FRACTION` of the input was searched (see
+    ``info["analysed_fraction"]``): most of the data lay in segment pads, gates or
+    excluded stretches."""
 
 
 def _reject_nonfinite(x, sample_rate):
@@ -122,6 +130,129 @@ def _cluster_and_rank(peaks, settings):
         keep = cluster_in_time(peaks["time"], peaks["reweighted_snr"], window)
         peaks = {k: v[keep] for k, v in peaks.items()}
     return peaks
+
+
+# --- which parts of the data are searched, in which segments ---
+class _Stretch(NamedTuple):
+    """A contiguous stretch ``[start, stop)`` of input samples, searched in ``plans``
+    (segments of ``length`` samples, positions relative to ``start``)."""
+
+    start: int
+    stop: int
+    length: int
+    plans: list[SegmentPlan]
+
+
+def _fixed_segment_length(settings, psd, sample_rate, longest, pads):
+    """Segment length in samples fixed by the settings (or by a PSD given on a grid);
+    None when it is to be sized from the bank per stretch."""
+    seg = settings.segment_duration
+    if seg is not None:
+        length = int(round(seg * sample_rate)) // 2 * 2
+        what = f"segment_duration={seg} s"
+    elif isinstance(psd, np.ndarray):
+        length = 2 * (psd.shape[0] - 1)
+        what = f"the {length}-sample segment fixed by the psd array ({psd.shape[0]} bins)"
+    else:
+        return None
+    if length - sum(pads) < 1:
+        raise ValueError(
+            f"{what} is too short for templates lasting {longest * DURATION_MARGIN:.1f} s from "
+            f"f_low={settings.f_low} Hz plus the {settings.welch_duration} s whitening filter: each segment "
+            f"discards {sum(pads) / sample_rate:g} s; raise segment_duration or f_low"
+        )
+    return length
+
+
+def _plan_stretches(finite, sample_rate, settings, longest, pads, fixed_length):
+    """Segment each finite stretch; returns the searchable stretches and the
+    ``(start, stop)`` of those too short to hold one segment that analyses anything."""
+    searchable, short = [], []
+    for a, b in finite:
+        m = b - a
+        length = fixed_length or default_length(longest, settings.welch_duration, sample_rate, m)
+        if m < length or length - sum(pads) < 1:
+            short.append((a, b))
+            continue
+        searchable.append(_Stretch(a, b, length, plan_segments(m, length, *pads)))
+    return searchable, short
+
+
+def _nothing_to_search(n, sample_rate, excluded, settings, longest, pads, fixed_length):
+    """Why no stretch of the strain could be searched (the message of a ValueError)."""
+    fs = sample_rate
+    if not excluded and fixed_length is not None and n < fixed_length:
+        if settings.segment_duration is not None:
+            return (f"strain has {n} samples ({n / fs:g} s), shorter than segment_duration="
+                    f"{settings.segment_duration} s; use a shorter segment_duration or more data")
+        return f"strain has {n} samples, fewer than the {fixed_length}-sample segment fixed by the psd array"
+    where = "strain" if not excluded else "the longest finite stretch of strain (between non-finite samples)"
+    longest_stretch = n if not excluded else max(b - a for a, b in stretches_between(n, excluded))
+    return (
+        f"templates last up to {longest * DURATION_MARGIN:.4g} s from f_low={settings.f_low} Hz: with the "
+        f"{settings.welch_duration} s whitening filter each segment discards {sum(pads) / fs:g} s, more than "
+        f"{where} holds ({longest_stretch / fs:g} s); raise f_low or give more data"
+    )
+
+
+def _check_psd_block(settings, stretches, sample_rate):
+    if settings.psd_duration is None:
+        return
+    for s in stretches:
+        if settings.psd_duration * sample_rate < s.length:
+            raise ValueError(
+                f"psd_duration={settings.psd_duration} s is shorter than the {s.length / sample_rate:g} s segments "
+                "sized from the bank's longest template; give a longer psd_duration or a segment_duration"
+            )
+
+
+def _low_fraction_message(fraction, n, sample_rate, stretches, live_time, gated_time, longest, pads):
+    fs = sample_rate
+    searched = sum(s.stop - s.start for s in stretches) / fs
+    edges = searched - live_time - gated_time
+    parts = [f"{edges:g} s in segment pads (each segment discards its first {pads[0] / fs:g} s for templates "
+             f"up to {longest * DURATION_MARGIN:.4g} s, and its last {pads[1] / fs:g} s)"]
+    if gated_time > 0:
+        parts.append(f"{gated_time:g} s gated")
+    if n / fs > searched:
+        parts.append(f"{n / fs - searched:g} s not searched (non-finite or too short)")
+    return (
+        f"only {100 * fraction:.0f}% of the {n / fs:g} s of strain is searched ({live_time:g} s live): "
+        f"{'; '.join(parts)}; raise f_low or give longer data; see info['analysed']"
+    )
+
+
+def _search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar):
+    """Filter one stretch ``x`` (whose first sample is at ``t_first``) segment by segment;
+    returns its clustered, ranked peaks with absolute ``time``.
+
+    Each stretch is its own analysis (PSDs from its own data, clustering within it), so
+    a search of the whole input equals searches of its stretches one by one.
+    """
+    fs = sample_rate
+    length = stretch.length
+    n_freq, df = length // 2 + 1, fs / length
+    fl, t_spec = settings.f_low, settings.welch_duration
+    if psd is not None and length not in psd_cache:  # a given PSD is the same for every segment of a length
+        psd_cache[length] = truncate_inverse_psd(_given_psd(psd, n_freq, df), fs, t_spec, fl)
+    m = x.shape[0]
+    psd_len = length if settings.psd_duration is None else int(round(settings.psd_duration * fs))
+
+    def psd_of(plan):
+        if psd is not None:
+            return psd_cache[length]
+        lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, m - psd_len))
+        return truncate_inverse_psd(_estimated_psd(x[lo:lo + psd_len], fs, n_freq, t_spec), fs, t_spec, fl)
+
+    cluster_samples = int(round(min(settings.peak_window, m / fs) * fs))
+    columns: dict[str, list[np.ndarray]] = {}
+    for plan, found in _filter_segments(x, fs, stretch.plans, bank, settings, psd_of, cluster_samples):
+        found["time"] = t_first + (plan.start + found["position"]) / fs
+        for key, value in found.items():
+            columns.setdefault(key, []).append(value)
+        if bar is not None:
+            bar.update(len(bank))
+    return _cluster_and_rank({k: np.concatenate(v) for k, v in columns.items()}, settings)
 
 
 def search(
@@ -250,88 +381,65 @@ def search(
         gate_taper=gate_taper, welch_duration=welch_duration, psd_duration=psd_duration,
         bank_cluster=bank_cluster, phase_order=phase_order,
     )
-    fl = settings.f_low
+    fl, t_spec = settings.f_low, settings.welch_duration
     if fl >= fs / 2:
         raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz of sample_rate={fs} Hz")
-    if settings.segment_duration is None:
-        settings = settings.replace(segment_duration=AUTO_SEGMENT_DURATION)
-    segment_duration = settings.segment_duration
-    seg_len = int(round(segment_duration * fs)) // 2 * 2
-    t_spec = settings.welch_duration
-    psd_len = seg_len if settings.psd_duration is None else int(round(settings.psd_duration * fs))
-    n = x.shape[0]
-    if n < seg_len:
-        raise ValueError(
-            f"strain has {n} samples ({n / fs:g} s), shorter than segment_duration={segment_duration} s; "
-            "use a shorter segment_duration or more data"
-        )
     ends_below = np.atleast_1d(isco_frequency(b.m1, b.m2)) <= fl
     if ends_below.any():
         i = int(np.argmax(ends_below))
         raise ValueError(f"template {i} (m1={b.m1[i]}, m2={b.m2[i]}) ends below f_low={fl} Hz")
-
     longest = float(np.max(chirp_duration(b.m1, b.m2, fl)))
-    max_duration = longest * DURATION_MARGIN
-    if max_duration > n / fs:
-        raise ValueError(
-            f"templates last up to {max_duration:.4g} s from f_low={fl} Hz, longer than the {n / fs:g} s of strain; raise f_low"
-        )
-    pad_start, pad_end = padding(longest, t_spec, fs)
-    try:
-        plans = plan_segments(n, seg_len, pad_start, pad_end)
-    except ValueError as exc:
-        raise ValueError(
-            f"segment_duration={segment_duration} s is too short for templates lasting {max_duration:.1f} s from "
-            f"f_low={fl} Hz plus the {t_spec} s whitening filter; raise segment_duration or f_low ({exc})"
-        ) from None
+    pads = padding(longest, t_spec, fs)
+    fixed_length = _fixed_segment_length(settings, psd, fs, longest, pads)
 
-    x, gates = _gate(x, fs, settings)
+    n = x.shape[0]
+    stretches, short = _plan_stretches([(0, n)], fs, settings, longest, pads, fixed_length)
+    if not stretches:
+        raise ValueError(_nothing_to_search(n, fs, [], settings, longest, pads, fixed_length))
+    _check_psd_block(settings, stretches, fs)
+
+    gated = [_gate(x[s.start:s.stop], fs, settings) for s in stretches]
+    gates = [(s.start + a, s.start + bb) for s, (_, g) in zip(stretches, gated) for a, bb in g]
     if gates:
         total = sum(bb - a for a, bb in gates) / fs
         warnings.warn(f"gated {len(gates)} interval(s), {total:g} s in all; see info['gates']", GatingWarning, stacklevel=2)
+    analysed = [(s.start + pads[0], s.stop - pads[1]) for s in stretches]
+    live_time = float(sum(bb - a for a, bb in subtract_intervals(analysed, gates)) / fs)
+    fraction = live_time / (n / fs)
+    if fraction < MIN_ANALYSED_FRACTION:
+        warnings.warn(_low_fraction_message(fraction, n, fs, stretches, live_time, 0.0, longest, pads),
+                      AnalysedFractionWarning, stacklevel=2)
 
-    n_freq = seg_len // 2 + 1
-    df = fs / seg_len
-    # A given PSD is the same on every segment's grid: resample and truncate it once.
-    fixed_psd = None if psd is None else truncate_inverse_psd(_given_psd(psd, n_freq, df), fs, t_spec, fl)
-
-    def psd_of(plan):
-        if fixed_psd is not None:
-            return fixed_psd
-        lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, n - psd_len))
-        return truncate_inverse_psd(_estimated_psd(x[lo:lo + psd_len], fs, n_freq, t_spec), fs, t_spec, fl)
-
-    cluster_samples = int(round(min(settings.peak_window, n / fs) * fs))
-    columns: dict[str, list[np.ndarray]] = {}
     bar = None
     if progress:
         from tqdm import tqdm
 
-        bar = tqdm(total=len(plans) * len(b), unit="tmpl", desc="chirpsift search", file=sys.stderr)
+        bar = tqdm(total=sum(len(s.plans) for s in stretches) * len(b), unit="tmpl", desc="chirpsift search",
+                   file=sys.stderr)
+    found, psd_cache = [], {}
     try:
-        for plan, found in _filter_segments(x, fs, plans, b, settings, psd_of, cluster_samples):
-            found["time"] = t_start + (plan.start + found["position"]) / fs
-            for key, value in found.items():
-                columns.setdefault(key, []).append(value)
-            if bar is not None:
-                bar.update(len(b))
+        for stretch, (xs, _) in zip(stretches, gated):
+            found.append(_search_stretch(xs, t_start + stretch.start / fs, fs, stretch, b, settings, psd, psd_cache,
+                                         bar))
     finally:
         if bar is not None:
             bar.close()
 
-    merged = _cluster_and_rank({k: np.concatenate(v) for k, v in columns.items()}, settings)
+    merged = {k: np.concatenate([f[k] for f in found]) for k in found[0]}
     out = trigger_table(merged, merged["time"], merged["reweighted_snr"], b)
     if not full_output:
         return out
+    seconds = [(t_start + a / fs, t_start + bb / fs) for a, bb in analysed]
     info = {
-        "segments": len(plans),
-        "analysed": [(t_start + pad_start / fs, t_start + (n - pad_end) / fs)],
+        "segments": sum(len(s.plans) for s in stretches),
+        "analysed": seconds,
+        "analysed_fraction": fraction,
         "gates": [(t_start + a / fs, t_start + bb / fs) for a, bb in gates],
         "templates": len(b),
-        "max_template_duration": max_duration,
-        "pad_start": pad_start / fs,
-        "pad_end": pad_end / fs,
-        "segment_duration": seg_len / fs,
+        "max_template_duration": longest * DURATION_MARGIN,
+        "pad_start": pads[0] / fs,
+        "pad_end": pads[1] / fs,
+        "segment_duration": max(s.length for s in stretches) / fs,
         "sample_rate": fs,
         "settings": settings.as_dict(),
     }
