@@ -131,9 +131,38 @@ def test_gating_removes_loud_glitch_and_reports_it():
     # The whitened glitch rings for at most the truncated whitening filter (4 s) plus
     # the zeroed half-widths either side.
     assert a < 70.0 < b and b - a < 4.0 + 2 * 0.25
+    # Gated time is not live: the analysed span (documented pads) minus the gate.
+    longest = ref_chirp_duration(8.0, 6.0, 30.0)
+    pad_start, pad_end = _documented_pads(longest, 4.0, FS)
+    assert info["analysed"] == [(pad_start / FS, a), (b, (n - pad_end) / FS)]
+    assert info["gated_time"] == pytest.approx(b - a, abs=1e-12)
+    assert info["live_time"] == pytest.approx((n - pad_start - pad_end) / FS - (b - a), abs=1e-9)
     ungated = cs.search(x + glitch, FS, bank, f_low=30.0, segment_duration=64.0)
     assert ungated["snr"].max() > 20  # the glitch rings the template loudly without gating
     assert trig["snr"].max(initial=0.0) < 8
+
+
+@pytest.mark.parametrize("psd", [None, "gen2-zero-detuned"])
+def test_gating_everything_says_how_much_was_gated(psd):
+    # A whitened Gaussian sample exceeds 0.5 standard deviations with probability 0.62
+    # (erfc(0.5 / sqrt 2), common practice): with half-widths of 0.25 s the gates merge
+    # into one covering the data.
+    x = _data(5, duration=128.0)
+    with pytest.raises(ValueError, match=r"gating left nothing to search: gate_threshold=0.5 gated 12\d\.\d+ s in 1 gate"):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, segment_duration=64.0, gate_threshold=0.5, psd=psd)
+
+
+def test_psd_that_gating_leaves_without_noise_is_explained():
+    # 40 s of data 100 times louder gate away most of the first 64 s segment, so more
+    # than half its Welch segments are zero and their median PSD is 0.
+    x = _data(5, duration=128.0)
+    x[int(10 * FS):int(50 * FS)] *= 100
+    with pytest.raises(ValueError, match=r"cannot estimate the PSD .* at t=0 s: .* s of them gated \(gate_threshold=6.0"), \
+            pytest.warns(cs.GatingWarning):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, segment_duration=64.0, gate_threshold=6.0)
+    x[int(10 * FS):int(50 * FS)] = 0.0
+    with pytest.raises(ValueError, match=r"zero over 40 s; mark missing data as NaN"):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, segment_duration=64.0)
 
 
 def test_bank_clustering_keeps_one_trigger_per_window():

@@ -85,9 +85,15 @@ def _given_psd(psd, n_freq, df):
     return psd
 
 
+class _NoNoise(ValueError):
+    """A block of data too empty (zeros) for a median PSD estimate."""
+
+
 def _estimated_psd(block, sample_rate, n_freq, welch_duration):
     """Median Welch estimate from ``block``, resampled onto an ``n_freq``-bin rfft grid."""
     freqs, est = welch(block, sample_rate, welch_duration, average="median")
+    if not np.all(est > 0):  # more than half the Welch segments are zero (gated or blank data)
+        raise _NoNoise("median PSD estimate is zero")
     return psd_to_grid(freqs, est, sample_rate / (2 * (n_freq - 1)), n_freq)
 
 
@@ -206,14 +212,13 @@ def _check_psd_block(settings, stretches, sample_rate):
             )
 
 
-def _low_fraction_message(fraction, n, sample_rate, stretches, live_time, gated_time, longest, pads):
+def _low_fraction_message(fraction, n, sample_rate, stretches, analysed_time, live_time, longest, pads):
     fs = sample_rate
     searched = sum(s.stop - s.start for s in stretches) / fs
-    edges = searched - live_time - gated_time
-    parts = [f"{edges:g} s in segment pads (each segment discards its first {pads[0] / fs:g} s for templates "
-             f"up to {longest * DURATION_MARGIN:.4g} s, and its last {pads[1] / fs:g} s)"]
-    if gated_time > 0:
-        parts.append(f"{gated_time:g} s gated")
+    parts = [f"{searched - analysed_time:g} s in segment pads (each segment discards its first {pads[0] / fs:g} s "
+             f"for templates up to {longest * DURATION_MARGIN:.4g} s, and its last {pads[1] / fs:g} s)"]
+    if analysed_time > live_time:
+        parts.append(f"{analysed_time - live_time:g} s gated")
     if n / fs > searched:
         parts.append(f"{n / fs - searched:g} s not searched (non-finite or too short)")
     return (
@@ -222,9 +227,15 @@ def _low_fraction_message(fraction, n, sample_rate, stretches, live_time, gated_
     )
 
 
-def _search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar):
+def _gating_summary(settings, gates, sample_rate):
+    total = sum(b - a for a, b in gates) / sample_rate
+    return f"gate_threshold={settings.gate_threshold} gated {total:g} s in {len(gates)} gate(s)"
+
+
+def _search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates=()):
     """Filter one stretch ``x`` (whose first sample is at ``t_first``) segment by segment;
-    returns its clustered, ranked peaks with absolute ``time``.
+    returns its clustered, ranked peaks with absolute ``time``. ``gates`` (sample
+    intervals of ``x`` already zeroed) only serve to explain a PSD that cannot be estimated.
 
     Each stretch is its own analysis (PSDs from its own data, clustering within it), so
     a search of the whole input equals searches of its stretches one by one.
@@ -242,7 +253,22 @@ def _search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_c
         if psd is not None:
             return psd_cache[length]
         lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, m - psd_len))
-        return truncate_inverse_psd(_estimated_psd(x[lo:lo + psd_len], fs, n_freq, t_spec), fs, t_spec, fl)
+        block = x[lo:lo + psd_len]
+        try:
+            grid = _estimated_psd(block, fs, n_freq, t_spec)
+        except _NoNoise:
+            hi = lo + block.shape[0]
+            zero = np.count_nonzero(block == 0) / fs
+            msg = (f"cannot estimate the PSD of the segment starting at t={t_first + plan.start / fs:.6g} s: "
+                   f"its {block.shape[0] / fs:g} s of data are zero over {zero:g} s")
+            in_block = [(max(a, lo), min(b, hi)) for a, b in gates if b > lo and a < hi]
+            if in_block:
+                msg += (f", {sum(b - a for a, b in in_block) / fs:g} s of them gated "
+                        f"({_gating_summary(settings, gates, fs)} in this stretch); raise gate_threshold or give psd")
+            else:
+                msg += "; mark missing data as NaN (non-finite runs are left out of the search) or give psd"
+            raise ValueError(msg) from None
+        return truncate_inverse_psd(grid, fs, t_spec, fl)
 
     cluster_samples = int(round(min(settings.peak_window, m / fs) * fs))
     columns: dict[str, list[np.ndarray]] = {}
@@ -400,14 +426,22 @@ def search(
 
     gated = [_gate(x[s.start:s.stop], fs, settings) for s in stretches]
     gates = [(s.start + a, s.start + bb) for s, (_, g) in zip(stretches, gated) for a, bb in g]
-    if gates:
-        total = sum(bb - a for a, bb in gates) / fs
-        warnings.warn(f"gated {len(gates)} interval(s), {total:g} s in all; see info['gates']", GatingWarning, stacklevel=2)
     analysed = [(s.start + pads[0], s.stop - pads[1]) for s in stretches]
-    live_time = float(sum(bb - a for a, bb in subtract_intervals(analysed, gates)) / fs)
+    live = subtract_intervals(analysed, gates)
+    analysed_time = sum(bb - a for a, bb in analysed) / fs
+    live_time = float(sum(bb - a for a, bb in live) / fs)
+    gated_time = float(sum(bb - a for a, bb in gates) / fs)
+    if gates:
+        if not live:
+            raise ValueError(
+                f"gating left nothing to search: {_gating_summary(settings, gates, fs)}, covering all "
+                f"{analysed_time:g} s that the segments analyse; raise gate_threshold"
+            )
+        warnings.warn(f"{_gating_summary(settings, gates, fs)}, {analysed_time - live_time:g} s of the analysed "
+                      f"time; see info['gates']", GatingWarning, stacklevel=2)
     fraction = live_time / (n / fs)
     if fraction < MIN_ANALYSED_FRACTION:
-        warnings.warn(_low_fraction_message(fraction, n, fs, stretches, live_time, 0.0, longest, pads),
+        warnings.warn(_low_fraction_message(fraction, n, fs, stretches, analysed_time, live_time, longest, pads),
                       AnalysedFractionWarning, stacklevel=2)
 
     bar = None
@@ -418,9 +452,9 @@ def search(
                    file=sys.stderr)
     found, psd_cache = [], {}
     try:
-        for stretch, (xs, _) in zip(stretches, gated):
+        for stretch, (xs, own_gates) in zip(stretches, gated):
             found.append(_search_stretch(xs, t_start + stretch.start / fs, fs, stretch, b, settings, psd, psd_cache,
-                                         bar))
+                                         bar, own_gates))
     finally:
         if bar is not None:
             bar.close()
@@ -429,12 +463,13 @@ def search(
     out = trigger_table(merged, merged["time"], merged["reweighted_snr"], b)
     if not full_output:
         return out
-    seconds = [(t_start + a / fs, t_start + bb / fs) for a, bb in analysed]
     info = {
         "segments": sum(len(s.plans) for s in stretches),
-        "analysed": seconds,
+        "analysed": [(t_start + a / fs, t_start + bb / fs) for a, bb in live],
+        "live_time": live_time,
         "analysed_fraction": fraction,
         "gates": [(t_start + a / fs, t_start + bb / fs) for a, bb in gates],
+        "gated_time": gated_time,
         "templates": len(b),
         "max_template_duration": longest * DURATION_MARGIN,
         "pad_start": pads[0] / fs,
