@@ -11,6 +11,26 @@ from chirpsift import synthetic
 from chirpsift.reference import chirp_duration as ref_chirp_duration
 
 FS = 1024.0
+T_SUN = 4.925490947641267e-6  # s, IAU 2015 B3 nominal GM_sun / c^3 (REFERENCES item 14)
+MPC = 3.0856775814913673e22  # m
+C = 299792458.0  # m/s
+
+
+def _sigma_spa(m1, m2, f_low, n, fs):
+    """Template norm at 1 Mpc, independent of the code under test: the leading-order SPA
+    amplitude |h~| = sqrt(5/24) pi^(-2/3) (c / D) (G Mc / c^3)^(5/6) f^(-7/6) (REFERENCES
+    item 2, Cutler & Flanagan 1994) summed directly, sigma^2 = 4 df sum |h~|^2 / S over
+    the rfft bins f_low <= f < f_ISCO of n samples (Allen et al. 2012), with the design
+    PSD from the numpy twin."""
+    from chirpsift.reference import design_psd
+
+    df = fs / n
+    mtot = m1 + m2
+    mc = (m1 * m2) ** 0.6 / mtot**0.2
+    amp = np.sqrt(5 / 24) * np.pi ** (-2 / 3) * C / MPC * (mc * T_SUN) ** (5 / 6)
+    f = np.arange(n // 2 + 1) * df
+    band = (f >= f_low) & (f < 1 / (6**1.5 * np.pi * mtot * T_SUN))
+    return float(np.sqrt(4 * df * np.sum(amp**2 * f[band] ** (-7 / 3) / design_psd(f[band]))))
 
 
 @settings(max_examples=200, deadline=None)
@@ -194,11 +214,56 @@ def test_search_rejects_bad_settings(kwargs, match):
         cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, **{"segment_duration": 64.0, **kwargs})
 
 
-def test_search_names_nan_runs():
+def test_search_names_nan_runs_when_asked_to_refuse_them():
     x = _data(8, duration=64.0)
     x[5000:5100] = np.nan
-    with pytest.raises(ValueError, match="non-finite samples in 1 run"):
-        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, segment_duration=64.0)
+    with pytest.raises(ValueError, match="strain has 100 non-finite samples in 1 run.*nonfinite='skip'"):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, nonfinite="error")
+    with pytest.raises(ValueError, match="nonfinite must be one of 'skip', 'error', got 'drop'"):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, nonfinite="drop")
+
+
+def test_nan_run_splits_the_search_into_stretches_searched_separately():
+    # A NaN run costs only its neighbourhood: the stretches either side are searched as
+    # if given one by one (their own PSDs and clustering; absolute times). Two chirps of
+    # the same template sit 20 s apart across the gap, closer than peak_window: the
+    # quieter one must survive, because clustering does not reach across stretches.
+    t0, a, b = 1_000_000.0, int(60 * FS), int(60.5 * FS)
+    bank = cs.Bank.from_any({"m1": [6.0, 9.0, 12.0], "m2": [5.0, 7.0, 9.0]})
+    sigma = _sigma_spa(9.0, 7.0, 30.0, int(128 * FS), FS)
+    x = _data(40, duration=128.0)
+    for t_c, snr in ((55.0, 20.0), (75.0, 12.0)):
+        x = synthetic.inject_taylorf2(x, FS, f_low=25.0, m1=9.0, m2=7.0, t_coalescence=t0 + t_c,
+                                      distance=sigma / snr, t0=t0)
+    x[a:b] = np.nan
+    kw = dict(f_low=30.0, min_snr=6.0, peak_window=25.0)
+    with pytest.warns(cs.ExcludedDataWarning, match=r"left out 512 non-finite samples \(0.5 s\) in 1 run"):
+        trig, info = cs.search(x, FS, bank, t0=t0, full_output=True, **kw)
+    first = cs.search(x[:a], FS, bank, t0=t0, **kw)
+    second = cs.search(x[b:], FS, bank, t0=t0 + b / FS, **kw)
+    both = np.concatenate([first, second])
+    np.testing.assert_array_equal(trig, both[np.argsort(both["time"], kind="stable")])
+    for t_c in (55.0, 75.0):
+        near = trig[(trig["template"] == 1) & (np.abs(trig["time"] - t0 - t_c) < 1 / FS)]
+        assert len(near) == 1
+    assert info["excluded"] == [(t0 + 60.0, t0 + 60.5)] and info["short_stretches"] == []
+    assert [(s["start"], s["stop"]) for s in info["stretches"]] == [(t0, t0 + 60.0), (t0 + 60.5, t0 + 128.0)]
+    pad_start, pad_end = _documented_pads(ref_chirp_duration(6.0, 5.0, 30.0), 4.0, FS)
+    assert info["analysed"] == [(t0 + pad_start / FS, t0 + (a - pad_end) / FS),
+                                (t0 + (b + pad_start) / FS, t0 + (x.size - pad_end) / FS)]
+    assert info["live_time"] == pytest.approx((x.size - (b - a) - 2 * (pad_start + pad_end)) / FS, abs=1e-9)
+
+
+def test_stretches_too_short_to_search_are_reported():
+    x = _data(41, duration=64.0)
+    x[3 * 1024] = np.inf  # leaves 3 s before it: less than one segment's pads
+    with pytest.warns(cs.ExcludedDataWarning, match=r"1 finite stretch\(es\), 3 s in all, too short"):
+        info = cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, full_output=True)[1]
+    assert info["short_stretches"] == [(0.0, 3.0)] and info["excluded"] == [(3.0, 3.0 + 1 / FS)]
+    x[40 * 1024] = np.nan  # now no stretch holds a segment of the documented pads
+    with pytest.raises(ValueError, match=r"the longest finite stretch of strain has .* \(36.999 s; strain has 2 "
+                                         r"non-finite samples in 2 run\(s\)"):
+        cs.search(x, FS, {"m1": [8.0], "m2": [6.0]}, f_low=30.0, segment_duration=40.0)
 
 
 def test_signals_at_segment_joins_are_found_exactly_once():

@@ -10,7 +10,7 @@ from .clustering import cluster_in_time
 from .fused import filter_segment
 from .triggers import TRIGGER_COLUMNS, TRIGGER_DTYPE
 from .gating import GatingWarning
-from .pipeline import AnalysedFractionWarning, SearchSettings, search
+from .pipeline import AnalysedFractionWarning, ExcludedDataWarning, SearchSettings, search
 from .ranking import reweighted_snr
 from .segments import plan_segments
 from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_psd, welch, whiten
@@ -22,6 +22,7 @@ __version__ = "0.1.0"
 __all__ = [
     "AnalysedFractionWarning",
     "Bank",
+    "ExcludedDataWarning",
     "GatingWarning",
     "SearchSettings",
     "TRIGGER_COLUMNS",

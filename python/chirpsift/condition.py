@@ -33,8 +33,8 @@ def check_strain(strain, name: str = "strain") -> np.ndarray:
     Raises
     ------
     ValueError
-        If the array is not 1-D, is empty, or its finite samples are all zero (there is
-        no noise to estimate a PSD from).
+        If the array is not 1-D, is empty, has no finite sample, or its finite samples
+        are all zero (there is no noise to estimate a PSD from).
     TypeError
         If the samples are not real numbers.
 
@@ -46,7 +46,10 @@ def check_strain(strain, name: str = "strain") -> np.ndarray:
     dtype('float64')
     """
     x = real_array(name, strain, ndim=1, finite=False)
-    if not np.any(x[np.isfinite(x)]):
+    finite = np.isfinite(x)
+    if not finite.any():
+        raise ValueError(f"{name} has no finite samples (all {x.shape[0]} are NaN or infinite)")
+    if not np.any(x[finite]):
         raise ValueError(f"{name} is identically zero: there is no noise to estimate a PSD from")
     return x
 

@@ -7,7 +7,7 @@ clustering, ranking) and never reaches into the compiled core.
 from ..gating import GatingWarning
 from ..triggers import TRIGGER_DTYPE
 from .settings import SEARCH_OPTIONS, SearchOption, SearchSettings
-from .single_site import MIN_ANALYSED_FRACTION, AnalysedFractionWarning, search
+from .single_site import MIN_ANALYSED_FRACTION, AnalysedFractionWarning, ExcludedDataWarning, search
 
 __all__ = ["search", "SearchSettings", "SearchOption", "SEARCH_OPTIONS", "TRIGGER_DTYPE", "GatingWarning",
-           "AnalysedFractionWarning", "MIN_ANALYSED_FRACTION"]
+           "AnalysedFractionWarning", "ExcludedDataWarning", "MIN_ANALYSED_FRACTION"]

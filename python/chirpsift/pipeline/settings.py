@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from .._validate import nonnegative_scalar, positive_int, positive_scalar
+from .._validate import choice, nonnegative_scalar, positive_int, positive_scalar
 
 __all__ = ["SearchSettings", "SearchOption", "SEARCH_OPTIONS", "option_key"]
 
@@ -31,11 +31,13 @@ class SearchOption:
         Unit of the value ("Hz", "s") or "" for a pure number or switch.
     kind : str
         ``"positive"``, ``"nonnegative"``, ``"count"`` (integer >= 1), ``"order"``
-        (integer 0-7) or ``"switch"`` (True/False).
+        (integer 0-7), ``"switch"`` (True/False) or ``"choice"`` (one of ``choices``).
     optional : bool
         Whether ``None`` is allowed (it then means what ``help`` says).
     help : str
         One line for help screens, ending with what ``None`` means where allowed.
+    choices : tuple of str
+        The allowed values of a ``"choice"`` option; empty otherwise.
     """
 
     name: str
@@ -43,6 +45,7 @@ class SearchOption:
     kind: str
     optional: bool
     help: str
+    choices: tuple[str, ...] = ()
 
     @property
     def key(self) -> str:
@@ -80,6 +83,10 @@ SEARCH_OPTIONS: tuple[SearchOption, ...] = (
                  "after clustering each template in time, keep only the loudest trigger (by reweighted SNR) "
                  "within the peak window across the whole bank"),
     SearchOption("phase_order", "", "order", False, "post-Newtonian order of the template phase, twice the PN order"),
+    SearchOption("nonfinite", "", "choice", False,
+                 "what to do with NaN or infinite strain samples: 'skip' searches the finite stretches between "
+                 "them separately and reports what was left out, 'error' refuses the data",
+                 choices=("skip", "error")),
 )
 
 _BY_NAME = {o.name: o for o in SEARCH_OPTIONS}
@@ -103,6 +110,8 @@ def _check(option: SearchOption, value):
         if not isinstance(value, (bool, np.bool_)):
             raise TypeError(f"{name} must be True or False, got {value!r}")
         return bool(value)
+    if option.kind == "choice":
+        return choice(name, value, option.choices)
     raise AssertionError(f"unknown option kind {option.kind!r}")
 
 
@@ -136,6 +145,7 @@ class SearchSettings:
     psd_duration: float | None = None
     bank_cluster: bool = False
     phase_order: int = 7
+    nonfinite: str = "skip"
 
     def __post_init__(self):
         for option in SEARCH_OPTIONS:

@@ -28,7 +28,7 @@ from ..triggers import trigger_table
 from ..waveform import chirp_duration, isco_frequency
 from .settings import SearchSettings
 
-__all__ = ["search", "AnalysedFractionWarning", "MIN_ANALYSED_FRACTION"]
+__all__ = ["search", "AnalysedFractionWarning", "ExcludedDataWarning", "MIN_ANALYSED_FRACTION"]
 
 _DEFAULT = SearchSettings  # class attributes are the defaults
 
@@ -42,15 +42,16 @@ class AnalysedFractionWarning(UserWarning):
     excluded stretches."""
 
 
-def _reject_nonfinite(x, sample_rate):
-    runs = find_nonfinite_runs(x)
-    if runs:
-        count = sum(b - a for a, b in runs)
-        first = runs[0][0]
-        raise ValueError(
-            f"strain has {count} non-finite samples in {len(runs)} run(s), the first at sample {first} "
-            f"({first / sample_rate:g} s after t0); remove gaps or split the data into finite stretches"
-        )
+class ExcludedDataWarning(UserWarning):
+    """Parts of the input were not searched: non-finite runs (``info["excluded"]``) and
+    finite stretches too short to hold a segment (``info["short_stretches"]``)."""
+
+
+def _nonfinite_message(runs, sample_rate):
+    count = sum(b - a for a, b in runs)
+    first = runs[0][0]
+    return (f"strain has {count} non-finite samples in {len(runs)} run(s), the first at sample {first} "
+            f"({first / sample_rate:g} s after t0)")
 
 
 # --- the PSD of a segment: given (on the segment's grid) or estimated (from a block) ---
@@ -184,21 +185,35 @@ def _plan_stretches(finite, sample_rate, settings, longest, pads, fixed_length):
     return searchable, short
 
 
-def _nothing_to_search(n, sample_rate, excluded, settings, longest, pads, fixed_length):
+def _nothing_to_search(n, sample_rate, runs, settings, longest, pads, fixed_length):
     """Why no stretch of the strain could be searched (the message of a ValueError)."""
     fs = sample_rate
-    if not excluded and fixed_length is not None and n < fixed_length:
+    m = max(b - a for a, b in stretches_between(n, runs))
+    where = (f"strain has {n} samples ({n / fs:g} s)" if not runs else
+             f"the longest finite stretch of strain has {m} samples ({m / fs:g} s; {_nonfinite_message(runs, fs)})")
+    if fixed_length is not None and m < fixed_length:
         if settings.segment_duration is not None:
-            return (f"strain has {n} samples ({n / fs:g} s), shorter than segment_duration="
-                    f"{settings.segment_duration} s; use a shorter segment_duration or more data")
-        return f"strain has {n} samples, fewer than the {fixed_length}-sample segment fixed by the psd array"
-    where = "strain" if not excluded else "the longest finite stretch of strain (between non-finite samples)"
-    longest_stretch = n if not excluded else max(b - a for a, b in stretches_between(n, excluded))
+            return (f"{where}, shorter than segment_duration={settings.segment_duration} s; "
+                    "use a shorter segment_duration or more data")
+        return f"{where}, fewer than the {fixed_length}-sample segment fixed by the psd array"
     return (
         f"templates last up to {longest * DURATION_MARGIN:.4g} s from f_low={settings.f_low} Hz: with the "
-        f"{settings.welch_duration} s whitening filter each segment discards {sum(pads) / fs:g} s, more than "
-        f"{where} holds ({longest_stretch / fs:g} s); raise f_low or give more data"
+        f"{settings.welch_duration} s whitening filter each segment discards {sum(pads) / fs:g} s, and {where}; "
+        "raise f_low or give more data"
     )
+
+
+def _excluded_message(runs, short, n_searched, sample_rate):
+    fs = sample_rate
+    parts = []
+    if runs:
+        count = sum(b - a for a, b in runs)
+        parts.append(f"left out {count} non-finite samples ({count / fs:g} s) in {len(runs)} run(s), the first "
+                     f"{runs[0][0] / fs:g} s after t0, and searched {n_searched} finite stretch(es) separately")
+    if short:
+        parts.append(f"{len(short)} finite stretch(es), {sum(b - a for a, b in short) / fs:g} s in all, too short "
+                     "to hold a segment were not searched")
+    return "; ".join(parts) + "; see info['excluded'] and info['short_stretches']"
 
 
 def _check_psd_block(settings, stretches, sample_rate):
@@ -300,6 +315,7 @@ def search(
     psd_duration=_DEFAULT.psd_duration,
     bank_cluster=_DEFAULT.bank_cluster,
     phase_order=_DEFAULT.phase_order,
+    nonfinite=_DEFAULT.nonfinite,
     progress=False,
     full_output=False,
 ):
@@ -395,7 +411,6 @@ def search(
     """
     fs = positive_scalar("sample_rate", sample_rate)
     x = check_strain(strain)
-    _reject_nonfinite(x, fs)
     b = Bank.from_any(bank)
     if len(b) == 0:
         raise ValueError("bank must hold at least one template")
@@ -405,7 +420,7 @@ def search(
         f_low=f_low, segment_duration=segment_duration, min_snr=min_snr, peak_window=peak_window,
         chi2_bands=chi2_bands, gate_threshold=gate_threshold, gate_half_width=gate_half_width,
         gate_taper=gate_taper, welch_duration=welch_duration, psd_duration=psd_duration,
-        bank_cluster=bank_cluster, phase_order=phase_order,
+        bank_cluster=bank_cluster, phase_order=phase_order, nonfinite=nonfinite,
     )
     fl, t_spec = settings.f_low, settings.welch_duration
     if fl >= fs / 2:
@@ -419,10 +434,16 @@ def search(
     fixed_length = _fixed_segment_length(settings, psd, fs, longest, pads)
 
     n = x.shape[0]
-    stretches, short = _plan_stretches([(0, n)], fs, settings, longest, pads, fixed_length)
+    runs = find_nonfinite_runs(x)
+    if runs and settings.nonfinite == "error":
+        raise ValueError(f"{_nonfinite_message(runs, fs)}; remove them, or pass nonfinite='skip' to search the "
+                         "finite stretches between them")
+    stretches, short = _plan_stretches(stretches_between(n, runs), fs, settings, longest, pads, fixed_length)
     if not stretches:
-        raise ValueError(_nothing_to_search(n, fs, [], settings, longest, pads, fixed_length))
+        raise ValueError(_nothing_to_search(n, fs, runs, settings, longest, pads, fixed_length))
     _check_psd_block(settings, stretches, fs)
+    if runs or short:
+        warnings.warn(_excluded_message(runs, short, len(stretches), fs), ExcludedDataWarning, stacklevel=2)
 
     gated = [_gate(x[s.start:s.stop], fs, settings) for s in stretches]
     gates = [(s.start + a, s.start + bb) for s, (_, g) in zip(stretches, gated) for a, bb in g]
@@ -474,6 +495,10 @@ def search(
         "max_template_duration": longest * DURATION_MARGIN,
         "pad_start": pads[0] / fs,
         "pad_end": pads[1] / fs,
+        "excluded": [(t_start + a / fs, t_start + bb / fs) for a, bb in runs],
+        "short_stretches": [(t_start + a / fs, t_start + bb / fs) for a, bb in short],
+        "stretches": [{"start": t_start + s.start / fs, "stop": t_start + s.stop / fs, "segments": len(s.plans),
+                       "segment_duration": s.length / fs} for s in stretches],
         "segment_duration": max(s.length for s in stretches) / fs,
         "sample_rate": fs,
         "settings": settings.as_dict(),
