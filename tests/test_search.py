@@ -9,6 +9,7 @@ from hypothesis import given, settings, strategies as st
 import chirpsift as cs
 from chirpsift import synthetic
 from chirpsift.reference import chirp_duration as ref_chirp_duration
+from chirpsift.reference import design_psd as ref_design_psd
 
 FS = 1024.0
 T_SUN = 4.925490947641267e-6  # s, IAU 2015 B3 nominal GM_sun / c^3 (REFERENCES item 14)
@@ -22,15 +23,13 @@ def _sigma_spa(m1, m2, f_low, n, fs):
     item 2, Cutler & Flanagan 1994) summed directly, sigma^2 = 4 df sum |h~|^2 / S over
     the rfft bins f_low <= f < f_ISCO of n samples (Allen et al. 2012), with the design
     PSD from the numpy twin."""
-    from chirpsift.reference import design_psd
-
     df = fs / n
     mtot = m1 + m2
     mc = (m1 * m2) ** 0.6 / mtot**0.2
     amp = np.sqrt(5 / 24) * np.pi ** (-2 / 3) * C / MPC * (mc * T_SUN) ** (5 / 6)
     f = np.arange(n // 2 + 1) * df
     band = (f >= f_low) & (f < 1 / (6**1.5 * np.pi * mtot * T_SUN))
-    return float(np.sqrt(4 * df * np.sum(amp**2 * f[band] ** (-7 / 3) / design_psd(f[band]))))
+    return float(np.sqrt(4 * df * np.sum(amp**2 * f[band] ** (-7 / 3) / ref_design_psd(f[band]))))
 
 
 @settings(max_examples=200, deadline=None)
@@ -95,13 +94,9 @@ def test_injection_recovered_at_right_time_template_and_snr():
     m1, m2 = 9.0, 7.0
     bank = cs.Bank.from_any({"m1": [6.0, 9.0, 12.0], "m2": [5.0, 7.0, 9.0]})
     t0 = 1_000_000.0
-    n = int(256 * FS)
-    f = np.arange(n // 2 + 1) * FS / n
-    psd = cs.design_psd(f)
-    h = cs.taylorf2(m1, m2, f_low=30.0, df=FS / n, n_freq=f.size, dtype=np.complex128)[0]
-    distance = cs.sigma(h, psd, FS / n, 30.0) / 10.0  # optimal SNR 10
+    distance = _sigma_spa(m1, m2, 30.0, int(256 * FS), FS) / 10.0  # optimal SNR 10
     t_c = t0 + 150.123
-    x = _data(1, inject=dict(m1=m1, m2=m2, t_coalescence=t_c, distance=float(distance), phase=0.3, t0=t0))
+    x = _data(1, inject=dict(m1=m1, m2=m2, t_coalescence=t_c, distance=distance, phase=0.3, t0=t0))
     trig, info = cs.search(x, FS, bank, t0=t0, f_low=30.0, segment_duration=64.0, full_output=True)
     best = trig[np.argmax(trig["snr"])]
     assert best["template"] == 1
@@ -126,8 +121,7 @@ def test_search_on_one_segment_matches_numpy_twin():
     trig = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, min_snr=4.0, peak_window=0.5)
     psd = ref.truncate_inverse_psd(ref.psd_to_grid(*ref.welch(x, FS, 4.0), 1 / 64.0, x.size // 2 + 1), FS, 4.0, 30.0)
     longest = max(ref.chirp_duration(m1, m2, 30.0) for m1, m2 in zip(bank.m1, bank.m2))
-    pad_start = int(np.ceil((longest * 1.1 + 2.0) * FS)) + 1  # search's documented discard
-    pad_end = int(np.ceil(2.0 * FS)) + 1
+    pad_start, pad_end = _documented_pads(longest, 4.0, FS)
     direct = ref_segment.filter_segment(np.fft.rfft(x) / FS, psd, 1 / 64.0, bank.m1, bank.m2, f_low=30.0,
                                         min_snr=4.0, cluster_samples=512, valid=(pad_start, x.size - pad_end))
     assert len(trig) == len(direct["snr"]) > 0
@@ -269,17 +263,15 @@ def test_stretches_too_short_to_search_are_reported():
 def test_signals_at_segment_joins_are_found_exactly_once():
     # Overlap-save (common practice): a coalescence at, just before or just after the
     # boundary between two segments' analysable parts is reported once, by one segment.
+    # The joins follow from the documented pads: segments advance by their length minus
+    # both pads, so the k-th analysable part ends at pad_start + k (length - pads).
     bank = cs.Bank.from_any({"m1": [9.0], "m2": [7.0]})
     duration, seg = 192.0, 32.0
     n = int(duration * FS)
-    probe = cs.search(_data(9, duration), FS, bank, f_low=30.0, segment_duration=seg, full_output=True)[1]
-    pad_start = int(round(probe["pad_start"] * FS))
-    pad_end = int(round(probe["pad_end"] * FS))
-    plans = cs.plan_segments(n, int(seg * FS), pad_start, pad_end)
-    joins = [(p.start + p.valid_stop) / FS for p in plans[:-1]]
-    f = np.arange(n // 2 + 1) * FS / n
-    h = cs.taylorf2(9.0, 7.0, f_low=30.0, df=FS / n, n_freq=f.size, dtype=np.complex128)[0]
-    distance = float(cs.sigma(h, cs.design_psd(f), FS / n, 30.0)) / 30.0  # optimal SNR 30
+    pad_start, pad_end = _documented_pads(ref_chirp_duration(9.0, 7.0, 30.0), 4.0, FS)
+    stride = int(seg * FS) - pad_start - pad_end
+    joins = [(pad_start + k * stride) / FS for k in range(1, (n - pad_start - pad_end - 1) // stride + 1)]
+    distance = _sigma_spa(9.0, 7.0, 30.0, n, FS) / 30.0  # optimal SNR 30
     offsets = [-0.3 / FS, 0.0, 0.4 / FS, 2.5 / FS]
     assert len(joins) >= len(offsets)
     times = [joins[i] + offsets[i] for i in range(len(offsets))]  # one join each, chirps far apart
@@ -321,14 +313,15 @@ def test_noise_only_trigger_rate_matches_gaussian_expectation(psd_kwargs):
     x = _data(21, duration=1024.0)
     trig, info = cs.search(x, FS, bank, f_low=30.0, segment_duration=64.0, min_snr=u, peak_window=0.05,
                            full_output=True, **psd_kwargs)
-    start, stop = info["analysed"][0]
-    n = int(64 * FS)
-    f = np.arange(n // 2 + 1) * FS / n
-    psd = cs.design_psd(f)
+    [(start, stop)] = info["analysed"]
     expected = 0.0
     for m1, m2 in zip(bank.m1, bank.m2):
-        h = cs.taylorf2(m1, m2, f_low=30.0, df=FS / n, n_freq=f.size, dtype=np.complex128)[0]
-        w = np.abs(h) ** 2 * np.where(np.isfinite(psd), 1 / psd, 0.0)
+        # Delta: variance of the angular frequency under the template's SNR weight, which
+        # depends only on the amplitude: |h~|^2 / S ~ f^(-7/3) / S on [f_low, f_ISCO)
+        # (REFERENCES item 2), evaluated on the 64 s segment grid with the twin's PSD.
+        f = np.arange(int(64 * FS) // 2 + 1) / 64.0
+        f = f[(f >= 30.0) & (f < 1 / (6**1.5 * np.pi * (m1 + m2) * T_SUN))]
+        w = f ** (-7 / 3) / ref_design_psd(f)
         w /= w.sum()
         omega = 2 * np.pi * f
         delta = (w * omega**2).sum() - (w * omega).sum() ** 2

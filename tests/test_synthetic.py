@@ -179,6 +179,12 @@ def setup():
 
 
 def test_injection_recovers_optimal_snr_and_phase(setup):
+    """Consistency test: ``optimal_snr``, ``inject_taylorf2`` and the matched filter here
+    are all built from ``chirpsift.taylorf2``, so their 1e-9 agreement shows they share
+    one convention, not that the convention is right (a common scale or phase error
+    would cancel). The outside checks beside it are
+    ``test_optimal_snr_matches_spa_integral`` (the SPA amplitude integrated with scipy)
+    and ``test_optimal_snr_horizon_of_design_fit`` (a published horizon distance)."""
     fs, n, f_low = setup["fs"], setup["n"], setup["f_low"]
     t0 = 500.0
     j0 = 50 * int(fs) + 123  # on the sample grid
