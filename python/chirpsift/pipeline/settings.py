@@ -125,12 +125,22 @@ class SearchSettings:
 
     Examples
     --------
-    >>> from chirpsift.pipeline import SearchSettings
+    >>> from chirpsift.pipeline import SEARCH_OPTIONS, SearchSettings
     >>> s = SearchSettings(f_low=20.0, min_snr=6)
     >>> s.min_snr, s.peak_window
     (6.0, 1.0)
     >>> SearchSettings.from_mapping({"f-low": 30, "chi2-bands": 8}).chi2_bands
     8
+    >>> s.segment_duration is None  # sized from the bank's longest template
+    True
+    >>> s.nonfinite, s.replace(nonfinite="error").nonfinite
+    ('skip', 'error')
+    >>> SearchSettings(f_low=20.0, nonfinite="drop")
+    Traceback (most recent call last):
+    ...
+    ValueError: nonfinite must be one of 'skip', 'error', got 'drop'
+    >>> [o.key for o in SEARCH_OPTIONS if o.kind == "choice"], SEARCH_OPTIONS[-1].choices
+    (['nonfinite'], ('skip', 'error'))
     """
 
     f_low: float
