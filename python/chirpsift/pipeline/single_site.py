@@ -278,7 +278,8 @@ def _given_psd(psd, n_freq, df):
     if isinstance(psd, tuple):
         return psd_to_grid(psd[0], psd[1], df, n_freq)
     if psd.shape != (n_freq,):
-        raise ValueError(f"psd given as an array must have {n_freq} bins (the segment's rfft grid), got shape {psd.shape}")
+        raise ValueError(f"psd given as an array must have {n_freq} bins (the segment's rfft grid), "
+                         f"got shape {psd.shape}")
     return psd
 
 
