@@ -987,3 +987,20 @@ def test_regression_welch_array_detrend(detrend):
 
 def test_regression_taylorf2_tiny_distance_raises_instead_of_inf():
     call(cs.taylorf2, 1.4, 1.4, f_low=20.0, df=0.25, n_freq=1025, distance=1e-300, names={"distance"})
+
+
+@pytest.mark.parametrize("junk", [b"0\x00", "i4,(2", "0", b"\xff", "f8,,", "(", "S-1"], ids=repr)
+@pytest.mark.parametrize("fn", ["taylorf2", "snr_series"])
+def test_regression_dtype_parser_failures_name_the_argument(fn, junk):
+    # numpy's dtype parser raises ValueError ("format number 1 of ...") or SyntaxError for
+    # some strings and bytes, with a message that names no argument
+    if fn == "taylorf2":
+        call(cs.taylorf2, 1.4, 1.4, f_low=20.0, df=1.0, n_freq=65, dtype=junk, names={"dtype"})
+    else:
+        call(cs.snr_series, DATA_FD, TEMPLATES, WHITE_PSD, DF, 20.0, dtype=junk, names={"dtype"})
+
+
+@FAST
+@given(junk=st.one_of(st.binary(max_size=6), st.text(max_size=6)))
+def test_dtype_from_any_string_or_bytes_names_the_argument(junk):
+    call(cs.snr_series, DATA_FD, TEMPLATES, WHITE_PSD, DF, 20.0, dtype=junk, names={"dtype"})

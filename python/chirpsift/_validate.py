@@ -1,4 +1,11 @@
-"""Input checks shared by the numpy API: every message names the argument and the value."""
+"""Input checks shared by the whole package: every message names the argument and the value.
+
+One rule per kind of value lives here (finite real number, positive number, bounded
+integer, dtype, choice, arrays of a given shape, PSDs), so the numpy API, the file
+readers and the workflows refuse bad input with the same words. A ``where=`` prefix
+puts a context, such as the file a value was read from, in front of the message.
+Wrong types raise ``TypeError``; wrong values raise ``ValueError``.
+"""
 
 from __future__ import annotations
 
@@ -16,7 +23,7 @@ __all__ = [
     "complex_array",
     "positive_scalar",
     "nonnegative_scalar",
-    "positive_int",
+    "integer",
     "psd_array",
     "choice",
 ]
@@ -79,45 +86,96 @@ def complex_array(name: str, x, ndim=(1, 2), dtype=None) -> np.ndarray:
     return a
 
 
-def _scalar(name: str, x) -> float:
+def _prefix(where) -> str:
+    """``"where: "`` for messages about a value read from a file, else nothing."""
+    return f"{where}: " if where else ""
+
+
+def real_scalar(name: str, x, *, where: str | None = None) -> float:
+    """Check that ``x`` is one finite real number and return it as a float.
+
+    Parameters
+    ----------
+    name : str
+        Argument name used in the error message.
+    x : object
+        A Python or numpy real number, or a 0-d real array. Booleans are refused
+        (``True`` is almost always a mistake for a number of Hz or seconds).
+    where : str, optional
+        Context put in front of the message, e.g. the file a value belongs to.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    TypeError
+        If ``x`` is not a real number.
+    ValueError
+        If ``x`` is NaN or infinite.
+    """
     if isinstance(x, (bool, np.bool_)) or not isinstance(x, (numbers.Real, np.floating, np.integer)):
         if isinstance(x, np.ndarray) and x.ndim == 0 and x.dtype.kind in "iuf":
             x = x.item()
         else:
-            raise TypeError(f"{name} must be a real number, got {_describe(x)}")
+            raise TypeError(f"{_prefix(where)}{name} must be a real number, got {_describe(x)}")
     v = float(x)
     if not np.isfinite(v):
-        raise ValueError(f"{name} must be finite, got {v}")
+        raise ValueError(f"{_prefix(where)}{name} must be finite, got {v}")
     return v
 
 
-def positive_scalar(name: str, x) -> float:
-    v = _scalar(name, x)
+def positive_scalar(name: str, x, *, where: str | None = None) -> float:
+    """Check that ``x`` is a finite real number greater than zero (see :func:`real_scalar`)."""
+    v = real_scalar(name, x, where=where)
     if v <= 0:
-        raise ValueError(f"{name} must be positive, got {v}")
+        raise ValueError(f"{_prefix(where)}{name} must be positive, got {v}")
     return v
 
 
-def nonnegative_scalar(name: str, x) -> float:
-    v = _scalar(name, x)
+def nonnegative_scalar(name: str, x, *, where: str | None = None) -> float:
+    """Check that ``x`` is a finite real number at least zero (see :func:`real_scalar`)."""
+    v = real_scalar(name, x, where=where)
     if v < 0:
-        raise ValueError(f"{name} must be non-negative, got {v}")
+        raise ValueError(f"{_prefix(where)}{name} must be non-negative, got {v}")
     return v
 
 
-def real_scalar(name: str, x) -> float:
-    """A finite real number."""
-    return _scalar(name, x)
+def integer(name: str, x, minimum: int = 1, maximum: int = 2**53, *, where: str | None = None) -> int:
+    """Check that ``x`` is an integer in ``[minimum, maximum]`` and return it as an int.
 
+    Parameters
+    ----------
+    name : str
+        Argument name used in the error message.
+    x : object
+        A Python or numpy integer (not a bool, not a float that happens to be whole).
+    minimum, maximum : int
+        Inclusive bounds. The default maximum, 2**53, keeps the value exact as a float64
+        and far below what any allocation could hold, so huge integers fail here with a
+        message instead of overflowing in the core.
+    where : str, optional
+        Context put in front of the message.
 
-def positive_int(name: str, x, minimum: int = 1, maximum: int = 2**53) -> int:
+    Returns
+    -------
+    int
+
+    Raises
+    ------
+    TypeError
+        If ``x`` is not an integer.
+    ValueError
+        If ``x`` is out of bounds.
+    """
     if isinstance(x, (bool, np.bool_)) or not isinstance(x, (numbers.Integral, np.integer)):
-        raise TypeError(f"{name} must be an integer, got {_describe(x)}")
+        raise TypeError(f"{_prefix(where)}{name} must be an integer, got {_describe(x)}")
     v = int(x)
     if v < minimum:
-        raise ValueError(f"{name} must be at least {minimum}, got {v}")
+        raise ValueError(f"{_prefix(where)}{name} must be at least {minimum}, got {v}")
     if v > maximum:
-        raise ValueError(f"{name} must be at most {maximum}, got {v}")
+        raise ValueError(f"{_prefix(where)}{name} must be at most {maximum}, got {v}")
     return v
 
 
@@ -155,12 +213,35 @@ def finite_output(out: np.ndarray, blame: str, hint: str = "") -> np.ndarray:
 
 
 def dtype_choice(name: str, dtype, allowed) -> np.dtype:
+    """Check that ``dtype`` names one of the ``allowed`` numpy dtypes and return it.
+
+    Parameters
+    ----------
+    name : str
+        Argument name used in the error message.
+    dtype : object
+        Anything :class:`numpy.dtype` accepts (a type, a name such as ``"complex64"``).
+    allowed : sequence
+        The dtypes accepted.
+
+    Returns
+    -------
+    numpy.dtype
+
+    Raises
+    ------
+    TypeError
+        If ``dtype`` is not a dtype, or not one of ``allowed``. Every failure of
+        :class:`numpy.dtype` is caught: for some strings and bytes numpy raises
+        ``ValueError`` or even ``SyntaxError`` with a message that names no argument.
+    """
+    names = ", ".join(np.dtype(a).name for a in allowed)
     try:
         dt = np.dtype(dtype)
-    except TypeError:
-        raise TypeError(f"{name} must be one of {', '.join(np.dtype(a).name for a in allowed)}, got {_describe(dtype)}") from None
+    except Exception:  # numpy's parser raises TypeError, ValueError, SyntaxError, ...
+        raise TypeError(f"{name} must be one of {names}, got {_describe(dtype)}") from None
     if dt not in [np.dtype(a) for a in allowed]:
-        raise TypeError(f"{name} must be one of {', '.join(np.dtype(a).name for a in allowed)}, got {dt}")
+        raise TypeError(f"{name} must be one of {names}, got {dt}")
     return dt
 
 
@@ -170,7 +251,7 @@ def psd_array(name: str, x, ndim=(1, 2)) -> np.ndarray:
     if np.isnan(a).any():
         i = np.unravel_index(int(np.argmax(np.isnan(a))), a.shape)
         raise ValueError(f"{name} must not contain NaN, found one at index {i if a.ndim > 1 else i[0]}")
-    bad = (a <= 0) | (a == -np.inf)
+    bad = a <= 0
     if bad.any():
         i = np.unravel_index(int(np.argmax(bad)), a.shape)
         raise ValueError(f"{name} must be positive (use inf to exclude a bin), found {a[i]} at index {i if a.ndim > 1 else i[0]}")
@@ -178,6 +259,7 @@ def psd_array(name: str, x, ndim=(1, 2)) -> np.ndarray:
 
 
 def choice(name: str, x, options) -> str:
+    """Check that ``x`` is one of the strings in ``options`` (ValueError naming ``name`` if not)."""
     if not isinstance(x, str) or x not in options:
         raise ValueError(f"{name} must be one of {', '.join(map(repr, options))}, got {_describe(x)}")
     return x

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._validate import positive_int, real_array
+from ._validate import integer, real_array
 
 __all__ = ["check_strain", "find_nonfinite_runs", "stretches_between", "finite_stretches", "subtract_intervals"]
 
@@ -114,7 +114,7 @@ def stretches_between(n_samples: int, excluded) -> list[tuple[int, int]]:
     >>> stretches_between(10, [(0, 2), (5, 6)])
     [(2, 5), (6, 10)]
     """
-    n = positive_int("n_samples", n_samples, minimum=0)
+    n = integer("n_samples", n_samples, minimum=0)
     out = []
     cursor = 0
     for a, b in excluded:

@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import broadcast, complex_array, positive_int, positive_scalar, psd_array, real_array
+from ._validate import broadcast, complex_array, integer, positive_scalar, psd_array, real_array
 from .waveform import _masses, _phase_order, _spins
 
 __all__ = ["filter_segment", "PEAK_COLUMNS"]
@@ -140,9 +140,9 @@ def filter_segment(
         raise ValueError(f"f_high must exceed f_low={fl} Hz for every template, got min {fh.min()} Hz")
     thr = positive_scalar("min_snr", min_snr)
     # A window longer than the segment clusters the whole segment, as n does.
-    cl = min(positive_int("cluster_samples", cluster_samples, minimum=0), n)
+    cl = min(integer("cluster_samples", cluster_samples, minimum=0), n)
     k_low = int(np.ceil(fl / dfv))
-    bins = positive_int("chi2_bands", chi2_bands, minimum=2, maximum=max(2, d.shape[0] - k_low))
+    bins = integer("chi2_bands", chi2_bands, minimum=2, maximum=max(2, d.shape[0] - k_low))
     start, stop = _valid_range(valid, n)
     if not np.isfinite(p[int(np.ceil(fl / dfv)):]).any():
         raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")

@@ -19,7 +19,7 @@ from __future__ import annotations
 import math
 from typing import NamedTuple
 
-from ._validate import nonnegative_scalar, positive_int, positive_scalar
+from ._validate import nonnegative_scalar, integer, positive_scalar
 
 __all__ = ["SegmentPlan", "plan_segments", "padding", "default_length", "DURATION_MARGIN",
            "PAD_FRACTION_DIVISOR", "MIN_WELCH_LENGTHS"]
@@ -122,7 +122,7 @@ def default_length(max_duration, welch_duration, sample_rate, n_samples=None) ->
     need = max(PAD_FRACTION_DIVISOR * (DURATION_MARGIN * t + t_spec), MIN_WELCH_LENGTHS * t_spec) * fs
     length = 1 << max(1, math.ceil(need) - 1).bit_length()
     if n_samples is not None:
-        length = min(length, positive_int("n_samples", n_samples) // 2 * 2)
+        length = min(length, integer("n_samples", n_samples) // 2 * 2)
     return length
 
 
@@ -157,10 +157,10 @@ def plan_segments(n_samples: int, length: int, pad_start: int, pad_end: int) -> 
         aligned with the end of the data and analyses only what the others left, so
         the analysable parts tile the span without gaps or overlaps.
     """
-    n_samples = positive_int("n_samples", n_samples)
-    length = positive_int("length", length)
-    pad_start = positive_int("pad_start", pad_start, minimum=0)
-    pad_end = positive_int("pad_end", pad_end, minimum=0)
+    n_samples = integer("n_samples", n_samples)
+    length = integer("length", length)
+    pad_start = integer("pad_start", pad_start, minimum=0)
+    pad_end = integer("pad_end", pad_end, minimum=0)
     stride = length - pad_start - pad_end
     if stride < 1:
         raise ValueError(

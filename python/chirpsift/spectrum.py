@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import check_allocation, choice, finite_output, nonnegative_scalar, positive_int, positive_scalar, psd_array, real_array
+from ._validate import check_allocation, choice, finite_output, nonnegative_scalar, integer, positive_scalar, psd_array, real_array
 
 __all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "truncate_inverse_psd", "whiten"]
 
@@ -188,7 +188,7 @@ def psd_to_grid(freqs, psd, df, n_freq):
     if f.shape[0] >= 2 and not np.all(np.diff(f) > 0):
         i = int(np.argmax(np.diff(f) <= 0))
         raise ValueError(f"freqs must increase strictly, but freqs[{i + 1}]={f[i + 1]} <= freqs[{i}]={f[i]}")
-    nf = positive_int("n_freq", n_freq)
+    nf = integer("n_freq", n_freq)
     check_allocation("n_freq", nf, 8)
     return _core.psd_to_grid(f, p, positive_scalar("df", df), nf)
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from . import _core
-from ._validate import positive_int
+from ._validate import integer
 
 __all__ = ["set_threads", "get_threads"]
 
@@ -19,7 +19,7 @@ def set_threads(n):
         thread count: work is split per template or channel and reduced in a fixed
         order.
     """
-    _core.set_threads(positive_int("n", n, maximum=4096))
+    _core.set_threads(integer("n", n, maximum=4096))
 
 
 def get_threads():

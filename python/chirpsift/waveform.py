@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import broadcast, check_allocation, dtype_choice, finite_output, positive_int, positive_scalar, real_array
+from ._validate import broadcast, check_allocation, dtype_choice, finite_output, integer, positive_scalar, real_array
 
 __all__ = ["taylorf2", "chirp_duration", "isco_frequency", "T_SUN", "MPC", "C_SI"]
 
@@ -39,7 +39,7 @@ def _spins(chi1, chi2):
 
 
 def _phase_order(phase_order) -> int:
-    p = positive_int("phase_order", phase_order, minimum=0)
+    p = integer("phase_order", phase_order, minimum=0)
     if p > 7:
         raise ValueError(f"phase_order must be 0..7 (twice the PN order), got {p}")
     return p
@@ -183,7 +183,7 @@ def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None, dist
     m1v, m2v, c1v, c2v = (np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in arrays)
     fl = positive_scalar("f_low", f_low)
     dfv = positive_scalar("df", df)
-    nf = positive_int("n_freq", n_freq)
+    nf = integer("n_freq", n_freq)
     dist = positive_scalar("distance", distance)
     order = _phase_order(phase_order)
     dt = dtype_choice("dtype", dtype, (np.complex64, np.complex128))

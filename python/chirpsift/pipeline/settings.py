@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from .._validate import choice, nonnegative_scalar, positive_int, positive_scalar
+from .._validate import choice, nonnegative_scalar, integer, positive_scalar
 
 __all__ = ["SearchSettings", "SearchOption", "SEARCH_OPTIONS", "option_key"]
 
@@ -103,9 +103,9 @@ def _check(option: SearchOption, value):
     if option.kind == "nonnegative":
         return nonnegative_scalar(name, value)
     if option.kind == "count":
-        return positive_int(name, value, minimum=2 if name == "chi2_bands" else 1)
+        return integer(name, value, minimum=2 if name == "chi2_bands" else 1)
     if option.kind == "order":
-        return positive_int(name, value, minimum=0, maximum=7)
+        return integer(name, value, minimum=0, maximum=7)
     if option.kind == "switch":
         if not isinstance(value, (bool, np.bool_)):
             raise TypeError(f"{name} must be True or False, got {value!r}")
