@@ -190,7 +190,7 @@ def test_bench_hook_forwards_arguments(monkeypatch):
 
 def test_unexpected_failure_exits_one(tmp_path, monkeypatch, capsys):
     s = tmp_path / "s.npz"
-    np.savez(s, strain=np.zeros(1024), sample_rate=64.0)
+    np.savez(s, strain=np.zeros(1024), sample_rate=64.0, t0=0.0)
     b = tmp_path / "b.npz"
     Bank.mass_grid(5.0, 6.0, 2).save(b)
 

@@ -56,20 +56,22 @@ def test_npy_float32_is_promoted(tmp_path, samples):
     assert s.t0 == 0.0
 
 
-def test_npz_round_trip_and_overrides(tmp_path, samples):
+def test_npz_round_trip(tmp_path, samples):
     p = tmp_path / "site_b.npz"
     np.savez(p, strain=samples, sample_rate=256.0, t0=42.25)
     s = read_strain(p)
     np.testing.assert_array_equal(s.data, samples)
     assert (s.sample_rate, s.t0) == (256.0, 42.25)
-    s2 = read_strain(p, sample_rate=128.0, t0=7.0)
-    assert (s2.sample_rate, s2.t0) == (128.0, 7.0)
+    # the same values given explicitly are not a conflict
+    s2 = read_strain(p, sample_rate=256, t0=42.25)
+    assert (s2.sample_rate, s2.t0) == (256.0, 42.25)
 
 
-def test_npz_without_t0_defaults_to_zero(tmp_path, samples):
+def test_npz_metadata_under_other_names(tmp_path, samples):
     p = tmp_path / "a.npz"
-    np.savez(p, strain=samples, sample_rate=256.0)
-    assert read_strain(p).t0 == 0.0
+    np.savez(p, strain=samples, fs=256.0, start=-3.5)
+    s = read_strain(p, sample_rate_attr="fs", t0_attr="start")
+    assert (s.sample_rate, s.t0) == (256.0, -3.5)
 
 
 def test_hdf5_round_trip_with_attributes(tmp_path, samples):
@@ -88,8 +90,8 @@ def test_hdf5_round_trip_with_attributes(tmp_path, samples):
     assert "group/strain" in s.source
     s2 = read_strain(p, dataset="other", sample_rate_attr="fs", t0_attr="start")
     assert (s2.sample_rate, s2.t0) == (16.0, -3.0)
-    s3 = read_strain(p, dataset="group/strain", sample_rate=100.0, t0=0.0)
-    assert (s3.sample_rate, s3.t0) == (100.0, 0.0)
+    s3 = read_strain(p, dataset="group/strain", sample_rate=2048.0, t0=1234.5)
+    assert (s3.sample_rate, s3.t0) == (2048.0, 1234.5)
 
 
 def test_hdf5_errors_name_dataset_and_file(tmp_path, samples):
@@ -106,6 +108,8 @@ def test_hdf5_errors_name_dataset_and_file(tmp_path, samples):
     with pytest.raises(ValueError, match="sample_rate") as e:
         read_strain(p, dataset="strain")
     assert str(p) in str(e.value)
+    for words in ("sample_rate", "--sample-rate", "sample_rate_attr", "--sample-rate-attr"):
+        assert f" {words} " in str(e.value) or f"({words})" in str(e.value)
 
 
 def test_hdf5_without_h5py_says_how_to_install(tmp_path, monkeypatch):
@@ -155,21 +159,23 @@ def test_csv_two_columns(tmp_path, samples):
 
 
 def test_text_non_uniform_time_column(tmp_path):
-    t = np.arange(100) / 16.0
-    t[50] += 1e-3  # 1.6% of a step: far beyond the 1e-6 relative tolerance
+    t = np.delete(np.arange(101) / 16.0, 50)  # one missing row: a step of 2 / 16 s
     p = tmp_path / "bad.txt"
     np.savetxt(p, np.column_stack([t, np.zeros(100)]))
     with pytest.raises(ValueError, match="not uniformly spaced") as e:
         read_strain(p)
-    assert str(p) in str(e.value)
+    msg = str(e.value)
+    assert str(p) in msg and "data rows 49 and 50" in msg and "0.125 s" in msg and "0.0625 s" in msg
+    assert " 1 of the median step" in msg  # the worst deviation, as a fraction of a step
 
 
 def test_text_conflicting_sample_rate(tmp_path):
     t = np.arange(100) / 16.0
     p = tmp_path / "a.txt"
     np.savetxt(p, np.column_stack([t, np.zeros(100)]))
-    with pytest.raises(ValueError, match="disagrees"):
+    with pytest.raises(ValueError, match="conflicts") as e:
         read_strain(p, sample_rate=32.0)
+    assert "32.0 Hz" in str(e.value) and "16.0 Hz" in str(e.value) and "time column" in str(e.value)
 
 
 def test_text_three_columns(tmp_path):
@@ -251,10 +257,12 @@ def test_non_1d_and_empty(tmp_path):
 
 
 def test_complex_rejected(tmp_path):
+    # a problem with a file's content is a ValueError naming the file
     p = tmp_path / "c.npy"
     np.save(p, np.zeros(4, complex))
-    with pytest.raises(TypeError, match="complex"):
+    with pytest.raises(ValueError, match="complex") as e:
         read_strain(p, sample_rate=1.0)
+    assert str(p) in str(e.value)
 
 
 def test_dataset_for_non_hdf5(tmp_path, samples):
@@ -391,3 +399,292 @@ def test_new_files_get_normal_permissions(tmp_path):
 
 def test_metadata_key_constant():
     assert cio.METADATA_KEY == "chirpsift"
+
+
+# ---------------------------------------------------------------------------
+# a file's own metadata against the caller's values
+# ---------------------------------------------------------------------------
+def _h5(tmp_path, samples, **attrs):
+    h5py = pytest.importorskip("h5py")
+    p = tmp_path / "site.h5"
+    with h5py.File(p, "w") as f:
+        d = f.create_dataset("strain", data=samples)
+        for k, v in attrs.items():
+            d.attrs[k] = v
+    return p
+
+
+def _npz(tmp_path, samples, **arrays):
+    p = tmp_path / "site.npz"
+    np.savez(p, strain=samples, **arrays)
+    return p
+
+
+@pytest.mark.parametrize("fmt", ["npz", "hdf5"])
+@pytest.mark.parametrize(
+    "given, words",
+    [
+        ({"sample_rate": 2048.0}, ("sample_rate=2048.0 Hz", "--sample-rate", "4096.0 Hz")),
+        ({"t0": 7.0}, ("t0=7.0 s", "--t0", "1000.5 s")),
+    ],
+    ids=["sample_rate", "t0"],
+)
+def test_regression_argument_conflicting_with_file_metadata_is_refused(tmp_path, samples, fmt, given, words):
+    make = _npz if fmt == "npz" else _h5
+    p = make(tmp_path, samples, sample_rate=4096.0, t0=1000.5)
+    kwargs = {"dataset": "strain"} if fmt == "hdf5" else {}
+    with pytest.raises(ValueError, match="conflicts") as e:
+        read_strain(p, **kwargs, **given)
+    msg = str(e.value)
+    assert str(p) in msg and "\n" not in msg
+    for w in words:
+        assert w in msg, (w, msg)
+
+
+@pytest.mark.parametrize("fmt", ["npz", "hdf5"])
+def test_arguments_agreeing_with_file_metadata_are_accepted(tmp_path, samples, fmt):
+    # agreement means the two put every sample within a tenth of a step of the same time
+    make = _npz if fmt == "npz" else _h5
+    p = make(tmp_path, samples, sample_rate=4096.0, t0=1000.5)
+    kwargs = {"dataset": "strain"} if fmt == "hdf5" else {}
+    n_steps = samples.size - 1
+    # a rate that moves the last sample by 0.05 step passes, 0.2 step fails
+    ok_rate = n_steps / (n_steps / 4096.0 + 0.05 / 4096.0)
+    bad_rate = n_steps / (n_steps / 4096.0 + 0.2 / 4096.0)
+    s = read_strain(p, sample_rate=ok_rate, t0=1000.5 + 0.05 / 4096.0, **kwargs)
+    assert s.sample_rate == ok_rate and s.t0 == 1000.5 + 0.05 / 4096.0
+    with pytest.raises(ValueError, match="conflicts"):
+        read_strain(p, sample_rate=bad_rate, **kwargs)
+    with pytest.raises(ValueError, match="conflicts"):
+        read_strain(p, t0=1000.5 + 0.2 / 4096.0, **kwargs)
+
+
+def test_regression_hdf5_start_time_under_another_name_is_not_zero(tmp_path, samples):
+    p = _h5(tmp_path, samples, sample_rate=4096.0, gps_start=1000.5)
+    with pytest.raises(ValueError, match="no start time") as e:
+        read_strain(p, dataset="strain")
+    msg = str(e.value)
+    assert str(p) in msg and "'t0'" in msg and "gps_start" in msg and "\n" not in msg
+    for words in ("t0 (--t0)", "t0_attr (--t0-attr)"):
+        assert words in msg
+    assert read_strain(p, dataset="strain", t0_attr="gps_start").t0 == 1000.5
+    assert read_strain(p, dataset="strain", t0=1000.5).t0 == 1000.5
+
+
+def test_npz_without_start_time_needs_one(tmp_path, samples):
+    p = _npz(tmp_path, samples, sample_rate=256.0)
+    with pytest.raises(ValueError, match="no start time") as e:
+        read_strain(p)
+    assert "t0 (--t0)" in str(e.value) and "t0_attr (--t0-attr)" in str(e.value)
+    assert read_strain(p, t0=3.0).t0 == 3.0
+
+
+def test_formats_without_metadata_refuse_metadata_names(tmp_path, samples):
+    p = tmp_path / "a.npy"
+    np.save(p, samples)
+    with pytest.raises(ValueError, match="t0_attr='start'"):
+        read_strain(p, sample_rate=1.0, t0_attr="start")
+    with pytest.raises(TypeError, match="sample_rate_attr"):
+        read_strain(p, sample_rate=1.0, sample_rate_attr=3)
+    assert read_strain(p, sample_rate=1.0, t0_attr="t0").t0 == 0.0
+
+
+def test_stored_metadata_of_the_wrong_kind(tmp_path, samples):
+    p = _h5(tmp_path, samples, sample_rate="fast", t0=0.0)
+    with pytest.raises(ValueError, match="attribute 'sample_rate' must hold one real number") as e:
+        read_strain(p, dataset="strain")
+    assert str(p) in str(e.value)
+    p = _npz(tmp_path, samples, sample_rate=np.array([1.0, 2.0]), t0=0.0)
+    with pytest.raises(ValueError, match="array 'sample_rate' must hold one real number"):
+        read_strain(p)
+
+
+# ---------------------------------------------------------------------------
+# time columns rounded to microseconds
+# ---------------------------------------------------------------------------
+@pytest.mark.parametrize("fs", [4096.0, 16384.0, 65536.0])
+def test_regression_text_times_rounded_to_microseconds_are_accepted(tmp_path, fs):
+    n = 3000
+    start = 1_000_000_000.123456
+    times = np.round(start + np.arange(n) / fs, 6)
+    rng = np.random.default_rng(5)
+    strain = rng.standard_normal(n)
+    p = tmp_path / "rounded.txt"
+    np.savetxt(p, np.column_stack([times, strain]), fmt=["%.6f", "%.18e"])
+    s = read_strain(p)
+    # the rate from the end points averages the rounding: off by at most 1 us over the span
+    assert s.sample_rate == pytest.approx(fs, rel=1e-6 * fs / (n - 1) * 1.01)
+    assert s.t0 == pytest.approx(start, abs=0.51e-6)
+    np.testing.assert_array_equal(s.data, strain)
+    # the exact rate and start time agree with the rounded column and are used as given
+    s2 = read_strain(p, sample_rate=fs, t0=start)
+    assert (s2.sample_rate, s2.t0) == (fs, start)
+
+
+@pytest.mark.parametrize("deviation, ok", [(0.09, True), (0.11, False)])
+def test_text_step_tolerance_is_a_tenth_of_the_median_step(tmp_path, deviation, ok):
+    # one step longer by `deviation` of a step, the next shorter by as much: no drift
+    t = np.arange(200) / 16.0
+    t[100] += deviation / 16.0
+    p = tmp_path / "jitter.txt"
+    np.savetxt(p, np.column_stack([t, np.zeros(200)]))
+    assert cio.TIME_STEP_TOLERANCE == 0.1
+    if ok:
+        assert read_strain(p).sample_rate == pytest.approx(16.0, rel=1e-12)
+    else:
+        with pytest.raises(ValueError, match=r"0\.11 of the median step"):
+            read_strain(p)
+
+
+def test_text_slow_drift_is_refused(tmp_path):
+    # every step within 4% of the median, but the middle rows sit 0.2 step off the line
+    # through the first and last times
+    steps = np.r_[np.full(10, 1.04), np.full(10, 0.96)] / 16.0
+    t = np.r_[0.0, np.cumsum(steps)]
+    p = tmp_path / "drift.txt"
+    np.savetxt(p, np.column_stack([t, np.zeros(t.size)]))
+    with pytest.raises(ValueError, match="drifts") as e:
+        read_strain(p)
+    assert "data row 10" in str(e.value)
+
+
+# ---------------------------------------------------------------------------
+# damaged files: always a one-line ValueError naming the file
+# ---------------------------------------------------------------------------
+def _one_line_value_error(fn, path):
+    with pytest.raises(ValueError) as e:
+        fn()
+    assert type(e.value) is ValueError
+    msg = str(e.value)
+    assert str(path) in msg and "\n" not in msg, msg
+    return msg
+
+
+def _valid_strain_files(tmp_path, samples):
+    npy = tmp_path / "good.npy"
+    np.save(npy, samples[:40])
+    npz = tmp_path / "good.npz"
+    np.savez(npz, strain=samples[:40], sample_rate=64.0, t0=1.0)
+    npzc = tmp_path / "goodc.npz"
+    np.savez_compressed(npzc, strain=samples[:40], sample_rate=64.0, t0=1.0)
+    return {npy: {"sample_rate": 64.0}, npz: {}, npzc: {}}
+
+
+@pytest.mark.parametrize("kind", ["npy", "npz", "compressed npz"])
+def test_regression_empty_numpy_strain_files(tmp_path, kind):
+    p = tmp_path / ("e.npy" if kind == "npy" else "e.npz")
+    p.write_bytes(b"")
+    msg = _one_line_value_error(lambda: read_strain(p, sample_rate=1.0, t0=0.0), p)
+    assert "empty" in msg
+
+
+def test_regression_every_truncation_of_a_numpy_strain_file(tmp_path, samples):
+    # every prefix of a valid file is refused with a one-line ValueError naming it
+    for good, kwargs in _valid_strain_files(tmp_path, samples).items():
+        whole = good.read_bytes()
+        cut = tmp_path / f"cut{good.suffix}"
+        for k in range(len(whole)):
+            cut.write_bytes(whole[:k])
+            _one_line_value_error(lambda: read_strain(cut, **kwargs), cut)
+
+
+def test_damaged_numpy_strain_files_never_raise_anything_else(tmp_path, samples):
+    # random byte damage may leave a readable file (other numbers); otherwise ValueError
+    rng = np.random.default_rng(17)
+    for good, kwargs in _valid_strain_files(tmp_path, samples).items():
+        whole = bytearray(good.read_bytes())
+        bad = tmp_path / f"bad{good.suffix}"
+        for _ in range(150):
+            damaged = np.frombuffer(bytes(whole), dtype=np.uint8).copy()
+            at = rng.integers(0, damaged.size, size=rng.integers(1, 4))
+            damaged[at] = rng.integers(0, 256, size=at.size)
+            bad.write_bytes(damaged.tobytes())
+            try:
+                out = read_strain(bad, **kwargs)
+            except ValueError as exc:
+                assert str(bad) in str(exc) and "\n" not in str(exc)
+            else:
+                assert isinstance(out, StrainSeries)
+
+
+def test_malformed_strain_files(tmp_path, samples):
+    cases = []
+    p = tmp_path / "words.npy"
+    p.write_text("not numpy at all")
+    cases.append((p, {"sample_rate": 1.0}, "no NumPy header"))
+    p = tmp_path / "objects.npy"
+    np.save(p, np.array([1.0, None], dtype=object), allow_pickle=True)
+    cases.append((p, {"sample_rate": 1.0}, "pickle"))
+    p = tmp_path / "single.npz"
+    np.save(open(p, "wb"), samples)
+    cases.append((p, {"sample_rate": 1.0}, "not a .npz archive"))
+    p = tmp_path / "words.npz"
+    p.write_text("hello")
+    cases.append((p, {"sample_rate": 1.0}, "not a zip archive"))
+    p = tmp_path / "strings.npz"
+    np.savez(p, strain=np.array(["a", "b"]), sample_rate=1.0, t0=0.0)
+    cases.append((p, {}, "numeric"))
+    p = tmp_path / "ragged.txt"
+    p.write_text("1 2\n3\n")
+    cases.append((p, {}, "cannot parse"))
+    p = tmp_path / "empty.txt"
+    p.write_text("# only a comment\n")
+    cases.append((p, {"sample_rate": 1.0}, "empty"))
+    p = tmp_path / "binary.csv"
+    p.write_bytes(bytes(range(256)))
+    cases.append((p, {}, "cannot parse"))
+    for path, kwargs, words in cases:
+        msg = _one_line_value_error(lambda: read_strain(path, **kwargs), path)
+        assert words in msg, msg
+
+
+def test_malformed_hdf5_files(tmp_path, samples):
+    h5py = pytest.importorskip("h5py")
+    good = _h5(tmp_path, samples, sample_rate=64.0, t0=0.0)
+    whole = good.read_bytes()
+    for k in (0, 8, 100, len(whole) // 2, len(whole) - 10):
+        p = tmp_path / f"cut{k}.h5"
+        p.write_bytes(whole[:k])
+        _one_line_value_error(lambda: read_strain(p, dataset="strain"), p)
+    p = tmp_path / "table.h5"
+    with h5py.File(p, "w") as f:
+        d = f.create_dataset("strain", data=np.zeros(3, dtype=[("a", "f8"), ("b", "i4")]))
+        d.attrs["sample_rate"] = 1.0
+        d.attrs["t0"] = 0.0
+    assert "numeric" in _one_line_value_error(lambda: read_strain(p, dataset="strain"), p)
+
+
+def test_malformed_trigger_files(tmp_path):
+    good = tmp_path / "good.parquet"
+    write_triggers(good, _triggers(4), {"v": 1})
+    whole = good.read_bytes()
+    for k in range(0, len(whole), 7):
+        p = tmp_path / "cut.parquet"
+        p.write_bytes(whole[:k])
+        _one_line_value_error(lambda: read_triggers(p), p)
+    p = tmp_path / "words.parquet"
+    p.write_text("time,snr\n1,2\n")
+    _one_line_value_error(lambda: read_triggers(p), p)
+    table = pa.table({"time": [1.0]}).replace_schema_metadata({"chirpsift": "{not json"})
+    p = tmp_path / "badmeta.parquet"
+    pq.write_table(table, p)
+    assert "not valid JSON" in _one_line_value_error(lambda: read_triggers(p), p)
+    table = pa.table({"time": [1.0]}).replace_schema_metadata({"chirpsift": "[1, 2]"})
+    pq.write_table(table, p)
+    assert "JSON object" in _one_line_value_error(lambda: read_triggers(p), p)
+    p = tmp_path / "nested.parquet"
+    pq.write_table(pa.table({"time": [[1.0, 2.0]]}), p)
+    assert "'time'" in _one_line_value_error(lambda: read_triggers(p), p)
+    p = tmp_path / "nulls.parquet"
+    pq.write_table(pa.table({"snr": [1.0, None]}), p)
+    assert "missing values" in _one_line_value_error(lambda: read_triggers(p), p)
+
+
+def test_public_names_of_the_io_package():
+    # the names other code imports from chirpsift.io, unchanged
+    for name in ("read_strain", "StrainSeries", "write_triggers", "read_triggers", "write_json_atomic",
+                 "find_nonfinite_runs"):
+        assert name in cio.__all__ and callable(getattr(cio, name))
+    from chirpsift.io.atomic import atomic_path
+
+    assert cio.atomic_path is atomic_path

@@ -275,12 +275,12 @@ class Bank:
         path : str or os.PathLike
             Destination; the format follows the extension. Written atomically.
         """
-        from .io import _atomic_target
+        from .io.atomic import atomic_path
 
         path = Path(os.fspath(path))
         ext = path.suffix.lower()
         if ext == ".npz":
-            with _atomic_target(path) as tmp:
+            with atomic_path(path) as tmp:
                 with open(tmp, "wb") as fh:
                     np.savez(
                         fh,
@@ -292,12 +292,12 @@ class Bank:
                         version=np.array(BANK_VERSION),
                     )
         elif ext == ".parquet":
-            from .io import _import_pyarrow
+            import pyarrow as pa
+            import pyarrow.parquet as pq
 
-            pa, pq = _import_pyarrow()
             table = pa.table({f: pa.array(getattr(self, f), type=pa.float64()) for f in _FIELDS})
             table = table.replace_schema_metadata({"format": BANK_FORMAT, "version": str(BANK_VERSION)})
-            with _atomic_target(path) as tmp:
+            with atomic_path(path) as tmp:
                 pq.write_table(table, tmp)
         else:
             raise ValueError(f"{path}: unknown bank file extension {ext or '(none)'!r}; use .npz or .parquet")
@@ -338,9 +338,9 @@ class Bank:
                 version = npz["version"].item() if "version" in names else None
                 cols = {k: npz[k] for k in _FIELDS if k in names}
         elif ext == ".parquet":
-            from .io import _import_pyarrow
+            import pyarrow as pa
+            import pyarrow.parquet as pq
 
-            pa, pq = _import_pyarrow()
             try:
                 table = pq.read_table(path)
             except (pa.ArrowInvalid, OSError) as exc:
