@@ -138,9 +138,9 @@ def test_noise_odd_length_and_generator_seed():
         (dict(n=1, sample_rate=10.0), ValueError, "n must be at least 2"),
         (dict(n=10.5, sample_rate=10.0), TypeError, "n must be an integer"),
         (dict(n=100, sample_rate=0.0), ValueError, "sample_rate must be positive"),
-        (dict(n=100, sample_rate=10.0, psd_fn_or_curve=3), TypeError, "psd_fn_or_curve"),
-        (dict(n=100, sample_rate=10.0, psd_fn_or_curve=lambda f: -np.ones_like(f)), ValueError, "invalid PSD value -1.0"),
-        (dict(n=100, sample_rate=10.0, psd_fn_or_curve=lambda f: np.ones(3)), ValueError, "returned shape"),
+        (dict(n=100, sample_rate=10.0, psd=3), TypeError, "psd"),
+        (dict(n=100, sample_rate=10.0, psd=lambda f: -np.ones_like(f)), ValueError, "invalid PSD value -1.0"),
+        (dict(n=100, sample_rate=10.0, psd=lambda f: np.ones(3)), ValueError, "returned shape"),
         (dict(n=100, sample_rate=10.0, f_low=-1.0), ValueError, "f_low"),
     ],
 )

@@ -7,68 +7,46 @@ one-sided PSD ``S`` in 1/Hz with ``E|n~_k|^2 = T S_k / 2`` for a buffer of durat
 
 from __future__ import annotations
 
-import math
-import numbers
 import warnings
 
 import numpy as np
 
+from ._validate import integer, nonnegative_scalar, positive_scalar, real_scalar
+from .filter import sigma
+from .spectrum import design_psd, psd_to_grid
+from .waveform import chirp_duration, taylorf2
+
 __all__ = ["colored_gaussian_noise", "inject_taylorf2", "optimal_snr"]
 
 
-def _positive(value, name: str) -> float:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (numbers.Real, np.floating, np.integer)):
-        raise TypeError(f"{name} must be a real number, got {value!r}")
-    out = float(value)
-    if not (math.isfinite(out) and out > 0):
-        raise ValueError(f"{name} must be positive and finite, got {value!r}")
-    return out
+def _psd_on_grid(freqs: np.ndarray, psd, name: str) -> np.ndarray:
+    """Evaluate a curve name (for :func:`chirpsift.design_psd`) or a callable at ``freqs``.
 
-
-def _finite(value, name: str) -> float:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (numbers.Real, np.floating, np.integer)):
-        raise TypeError(f"{name} must be a real number, got {value!r}")
-    out = float(value)
-    if not math.isfinite(out):
-        raise ValueError(f"{name} must be finite, got {value!r}")
-    return out
-
-
-def _length(value, name: str, minimum: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, (numbers.Integral, np.integer)):
-        raise TypeError(f"{name} must be an integer number of samples, got {value!r}")
-    n = int(value)
-    if n < minimum:
-        raise ValueError(f"{name} must be at least {minimum}, got {n}")
-    return n
-
-
-def _psd_on(freqs: np.ndarray, psd_fn_or_curve, name: str) -> np.ndarray:
-    """Evaluate a curve name (for ``chirpsift.design_psd``) or a callable at ``freqs``."""
-    if isinstance(psd_fn_or_curve, str):
-        from . import design_psd
-
-        psd = design_psd(freqs, psd_fn_or_curve)
-    elif callable(psd_fn_or_curve):
-        psd = psd_fn_or_curve(freqs)
+    Zero is allowed (a bin with no noise); NaN and negative values are refused, and
+    ``inf`` marks a bin to leave empty.
+    """
+    if isinstance(psd, str):
+        values = design_psd(freqs, psd)
+    elif callable(psd):
+        values = psd(freqs)
     else:
-        raise TypeError(
-            f"{name} must be a design curve name or a callable freqs -> psd, got {psd_fn_or_curve!r}"
-        )
-    psd = np.asarray(psd, dtype=np.float64)
-    if psd.shape != freqs.shape:
-        raise ValueError(f"{name} returned shape {psd.shape} for {freqs.size} frequencies")
-    bad = np.isnan(psd) | (psd < 0)
+        raise TypeError(f"{name} must be a design curve name or a callable freqs -> psd, got {psd!r}")
+    values = np.asarray(values, dtype=np.float64)
+    if values.shape != freqs.shape:
+        raise ValueError(f"{name} returned shape {values.shape} for {freqs.size} frequencies")
+    bad = np.isnan(values) | (values < 0)
     if bad.any():
         k = int(np.flatnonzero(bad)[0])
-        raise ValueError(f"{name} gave an invalid PSD value {float(psd[k])!r} at {float(freqs[k])!r} Hz (must be >= 0 or inf)")
-    return psd
+        raise ValueError(
+            f"{name} gave an invalid PSD value {float(values[k])!r} at {float(freqs[k])!r} Hz (must be >= 0 or inf)"
+        )
+    return values
 
 
 def colored_gaussian_noise(
     n: int,
     sample_rate: float,
-    psd_fn_or_curve="gen2-zero-detuned",
+    psd="gen2-zero-detuned",
     *,
     seed=None,
     f_low: float | None = None,
@@ -81,7 +59,7 @@ def colored_gaussian_noise(
         Number of samples (>= 2).
     sample_rate : float
         Sampling rate in Hz.
-    psd_fn_or_curve : str or callable, default "gen2-zero-detuned"
+    psd : str or callable, default "gen2-zero-detuned"
         A curve name for :func:`chirpsift.design_psd`, or a callable mapping a float64
         array of frequencies (Hz) to the one-sided PSD (1/Hz) at them; ``inf`` marks
         frequencies to leave empty.
@@ -108,23 +86,22 @@ def colored_gaussian_noise(
 
     Examples
     --------
+    >>> import numpy as np
     >>> from chirpsift.synthetic import colored_gaussian_noise
     >>> x = colored_gaussian_noise(4096, 1024.0, lambda f: np.full(f.shape, 2e-46), seed=1)
     >>> x.shape, x.dtype
     ((4096,), dtype('float64'))
     """
-    n = _length(n, "n", 2)
-    fs = _positive(sample_rate, "sample_rate")
+    n = integer("n", n, minimum=2)
+    fs = positive_scalar("sample_rate", sample_rate)
     if f_low is not None:
-        f_low = _finite(f_low, "f_low")
-        if f_low < 0:
-            raise ValueError(f"f_low must be >= 0 Hz, got {f_low!r}")
+        f_low = nonnegative_scalar("f_low", f_low)
     freqs = np.fft.rfftfreq(n, 1.0 / fs)
-    psd = _psd_on(freqs, psd_fn_or_curve, "psd_fn_or_curve")
-    usable = np.isfinite(psd)
+    psd_grid = _psd_on_grid(freqs, psd, "psd")
+    usable = np.isfinite(psd_grid)
     if f_low is not None:
         usable &= freqs >= f_low
-    s = np.where(usable, psd, 0.0)
+    s = np.where(usable, psd_grid, 0.0)
     duration = n / fs
     rng = np.random.default_rng(seed)
     re = rng.standard_normal(freqs.size)
@@ -138,12 +115,12 @@ def colored_gaussian_noise(
     return np.fft.irfft(spec, n) * fs
 
 
-def _bank_scalars(m1, m2, chi1, chi2):
-    for name, value in (("m1", m1), ("m2", m2)):
-        _positive(value, name)
+def _check_source(m1, m2, chi1, chi2) -> None:
+    """Check one injected source: positive finite masses, aligned spins with ``|chi| < 1``."""
+    positive_scalar("m1", m1)
+    positive_scalar("m2", m2)
     for name, value in (("chi1", chi1), ("chi2", chi2)):
-        v = _finite(value, name)
-        if abs(v) >= 1:
+        if abs(real_scalar(name, value)) >= 1:
             raise ValueError(f"{name} must satisfy |{name}| < 1, got {value!r}")
 
 
@@ -207,20 +184,18 @@ def inject_taylorf2(
     of the buffer. Keep the whole chirp (its duration is
     :func:`chirpsift.chirp_duration`) inside the data.
     """
-    from . import chirp_duration, taylorf2
-
     data = np.asarray(strain)
     if data.ndim != 1 or data.size < 2:
         raise ValueError(f"strain must be 1-D with at least 2 samples, got shape {data.shape}")
     if data.dtype.kind not in "biuf":
         raise TypeError(f"strain must be real numeric, got dtype {data.dtype}")
-    fs = _positive(sample_rate, "sample_rate")
-    _bank_scalars(m1, m2, chi1, chi2)
-    distance = _positive(distance, "distance")
-    f_low = _positive(f_low, "f_low")
-    phase = _finite(phase, "phase")
-    t0 = _finite(t0, "t0")
-    tc = _finite(t_coalescence, "t_coalescence")
+    fs = positive_scalar("sample_rate", sample_rate)
+    _check_source(m1, m2, chi1, chi2)
+    distance = positive_scalar("distance", distance)
+    f_low = positive_scalar("f_low", f_low)
+    phase = real_scalar("phase", phase)
+    t0 = real_scalar("t0", t0)
+    tc = real_scalar("t_coalescence", t_coalescence)
     n = data.size
     duration = n / fs
     offset = tc - t0
@@ -228,7 +203,7 @@ def inject_taylorf2(
         raise ValueError(
             f"t_coalescence={tc!r} s lies outside the data [{t0!r}, {t0 + duration!r}) s"
         )
-    length = float(np.asarray(chirp_duration(m1, m2, f_low)).reshape(-1)[0])
+    length = chirp_duration(m1, m2, f_low)
     if length > offset:
         warnings.warn(
             f"the chirp from f_low={f_low} Hz lasts {length:.3g} s but coalesces {offset:.3g} s after "
@@ -296,18 +271,16 @@ def optimal_snr(
     For a signal exactly matching its template the expected matched-filter SNR at the
     true time and phase equals this value (e.g. Allen et al. 2012, PRD 85, 122006).
     """
-    from . import psd_to_grid, sigma, taylorf2
-
-    fs = _positive(sample_rate, "sample_rate")
-    n = _length(n, "n", 2)
-    f_low = _positive(f_low, "f_low")
-    distance = _positive(distance, "distance")
+    fs = positive_scalar("sample_rate", sample_rate)
+    n = integer("n", n, minimum=2)
+    f_low = positive_scalar("f_low", f_low)
+    distance = positive_scalar("distance", distance)
     df = fs / n
     n_freq = n // 2 + 1
     if isinstance(psd, str) or callable(psd):
         if psd_freqs is not None:
             raise ValueError("psd_freqs must be None when psd is a curve name or a callable")
-        grid = _psd_on(np.arange(n_freq) * df, psd, "psd")
+        grid = _psd_on_grid(np.arange(n_freq) * df, psd, "psd")
     else:
         if psd_freqs is None:
             raise ValueError("psd_freqs is required when psd is an array of samples")
