@@ -60,11 +60,11 @@ def atomic_path(path) -> Iterator[str]:
 
     Examples
     --------
+    >>> from pathlib import Path
     >>> from chirpsift.io.atomic import atomic_path
     >>> with atomic_path("notes.txt") as tmp:
-    ...     with open(tmp, "w") as fh:
-    ...         _ = fh.write("complete")
-    >>> open("notes.txt").read()
+    ...     _ = Path(tmp).write_text("complete")
+    >>> Path("notes.txt").read_text()
     'complete'
     """
     final = Path(os.fspath(path))
@@ -164,9 +164,10 @@ def write_json_atomic(path, obj) -> None:
     Examples
     --------
     >>> import json
+    >>> from pathlib import Path
     >>> from chirpsift.io import write_json_atomic
     >>> write_json_atomic("summary.json", {"triggers": 3, "live_time": 512.0})
-    >>> json.load(open("summary.json"))
+    >>> json.loads(Path("summary.json").read_text())
     {'triggers': 3, 'live_time': 512.0}
     """
     text = to_json(obj, indent=2) + "\n"

@@ -28,7 +28,7 @@ _ZIP_MAGICS = (b"PK\x03\x04", b"PK\x05\x06")
 
 
 def one_line(exc: BaseException, limit: int = 200) -> str:
-    """The message of ``exc`` on one line (whitespace collapsed, at most ``limit`` characters).
+    r"""Return the message of ``exc`` on one line (whitespace collapsed, at most ``limit`` characters).
 
     Parameters
     ----------
@@ -44,7 +44,7 @@ def one_line(exc: BaseException, limit: int = 200) -> str:
     Examples
     --------
     >>> from chirpsift.io.readers import one_line
-    >>> one_line(ValueError("bad\\n   header"))
+    >>> one_line(ValueError("bad\n   header"))
     'bad header'
     >>> one_line(EOFError())
     'EOFError'
@@ -54,7 +54,7 @@ def one_line(exc: BaseException, limit: int = 200) -> str:
 
 
 def _head(path: Path, what: str, kind: str) -> bytes:
-    """The first bytes of ``path``; ValueError naming the file if it is empty."""
+    """Return the first bytes of ``path``; raise ValueError naming the file if it is empty."""
     with open(path, "rb") as fh:
         head = fh.read(8)
     if not head:
@@ -63,7 +63,7 @@ def _head(path: Path, what: str, kind: str) -> bytes:
 
 
 def load_npy(path, *, what: str = "array") -> np.ndarray:
-    """Read a ``.npy`` file without unpickling, turning every failure into a ValueError.
+    r"""Read a ``.npy`` file without unpickling, turning every failure into a ValueError.
 
     Parameters
     ----------
@@ -86,18 +86,20 @@ def load_npy(path, *, what: str = "array") -> np.ndarray:
 
     Examples
     --------
+    >>> from pathlib import Path
     >>> from chirpsift.io.readers import load_npy
-    >>> _ = open("broken.npy", "wb").write(b"\\x93NUMPY\\x01\\x00")
+    >>> _ = Path("broken.npy").write_bytes(b"\x93NUMPY\x01\x00")
     >>> load_npy("broken.npy", what="strain array")
     Traceback (most recent call last):
     ...
-    ValueError: broken.npy: cannot read as a .npy strain array: EOF: reading array header, expected 2 bytes got 0
+    ValueError: broken.npy: cannot read as a .npy strain array: EOF: reading array header ...
     """
     path = Path(os.fspath(path))
     if not _head(path, what, ".npy").startswith(_NPY_MAGIC):
         raise ValueError(f"{path}: cannot read as a .npy {what}: no NumPy header (not a .npy file)")
     try:
-        return np.load(path, allow_pickle=False)
+        with open(path, "rb") as fh:
+            return np.load(fh, allow_pickle=False)
     except _FILE_SYSTEM_ERRORS:
         raise
     except Exception as exc:  # the parser of an untrusted file: every failure means a bad file
@@ -147,24 +149,24 @@ def load_npz(path, names, *, what: str = "archive") -> tuple[list[str], dict[str
         raise ValueError(f"{path}: cannot read as a .npz {what}: it is a single .npy array, not a .npz archive")
     if not head.startswith(_ZIP_MAGICS):
         raise ValueError(f"{path}: cannot read as a .npz {what}: not a zip archive")
-    try:
-        archive = np.load(path, allow_pickle=False)
-    except _FILE_SYSTEM_ERRORS:
-        raise
-    except Exception as exc:  # truncated or damaged zip directory
-        raise ValueError(f"{path}: cannot read as a .npz {what}: {one_line(exc)}") from None
-    with archive:
-        members = list(archive.files)
-        arrays = {}
-        for name in names:
-            if name not in members:
-                continue
-            try:
-                arrays[name] = archive[name]
-            except Exception as exc:  # damaged member, object array, bad header
-                raise ValueError(
-                    f"{path}: cannot read array {name!r} of the .npz {what}: {one_line(exc)}"
-                ) from None
+    # np.load leaves the file open when the zip directory is damaged: own the handle here
+    with open(path, "rb") as fh:
+        try:
+            archive = np.load(fh, allow_pickle=False)
+        except Exception as exc:  # truncated or damaged zip directory
+            raise ValueError(f"{path}: cannot read as a .npz {what}: {one_line(exc)}") from None
+        with archive:
+            members = list(archive.files)
+            arrays = {}
+            for name in names:
+                if name not in members:
+                    continue
+                try:
+                    arrays[name] = archive[name]
+                except Exception as exc:  # damaged member, object array, bad header
+                    raise ValueError(
+                        f"{path}: cannot read array {name!r} of the .npz {what}: {one_line(exc)}"
+                    ) from None
     return members, arrays
 
 
@@ -191,8 +193,9 @@ def read_parquet(path, *, what: str = "table") -> pa.Table:
 
     Examples
     --------
+    >>> from pathlib import Path
     >>> from chirpsift.io.readers import read_parquet
-    >>> _ = open("notes.parquet", "w").write("not a table")
+    >>> _ = Path("notes.parquet").write_text("not a table")
     >>> read_parquet("notes.parquet", what="trigger table")  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...

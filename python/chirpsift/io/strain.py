@@ -112,7 +112,7 @@ def _stored_number(value, origin: str, where: str) -> float:
 
 
 def _check_samples(data, where: str) -> np.ndarray:
-    """The strain samples of a file as a fresh float64 1-D array, or ValueError naming the file."""
+    """Return a file's strain samples as a fresh float64 1-D array, or raise ValueError naming the file."""
     arr = np.asarray(data)
     if arr.dtype.kind == "c":
         raise ValueError(f"{where}: strain must be real, got complex dtype {arr.dtype}")
