@@ -65,7 +65,9 @@ def call(fn, *args, names, allow_inf=False, **kwargs):
         out = fn(*args, **kwargs)
     except (ValueError, TypeError) as exc:
         msg = str(exc)
-        assert names is None or _names_argument(msg, names), f"{type(exc).__name__}({msg!r}) names none of {sorted(names)}"
+        assert names is None or _names_argument(msg, names), (
+            f"{type(exc).__name__}({msg!r}) names none of {sorted(names)}"
+        )
         return None
     except (KeyboardInterrupt, SystemExit):
         raise
@@ -83,7 +85,9 @@ def call(fn, *args, names, allow_inf=False, **kwargs):
 # strategies
 # ---------------------------------------------------------------------------
 
-DTYPES = [np.float16, np.float32, np.float64, np.int8, np.int32, np.int64, np.uint16, np.bool_, np.complex64, np.complex128]
+DTYPES = [
+    np.float16, np.float32, np.float64, np.int8, np.int32, np.int64, np.uint16, np.bool_, np.complex64, np.complex128
+]
 NONFINITE = st.sampled_from([np.nan, np.inf, -np.inf])
 
 
@@ -221,13 +225,13 @@ RELATED = {
     "m1": {"m2", "f_high", "chi1", "chi2"},
     "m2": {"m1", "f_high", "chi1", "chi2"},
     "chi1": {"m1", "m2", "chi2"},
-    "chi2": {"m1", "m2", "chi1"},
+    # chi2 is the second spin in the waveform kernels and the chi-squared in reweighted_snr
+    "chi2": {"m1", "m2", "chi1", "snr", "dof"},
     "max_duration": set(),
     "times": {"values", "groups"},
     "values": {"times"},
     "groups": {"times"},
     "snr": {"chi2", "dof"},
-    "chi2": {"snr", "dof"},
     "dof": {"snr", "chi2"},
     "n_samples": {"length"},
     "length": {"n_samples", "pad_start", "pad_end"},
@@ -254,7 +258,9 @@ def test_one_junk_argument(name, data):
     fn, base = BASES[name]
     kwargs, arg = corrupt(data, base)
     # complex64 templates overflow to inf for absurdly small distances (pinned below)
-    overflow_ok = name == "taylorf2" and arg == "distance" and isinstance(kwargs[arg], float) and 0 < kwargs[arg] < 1e-20
+    overflow_ok = (
+        name == "taylorf2" and arg == "distance" and isinstance(kwargs[arg], float) and 0 < kwargs[arg] < 1e-20
+    )
     call(fn, names=names_for(name, arg, kwargs[arg]), allow_inf=name in ALLOW_INF or overflow_ok, **kwargs)
 
 
@@ -311,7 +317,10 @@ def real_data(draw, n_min, n_max, channels=False):
     n = draw(st.integers(n_min, n_max))
     shape = (draw(st.integers(1, 3)), n) if channels and draw(st.booleans()) else (n,)
     lim = 1e3 if np.dtype(dtype).kind == "f" and np.dtype(dtype).itemsize == 2 else 1e6
-    el = st.floats(-lim, lim, width=16 if dtype == np.float16 else 64) if np.dtype(dtype).kind == "f" else st.integers(-1000, 1000)
+    if np.dtype(dtype).kind == "f":
+        el = st.floats(-lim, lim, width=16 if dtype == np.float16 else 64)
+    else:
+        el = st.integers(-1000, 1000)
     a = draw(hnp.arrays(dtype, shape, elements=el))
     return _layout(a, draw(st.sampled_from(["c", "fortran", "strided", "reversed", "list"])))
 
@@ -321,7 +330,8 @@ def real_data(draw, n_min, n_max, channels=False):
        avg=st.sampled_from(["mean", "median"]), det=st.sampled_from([False, "constant"]))
 def test_welch_random_valid(x, seg, ov, avg, det):
     a = np.asarray(x)
-    freqs, psd = call(cs.welch, x, 64.0, seg, ov, avg, detrend=det, names={"x", "segment_duration", "overlap"}) or (None, None)
+    names = {"x", "segment_duration", "overlap"}
+    freqs, psd = call(cs.welch, x, 64.0, seg, ov, avg, detrend=det, names=names) or (None, None)
     if freqs is not None:
         nperseg = int(round(seg * 64.0))
         assert freqs.shape == (nperseg // 2 + 1,)
@@ -371,7 +381,8 @@ def test_filter_random_valid(k, nf, fl, scale, dt):
 
 
 @FAST
-@given(data=real_data(1, 300), k=st.integers(1, 3), m=st.integers(1, 50), mode=st.sampled_from(["valid", "same", "full"]))
+@given(data=real_data(1, 300), k=st.integers(1, 3), m=st.integers(1, 50),
+       mode=st.sampled_from(["valid", "same", "full"]))
 def test_correlate_random_valid(data, k, m, mode):
     n = len(np.asarray(data))
     t = np.random.default_rng(m).normal(size=(k, m))
@@ -468,7 +479,8 @@ def test_filter_layouts_match():
     d32, t32 = d.astype(np.float32), t.astype(np.float32)
     out32 = cs.correlate(d32, t32, "full")
     assert out32.dtype == np.float32
-    npt.assert_allclose(out32, cs.correlate(d32.astype(np.float64), t32.astype(np.float64), "full"), rtol=1e-5, atol=1e-5)
+    out64 = cs.correlate(d32.astype(np.float64), t32.astype(np.float64), "full")
+    npt.assert_allclose(out32, out64, rtol=1e-5, atol=1e-5)
 
 
 def test_waveform_layouts_match():
@@ -493,7 +505,8 @@ def test_filter_segment_layouts_match():
         r = cs.filter_segment(dv, WHITE_PSD, DF, [5.0, 8.0], 5.0, **base)
         for col in r0:
             npt.assert_allclose(r[col], r0[col], rtol=1e-9, err_msg=f"{label} {col}")
-    r = cs.filter_segment(DATA_FD, WHITE_PSD.astype(np.float32).astype(np.float64), DF, np.array([5.0, 8.0])[::-1][::-1],
+    r = cs.filter_segment(DATA_FD, WHITE_PSD.astype(np.float32).astype(np.float64), DF,
+                          np.array([5.0, 8.0])[::-1][::-1],
                           (5.0,), **base)
     npt.assert_array_equal(r["index"], r0["index"])
 

@@ -68,3 +68,16 @@ def test_property_tests_are_random_outside_ci(value):
     assert run["derandomize"] is False and run["database"] != "None"
     # 40 draws from 2e9 integers: two independent runs agree with negligible probability
     assert run["seen"] != run["again"]
+
+
+def test_warnings_are_errors_in_the_test_run():
+    import warnings
+
+    with pytest.raises(UserWarning, match="surfaces"):
+        warnings.warn("a warning nobody expected surfaces as an error", UserWarning, stacklevel=1)
+
+
+def test_strict_pytest_options_are_in_force(pytestconfig):
+    assert pytestconfig.getini("xfail_strict") is True
+    assert pytestconfig.getoption("strict_markers") is True
+    assert "error" in pytestconfig.getini("filterwarnings")

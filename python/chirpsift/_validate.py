@@ -65,7 +65,9 @@ def _check_finite(name: str, a: np.ndarray) -> None:
         raise ValueError(f"{name} must be finite, found {a[idx]} at index {where} ({int(bad.sum())} non-finite values)")
 
 
-def real_array(name: str, x, ndim=(1, 2), dtype=np.float64, finite: bool = True, allow_empty: bool = False) -> np.ndarray:
+def real_array(
+    name: str, x, ndim=(1, 2), dtype=np.float64, finite: bool = True, allow_empty: bool = False
+) -> np.ndarray:
     """C-contiguous real array of `dtype`, checked for shape, emptiness and finiteness."""
     a = _as_array(name, x, "real")
     _check_shape(name, a, ndim, allow_empty)
@@ -202,7 +204,9 @@ def check_allocation(name: str, n_elements: int, itemsize: int) -> None:
     need = int(n_elements) * int(itemsize)
     have = _physical_memory()
     if need > have:
-        raise ValueError(f"{name} asks for an output of {need / 2**30:.3g} GiB, more than this machine's {have / 2**30:.3g} GiB")
+        raise ValueError(
+            f"{name} asks for an output of {need / 2**30:.3g} GiB, more than this machine's {have / 2**30:.3g} GiB"
+        )
 
 
 def finite_output(out: np.ndarray, blame: str, hint: str = "") -> np.ndarray:
@@ -254,7 +258,8 @@ def psd_array(name: str, x, ndim=(1, 2)) -> np.ndarray:
     bad = a <= 0
     if bad.any():
         i = np.unravel_index(int(np.argmax(bad)), a.shape)
-        raise ValueError(f"{name} must be positive (use inf to exclude a bin), found {a[i]} at index {i if a.ndim > 1 else i[0]}")
+        at = i if a.ndim > 1 else i[0]
+        raise ValueError(f"{name} must be positive (use inf to exclude a bin), found {a[i]} at index {at}")
     return a
 
 

@@ -286,7 +286,9 @@ def optimal_snr(
             raise ValueError("psd_freqs is required when psd is an array of samples")
         grid = psd_to_grid(np.asarray(psd_freqs, dtype=np.float64), np.asarray(psd, dtype=np.float64), df, n_freq)
     scalar = all(np.ndim(v) == 0 for v in (m1, m2, chi1, chi2))
-    m1b, m2b, c1b, c2b = (np.atleast_1d(np.asarray(v, dtype=np.float64)) for v in np.broadcast_arrays(m1, m2, chi1, chi2))
+    m1b, m2b, c1b, c2b = (
+        np.atleast_1d(np.asarray(v, dtype=np.float64)) for v in np.broadcast_arrays(m1, m2, chi1, chi2)
+    )
     templates = taylorf2(m1b, m2b, c1b, c2b, f_low=f_low, df=df, n_freq=n_freq, distance=distance, dtype=np.complex128)
     snr = np.asarray(sigma(templates, grid, df, f_low, f_high), dtype=np.float64)
     return float(snr[0]) if scalar else snr
