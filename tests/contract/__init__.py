@@ -1,0 +1,1 @@
+"""The input contract of the public API (see ``harness``)."""
