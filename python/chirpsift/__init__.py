@@ -16,6 +16,7 @@ from .segments import plan_segments
 from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_psd, welch, whiten
 from .threads import get_threads, set_threads
 from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
+from .network import Site, coincidences, light_travel_time, load_sites
 
 __version__ = "0.1.0"
 
@@ -49,4 +50,8 @@ __all__ = [
     "truncate_inverse_psd",
     "welch",
     "whiten",
+    "Site",
+    "coincidences",
+    "light_travel_time",
+    "load_sites",
 ]

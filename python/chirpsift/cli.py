@@ -10,6 +10,8 @@ Subcommands:
     loudest trigger beside the injection.
 ``chirpsift bench``
     The standard benchmark workloads (``chirpsift.benchmarks``).
+``chirpsift network``
+    Coincidences between sites, time-slide background and false-alarm rates.
 
 Exit status: 0 success, 2 bad usage or bad input (message on stderr, no traceback),
 1 unexpected failure, 130 interrupted.
@@ -30,6 +32,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .network import command as network_command
 from .threads import get_threads, set_threads
 
 __all__ = ["main", "build_parser"]
@@ -191,6 +194,7 @@ def build_parser() -> argparse.ArgumentParser:
         add_help=False,
     )
     b.add_argument("bench_args", nargs=argparse.REMAINDER)
+    network_command.add_arguments(sub.add_parser(network_command.NAME, help=network_command.HELP))
     return parser
 
 
@@ -513,7 +517,8 @@ def main(argv=None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return 2
-    handler = {"search": _cmd_search, "demo": _cmd_demo, "bench": _cmd_bench}[args.command]
+    handler = {"search": _cmd_search, "demo": _cmd_demo, "bench": _cmd_bench,
+               network_command.NAME: lambda a, _argv: network_command.run(a)}[args.command]
     try:
         return handler(args, argv)
     except KeyboardInterrupt:
