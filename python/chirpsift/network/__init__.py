@@ -5,9 +5,21 @@ A workflow over the numpy API: it never touches the compiled core.
 """
 
 from .bench import benchmark_slides
-from .coincidence import CAUTIONS, DEFAULT_ALLOWANCE, background_dtype, candidate_dtype, coincidences
+from .coincidence import (
+    CAUTIONS,
+    DEFAULT_ALLOWANCE,
+    background_dtype,
+    candidate_dtype,
+    coincidences,
+)
 from .far import YEAR, false_alarm_rate
-from .sites import EXAMPLE_SITES, Site, greenwich_sidereal_time, light_travel_time, load_sites
+from .sites import (
+    EXAMPLE_SITES,
+    Site,
+    greenwich_sidereal_time,
+    light_travel_time,
+    load_sites,
+)
 from .statistic import network_statistic
 
 __all__ = [

@@ -10,7 +10,7 @@ import numpy as np
 from .coincidence import coincidences
 from .sites import EXAMPLE_SITES, load_sites
 
-__all__ = ["synthetic_triggers", "benchmark_slides"]
+__all__ = ["benchmark_slides", "synthetic_triggers"]
 
 #: GPS start of the synthetic trigger sets (an arbitrary time in 2011).
 BENCH_T0 = 1.0e9
@@ -130,7 +130,7 @@ def benchmark_slides(
         triggers = {s.name: synthetic_triggers(n_trig, duration, n_templates, seed=seed + k)
                     for k, s in enumerate(sites)}
         analysed = {s.name: np.array([[BENCH_T0, BENCH_T0 + duration]]) for s in sites}
-        cands, bg, info, wall, peak = _run(triggers, sites, analysed, slides, slide_step, peak_window, "all-at-once")
+        cands, bg, _info, wall, peak = _run(triggers, sites, analysed, slides, slide_step, peak_window, "all-at-once")
         entry = {
             "sites": 2,
             "triggers_per_site": n_trig,

@@ -27,13 +27,13 @@ from .slides import (
 from .statistic import network_statistic
 
 __all__ = [
-    "coincidences",
-    "candidate_dtype",
-    "background_dtype",
+    "CAUTIONS",
     "DEFAULT_ALLOWANCE",
     "DEFAULT_PEAK_WINDOW",
     "TIME_SLACK",
-    "CAUTIONS",
+    "background_dtype",
+    "candidate_dtype",
+    "coincidences",
 ]
 
 #: Default timing allowance (s) added to every pair's light travel time; see `coincidences`.

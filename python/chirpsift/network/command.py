@@ -22,7 +22,7 @@ import numpy as np
 from .coincidence import CAUTIONS, DEFAULT_ALLOWANCE, DEFAULT_PEAK_WINDOW, coincidences
 from .sites import load_sites
 
-__all__ = ["add_arguments", "run", "NAME", "HELP"]
+__all__ = ["HELP", "NAME", "add_arguments", "run"]
 
 NAME = "network"
 HELP = "find coincidences between sites and their false-alarm rates by time slides"
@@ -250,7 +250,7 @@ def _run(args) -> int:
         "summary_version": SUMMARY_VERSION,
         "command": "network",
         "argv": sys.argv[1:],
-        "created_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "created_utc": _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
         "sites": {n: {k: getattr(sites[n], k) for k in ("latitude", "longitude", "elevation", "x_azimuth",
                                                        "y_azimuth", "x_altitude", "y_altitude")} for n in names},
         "inputs": {n: [os.path.abspath(r[0]) for r in runs[n]] for n in names},
@@ -260,7 +260,7 @@ def _run(args) -> int:
         "common": info["common"],
         "live_time": info["live_time"],
         "background_time": info["background_time"],
-        "counts": {"candidates": int(len(cands)), "background": int(len(bg)),
+        "counts": {"candidates": len(cands), "background": len(bg),
                    "excluded_triggers": info["excluded"]},
         "far_is_bound": info["far_bound"].tolist(),
         "cautions": CAUTIONS,

@@ -17,13 +17,13 @@ from .._validate import broadcast, real_array, real_scalar
 from ..waveform import C_SI
 
 __all__ = [
-    "Site",
-    "load_sites",
-    "light_travel_time",
-    "greenwich_sidereal_time",
+    "EXAMPLE_SITES",
     "WGS84_A",
     "WGS84_F",
-    "EXAMPLE_SITES",
+    "Site",
+    "greenwich_sidereal_time",
+    "light_travel_time",
+    "load_sites",
 ]
 
 #: WGS-84 semi-major axis (m), a defining constant of the ellipsoid.
@@ -294,7 +294,7 @@ class Site:
         >>> round(fp, 6), round(fx, 6)   # cos(0.6), -sin(0.6)
         (0.825336, -0.564642)
         """
-        n, ea, ed, shape = _source_frame(ra, dec, gps_time, psi)
+        _n, ea, ed, shape = _source_frame(ra, dec, gps_time, psi)
         psi_b = np.broadcast_to(np.asarray(psi, dtype=np.float64), shape).ravel()
         c, s = np.cos(psi_b)[:, None], np.sin(psi_b)[:, None]
         m = c * ea + s * ed

@@ -28,8 +28,19 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["lex_order", "order_by_time", "Ring", "SiteTriggers", "zero_lag_pairs", "slide_pairs", "slide_pairs_loop", "assemble",
-           "site_values", "cluster_by_slide", "NS"]
+__all__ = [
+    "NS",
+    "Ring",
+    "SiteTriggers",
+    "assemble",
+    "cluster_by_slide",
+    "lex_order",
+    "order_by_time",
+    "site_values",
+    "slide_pairs",
+    "slide_pairs_loop",
+    "zero_lag_pairs",
+]
 
 #: Nanoseconds per second: the integer time grid of the coincidence search.
 NS = 1_000_000_000
@@ -39,7 +50,7 @@ JOIN_CHUNK = 1 << 21
 
 def to_ns(seconds: float) -> int:
     """Seconds to whole nanoseconds (nearest)."""
-    return int(round(seconds * NS))
+    return round(seconds * NS)
 
 
 @dataclass(frozen=True)
@@ -57,7 +68,7 @@ class Ring:
         return int(np.sum(self.ends - self.starts))
 
     @classmethod
-    def from_intervals(cls, intervals: np.ndarray, t_ref: float) -> "Ring":
+    def from_intervals(cls, intervals: np.ndarray, t_ref: float) -> Ring:
         starts = np.array([to_ns(a - t_ref) for a in intervals[:, 0]], dtype=np.int64)
         ends = np.array([to_ns(b - t_ref) for b in intervals[:, 1]], dtype=np.int64)
         keep = ends > starts
