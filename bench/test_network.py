@@ -9,7 +9,6 @@ slide. ``chirpsift.network.benchmark_slides`` measures the same cases for a tabl
 
 import numpy as np
 import pytest
-
 from chirpsift.network import EXAMPLE_SITES, coincidences, load_sites
 from chirpsift.network.bench import BENCH_T0, synthetic_triggers
 

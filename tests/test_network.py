@@ -90,7 +90,7 @@ def test_wgs84_worked_examples(lat, lon, h):
     want = [(n + h) * math.cos(phi) * math.cos(lam), (n + h) * math.cos(phi) * math.sin(lam),
             (n * (1 - E2_WGS84) + h) * math.sin(phi)]
     np.testing.assert_allclose(_site(latitude=lat, longitude=lon, elevation=h).position, want, atol=1e-6)
-    if lat == 45.0:  # worked by hand: N = a / sqrt(1 - e^2 / 2) = 6388838.290 m
+    if lat == 45.0:  # N(45 deg) = a / sqrt(1 - e^2 / 2) = 6388838.290 m
         assert n == pytest.approx(6388838.2901, abs=1e-3)
 
 

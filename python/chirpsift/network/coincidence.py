@@ -57,7 +57,14 @@ CAUTIONS = (
 
 
 def candidate_dtype(site_names) -> np.dtype:
-    """Fields of the candidate table for these sites (see :func:`coincidences`)."""
+    """Fields of the candidate table for these sites (see :func:`coincidences`).
+
+    Examples
+    --------
+    >>> from chirpsift.network import candidate_dtype
+    >>> candidate_dtype(["Kestrel"]).names[:7]
+    ('time', 'template', 'statistic', 'far', 'ifar', 'Kestrel_time', 'Kestrel_snr')
+    """
     fields = [("time", "f8"), ("template", "i4"), ("statistic", "f8"), ("far", "f8"), ("ifar", "f8")]
     for name in site_names:
         fields += [(f"{name}_{f}", t) for f, t in SITE_FIELDS]
@@ -65,7 +72,14 @@ def candidate_dtype(site_names) -> np.dtype:
 
 
 def background_dtype(site_names) -> np.dtype:
-    """Fields of the background table for these sites (see :func:`coincidences`)."""
+    """Fields of the background table for these sites (see :func:`coincidences`).
+
+    Examples
+    --------
+    >>> from chirpsift.network import background_dtype
+    >>> background_dtype(["Kestrel", "Heron"]).names
+    ('slide', 'time', 'template', 'statistic', 'Kestrel_trigger', 'Heron_trigger')
+    """
     fields = [("slide", "i4"), ("time", "f8"), ("template", "i4"), ("statistic", "f8")]
     fields += [(f"{name}_trigger", "i8") for name in site_names]
     return np.dtype(fields)

@@ -78,11 +78,12 @@ class Ring:
 
     def locate(self, t_ns: np.ndarray):
         """Ring positions of times (ns) and whether each lies in the common time."""
+        if self.starts.size == 0:
+            return np.full(t_ns.shape, -1, dtype=np.int64), np.zeros(t_ns.shape, dtype=bool)
         i = np.searchsorted(self.starts, t_ns, side="right") - 1
-        ok = i >= 0
-        ic = np.where(ok, i, 0)
-        inside = ok & (t_ns < self.ends[ic]) if self.starts.size else np.zeros(t_ns.shape, bool)
-        u = np.where(inside, self.offsets[ic] + (t_ns - self.starts[ic]), -1) if self.starts.size else t_ns * 0 - 1
+        ic = np.maximum(i, 0)
+        inside = (i >= 0) & (t_ns < self.ends[ic])
+        u = np.where(inside, self.offsets[ic] + (t_ns - self.starts[ic]), -1)
         return u.astype(np.int64), inside
 
     def time_of(self, u: np.ndarray) -> np.ndarray:
