@@ -562,7 +562,8 @@ _KEYS = ["latitude", "longitude", "elevation", "x_azimuth", "y_azimuth", "x_alti
 def test_malformed_site_values_are_named(tmp_path_factory, data, key):
     """Non-numbers, non-finite numbers and out-of-range angles or heights: the error names
     the file, the site and the key."""
-    bad = st.sampled_from([math.nan, math.inf, -math.inf]) | st.text(max_size=3) | st.booleans()
+    printable = st.characters(min_codepoint=32, max_codepoint=126)
+    bad = st.sampled_from([math.nan, math.inf, -math.inf]) | st.text(printable, max_size=3) | st.booleans()
     if key in _RANGED:
         limit = _RANGED[key]
         bad = bad | st.floats(limit * 1.0001, 1e300) | st.floats(-1e300, -limit * 1.0001)

@@ -164,7 +164,8 @@ def _format_ifar(ifar: float, bound: bool) -> str:
     return (">" if bound else "") + f"{ifar:.3g}"
 
 
-def _print_summary(cands, info, names, top: int, out=sys.stdout) -> None:
+def _print_summary(cands, info, names, top: int, out=None) -> None:
+    out = sys.stdout if out is None else out
     years = info["background_time_years"]
     print(
         f"Sites {', '.join(names)}: {info['live_time']:g} s analysed by all at once; "
