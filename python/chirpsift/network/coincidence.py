@@ -451,7 +451,7 @@ def coincidences(
     z_slide, z_rows = assemble(zl, len(names), sizes)
     z_stat = network_statistic(site_values(z_rows, prepared, "rw"))
     z_time_ns = _first_present(z_rows, prepared, "t_ns")
-    keep = cluster_by_slide(z_slide, z_time_ns, z_stat, pw_ns)
+    keep = cluster_by_slide(z_slide, z_time_ns, z_stat, pw_ns, z_rows)
     z_rows, z_stat = z_rows[keep], z_stat[keep]
 
     # background
@@ -549,5 +549,5 @@ def _slide_table(pairs, prepared, ring: Ring, step_ns: int, pw_ns: int):
     stat = network_statistic(site_values(rows, prepared, "rw"))
     u = reference_positions(rows, slide, prepared, step_ns, ring.length)
     time_ns = ring.time_of(u) if u.size else u
-    keep = cluster_by_slide(slide, time_ns, stat, pw_ns)
+    keep = cluster_by_slide(slide, time_ns, stat, pw_ns, rows)
     return slide[keep], rows[keep], stat[keep], time_ns[keep]

@@ -34,7 +34,6 @@ __all__ = [
     "SiteTriggers",
     "assemble",
     "cluster_by_slide",
-    "lex_order",
     "order_by_time",
     "site_values",
     "slide_pairs",
@@ -108,31 +107,15 @@ class SiteTriggers:
 
 
 # ---------------------------------------------------------------------------
-# exact orderings of integer keys
+# an exact ordering of integer keys
 # ---------------------------------------------------------------------------
-def lex_order(columns) -> np.ndarray:
-    """Stable order by integer ``columns`` (primary first), like ``np.lexsort`` of the
-    reversed list, through one sort of a combined int64 key where the ranges allow."""
-    cols = [np.asarray(c, dtype=np.int64) for c in columns]
-    if not cols or cols[0].size == 0:
-        return np.zeros(0 if not cols else cols[0].size, dtype=np.int64)
-    key = np.zeros(cols[0].shape, dtype=np.int64)
-    capacity = 1
-    for c in cols:
-        lo = int(c.min())
-        width = int(c.max()) - lo + 1
-        capacity *= width
-        if capacity >= 2**62:
-            return np.lexsort(tuple(reversed(cols)))
-        key = key * width + (c - lo)
-    return np.argsort(key, kind="stable")
-
-
-def order_by_time(major: np.ndarray, t: np.ndarray) -> np.ndarray:
-    """Stable order by ``(major, t)`` for int64 ``major >= 0`` and nanosecond times ``t``.
+def order_by_time(major: np.ndarray, t: np.ndarray, ties: np.ndarray) -> np.ndarray:
+    """Order by ``(major, t, ties[:, 0], ties[:, 1], ...)``: int64 ``major >= 0``,
+    nanosecond times ``t`` and a ``(n, c)`` int64 tie-breaker whose rows are unique.
 
     Sorts one combined key of ``major`` and ``t`` coarsened to a power of two that keeps
-    it in int64, then re-sorts the rare runs that tie on the coarse key by the exact time.
+    it in int64, then re-sorts the rare runs that tie on it by the full key. The result
+    depends only on the values, not on the input order.
     """
     n = t.size
     if n == 0:
@@ -145,13 +128,13 @@ def order_by_time(major: np.ndarray, t: np.ndarray) -> np.ndarray:
         g *= 2
     coarse = major * (span // g + 1) + rel // g
     order = np.argsort(coarse, kind="stable")
-    if g > 1:
-        c = coarse[order]
-        tie = np.flatnonzero(c[1:] == c[:-1])
-        if tie.size:
-            pos = np.union1d(tie, tie + 1)
-            sub = order[pos]
-            order[pos] = sub[np.lexsort((rel[sub], coarse[sub]))]
+    c = coarse[order]
+    tie = np.flatnonzero(c[1:] == c[:-1])
+    if tie.size:
+        pos = np.union1d(tie, tie + 1)
+        sub = order[pos]
+        keys = tuple(ties[sub, col] for col in range(ties.shape[1] - 1, -1, -1))
+        order[pos] = sub[np.lexsort(keys + (rel[sub], coarse[sub]))]
     return order
 
 
@@ -309,6 +292,7 @@ def assemble(pairs: dict, n_sites: int, sizes) -> tuple[np.ndarray, np.ndarray]:
     slide : int64 array, shape (n,)
     rows : int64 array, shape (n, n_sites)
         Trigger index per site, -1 where the site has no trigger in the coincidence.
+        The order of the coincidences is not defined; :func:`cluster_by_slide` sets it.
 
     Notes
     -----
@@ -354,15 +338,20 @@ def assemble(pairs: dict, n_sites: int, sizes) -> tuple[np.ndarray, np.ndarray]:
             covered[sub] |= np.isin(_void_rows(np.column_stack([sk, sidx])), big)
     slides, rows = [], []
     for sset, (k, idx) in levels.items():
+        if len(sset) == n_sites:  # nothing covers a coincidence of every site
+            slides.append(k)
+            rows.append(idx)
+            continue
         free = ~covered[sset]
         r = np.full((int(free.sum()), n_sites), -1, dtype=np.int64)
         r[:, list(sset)] = idx[free]
         slides.append(k[free])
         rows.append(r)
+    if len(rows) == 1:
+        return slides[0], rows[0]
     slide = np.concatenate(slides) if slides else np.zeros(0, dtype=np.int64)
     rows_all = np.concatenate(rows) if rows else np.zeros((0, n_sites), dtype=np.int64)
-    order = lex_order([slide] + [rows_all[:, c] for c in range(n_sites)])
-    return slide[order], rows_all[order]
+    return slide, rows_all
 
 
 def site_values(rows: np.ndarray, sites: list[SiteTriggers], field: str) -> np.ndarray:
@@ -385,16 +374,17 @@ def reference_positions(rows: np.ndarray, slide: np.ndarray, sites: list[SiteTri
     return u
 
 
-def cluster_by_slide(slide: np.ndarray, time_ns: np.ndarray, value: np.ndarray, window: int) -> np.ndarray:
+def cluster_by_slide(slide: np.ndarray, time_ns: np.ndarray, value: np.ndarray, window: int,
+                     rows: np.ndarray) -> np.ndarray:
     """Indices of entries with no louder entry of the same slide within ``window`` ns,
-    ordered by slide, then time, then input order.
+    ordered by slide, then time, then trigger rows.
 
-    Equal values favour the earlier entry (then the earlier in input order). Exact
-    integer time differences, so clustering one slide alone or all slides together gives
-    the same survivors.
+    Equal values favour the earlier entry in that order. Exact integer time differences
+    and an order set by the values alone, so clustering one slide alone or all slides
+    together, from inputs in any order, gives the same survivors in the same order.
     """
     n = slide.shape[0]
-    order = order_by_time(slide, time_ns)
+    order = order_by_time(slide, time_ns, rows)
     s, t, v = slide[order], time_ns[order], value[order]
     keep = np.ones(n, dtype=bool)
     active = np.arange(n - 1, dtype=np.int64)
