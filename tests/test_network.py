@@ -8,7 +8,7 @@ Outside references (see the shared REFERENCES notes, items 2, 10, 16 and 17):
   World Geodetic System 1984", chapter 4; equation numbers from memory).
 - Antenna patterns: Anderson, Brady, Creighton & Flanagan 2001, PRD 63, 042003,
   gr-qc/0008066, app. B (from memory); F+^2 + Fx^2 for an L-shaped detector at the pole
-  (Thorne 1987, "Gravitational radiation", in 300 Years of Gravitation, eq. 110, from
+  (K. S. Thorne, "Gravitational radiation", in 300 Years of Gravitation, 1987, from
   memory; the shared notes derive it); sky and polarisation average 2/5 for 90-degree
   arms (Finn & Chernoff 1993, PRD 47, 2198, gr-qc/9301003; shared notes item 2,
   Monte-Carlo verified there).
