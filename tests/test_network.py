@@ -570,7 +570,8 @@ def test_malformed_site_values_are_named(tmp_path_factory, data, key):
     if key == "longitude":
         bad = bad | st.floats(360.0, 1e300) | st.floats(-1e300, -180.0001)
     value = data.draw(bad)
-    values = {"latitude": 10.0, "longitude": 20.0, "elevation": 5.0, "x_azimuth": 0.0, "y_azimuth": 90.0, "x_altitude": 0.0}
+    values = {"latitude": 10.0, "longitude": 20.0, "elevation": 5.0, "x_azimuth": 0.0, "y_azimuth": 90.0,
+              "x_altitude": 0.0}
     values[key] = value
     body = "\n".join(f"{k} = {_toml(v)}" for k, v in values.items())
     path = tmp_path_factory.getbasetemp() / "malformed_site.toml"

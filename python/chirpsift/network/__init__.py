@@ -1,7 +1,7 @@
-"""Sites and significance: detector geometry, multi-site coincidence, time-slide
-background and false-alarm rates.
+"""Sites and significance: geometry, coincidence, time slides and false-alarm rates.
 
-A workflow over the numpy API: it never touches the compiled core.
+Detector geometry, multi-site coincidence, the time-slide background and false-alarm
+rates. A workflow over the numpy API: it never touches the compiled core.
 """
 
 from .bench import benchmark_slides

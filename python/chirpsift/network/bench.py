@@ -17,7 +17,7 @@ BENCH_T0 = 1.0e9
 
 
 def synthetic_triggers(n_triggers: int, duration: float, n_templates: int, *, seed: int = 0, t0: float = BENCH_T0):
-    """A trigger table of noise-like triggers spread uniformly over ``[t0, t0 + duration)``.
+    """Make a table of noise-like triggers spread uniformly over ``[t0, t0 + duration)``.
 
     Parameters
     ----------
@@ -80,8 +80,10 @@ def benchmark_slides(
     small_slides: int = 200,
     seed: int = 0,
 ) -> dict:
-    """Time the background of two sites: the large case all at once, and a small case both
-    all at once and slide by slide (which must agree bit for bit).
+    """Time the time-slide background of two sites, all at once and slide by slide.
+
+    The large case runs all at once; a small case runs both ways (the two must agree bit
+    for bit).
 
     Parameters
     ----------

@@ -146,7 +146,9 @@ def _check_intervals(name: str, value) -> np.ndarray:
     try:
         a = np.asarray(value, dtype=np.float64)
     except (TypeError, ValueError):
-        raise TypeError(f"analysed[{name!r}] must be a (k, 2) array of [start, end) seconds, got {_describe(value)}") from None
+        raise TypeError(
+            f"analysed[{name!r}] must be a (k, 2) array of [start, end) seconds, got {_describe(value)}"
+        ) from None
     if a.ndim != 2 or a.shape[1] != 2:
         raise ValueError(f"analysed[{name!r}] must have shape (k, 2) of [start, end) seconds, got shape {a.shape}")
     if not np.all(np.isfinite(a)):
@@ -188,7 +190,7 @@ def _intersect(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def _check_templates(tables: dict[str, np.ndarray]) -> None:
-    """The same template number must mean the same masses (and spins) at every site."""
+    """Check that a template number means the same masses (and spins) at every site."""
     fields = [f for f in ("m1", "m2", "spin1", "spin2") if all(f in t.dtype.names for t in tables.values())]
     tid = np.concatenate([np.asarray(t["template"], dtype=np.int64) for t in tables.values()])
     if tid.size == 0:
@@ -534,7 +536,7 @@ def _check_n_slides(n_slides) -> int:
 
 
 def _first_present(rows: np.ndarray, sites: list[SiteTriggers], field: str, fill=-1):
-    """A per-trigger field of each coincidence's first listed site that took part."""
+    """Return a per-trigger field of each coincidence's first listed site that took part."""
     dtype = getattr(sites[0], field).dtype
     out = np.full(rows.shape[0], fill, dtype=dtype)
     for col in range(len(sites) - 1, -1, -1):

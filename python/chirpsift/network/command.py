@@ -85,7 +85,7 @@ def _number(flag: str, text, *, positive=False, integer=False, minimum=None):
 
 
 def _summary_of(path: Path, metadata: dict) -> dict:
-    """The run summary of a trigger file: its Parquet metadata, else the JSON file beside it."""
+    """Find the run summary of a trigger file: its Parquet metadata, else the JSON beside it."""
     if isinstance(metadata, dict) and "analysed" in metadata:
         return metadata
     beside = path.with_suffix(".json")
@@ -192,8 +192,18 @@ def _print_summary(cands, info, names, top: int, out=None) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    """Run ``chirpsift network`` with parsed ``args``; returns the exit status
-    (0 success, 2 bad input, with a one-line message on stderr)."""
+    """Run ``chirpsift network`` with parsed ``args``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        As parsed by a parser that :func:`add_arguments` filled.
+
+    Returns
+    -------
+    int
+        Exit status: 0 success, 2 bad input (with a one-line message on stderr).
+    """
     try:
         return _run(args)
     except (_Usage, ValueError, TypeError, FileNotFoundError, IsADirectoryError, NotADirectoryError,

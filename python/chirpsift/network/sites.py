@@ -1,5 +1,8 @@
-"""Detector sites: position on the WGS-84 ellipsoid, arm geometry, response tensor,
-arrival delays and antenna patterns, and a small TOML form for a set of sites."""
+"""Detector sites: position, arms, response, delays, antenna patterns, a TOML form.
+
+Position on the WGS-84 ellipsoid, arm geometry, response tensor, arrival delays and
+antenna patterns, and a small TOML form for a set of sites.
+"""
 
 from __future__ import annotations
 
@@ -107,7 +110,7 @@ def _earth_fixed(latitude, longitude, elevation) -> np.ndarray:
 
 
 def _local_axes(latitude, longitude):
-    """Unit vectors East, North, Up (Earth-fixed) at a geodetic latitude/longitude in degrees."""
+    """Return the unit vectors East, North, Up (Earth-fixed) at a geodetic latitude/longitude (deg)."""
     phi, lam = math.radians(latitude), math.radians(longitude)
     east = np.array([-math.sin(lam), math.cos(lam), 0.0])
     north = np.array([-math.sin(phi) * math.cos(lam), -math.sin(phi) * math.sin(lam), math.cos(phi)])
@@ -420,7 +423,9 @@ def load_sites(path) -> dict[str, Site]:
         raise ValueError(f"sites file {p}: not a UTF-8 text file") from None
     unknown = sorted(set(doc) - {"version", "site"})
     if unknown:
-        raise ValueError(f"sites file {p}: unknown top-level key {unknown[0]!r} (expected 'version' and [[site]] tables)")
+        raise ValueError(
+            f"sites file {p}: unknown top-level key {unknown[0]!r} (expected 'version' and [[site]] tables)"
+        )
     if "version" in doc and doc["version"] != SITES_FORMAT_VERSION:
         raise ValueError(f"sites file {p}: version must be {SITES_FORMAT_VERSION}, got {_describe(doc['version'])}")
     entries = doc.get("site")

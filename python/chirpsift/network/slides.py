@@ -68,6 +68,7 @@ class Ring:
 
     @classmethod
     def from_intervals(cls, intervals: np.ndarray, t_ref: float) -> Ring:
+        """Build the ring of sorted, disjoint ``(k, 2)`` intervals (s) relative to ``t_ref``."""
         starts = np.array([to_ns(a - t_ref) for a in intervals[:, 0]], dtype=np.int64)
         ends = np.array([to_ns(b - t_ref) for b in intervals[:, 1]], dtype=np.int64)
         keep = ends > starts
@@ -86,7 +87,7 @@ class Ring:
         return u.astype(np.int64), inside
 
     def time_of(self, u: np.ndarray) -> np.ndarray:
-        """Times (ns from t_ref) of ring positions."""
+        """Return the times (ns from t_ref) of ring positions."""
         i = np.searchsorted(self.offsets, u, side="right") - 1
         return self.starts[i] + (u - self.offsets[i])
 
@@ -110,8 +111,10 @@ class SiteTriggers:
 # an exact ordering of integer keys
 # ---------------------------------------------------------------------------
 def order_by_time(major: np.ndarray, t: np.ndarray, ties: np.ndarray) -> np.ndarray:
-    """Order by ``(major, t, ties[:, 0], ties[:, 1], ...)``: int64 ``major >= 0``,
-    nanosecond times ``t`` and a ``(n, c)`` int64 tie-breaker whose rows are unique.
+    """Order by ``(major, t, ties[:, 0], ties[:, 1], ...)``.
+
+    ``major`` is int64 and >= 0, ``t`` nanosecond times and ``ties`` an ``(n, c)`` int64
+    tie-breaker whose rows are unique.
 
     Sorts one combined key of ``major`` and ``t`` coarsened to a power of two that keeps
     it in int64, then re-sorts the rare runs that tie on it by the full key. The result
@@ -189,8 +192,10 @@ def _join(ta, xa, tb, xb, w: int):
 
 
 def _with_images(x: np.ndarray, period: int, w: int):
-    """Values on a circle of ``period`` with images at ``x + period`` (for ``x <= w``) and
-    ``x - period`` (for ``x >= period - w``), so a linear window join is a circular one."""
+    """Add images to values on a circle of ``period``, so a linear window join is circular.
+
+    Images sit at ``x + period`` (for ``x <= w``) and ``x - period`` (for ``x >= period - w``).
+    """
     low = np.flatnonzero(x <= w)
     high = np.flatnonzero(x >= period - w)
     index = np.concatenate([np.arange(x.size, dtype=np.int64), low, high])
@@ -205,8 +210,11 @@ def _concat(parts, n_cols):
 
 
 def ring_close(ua, ub, i: int, j: int, k, step: int, length: int, w: int) -> np.ndarray:
-    """The one test of slide coincidence: are ``a`` (site ``i``) and ``b`` (site ``j``)
-    within ``w`` ns on the ring after slide ``k``? (int64, exact.)"""
+    """Test slide coincidence: the one rule both background methods apply.
+
+    True where ``a`` (site ``i``) and ``b`` (site ``j``) lie within ``w`` ns of each
+    other on the ring after slide ``k`` (int64, exact).
+    """
     k = np.asarray(k, dtype=np.int64)
     pa = (ua + (k * i * step) % length) % length
     pb = (ub + (k * j * step) % length) % length
@@ -364,8 +372,10 @@ def site_values(rows: np.ndarray, sites: list[SiteTriggers], field: str) -> np.n
 
 
 def reference_positions(rows: np.ndarray, slide: np.ndarray, sites: list[SiteTriggers], step: int, length: int):
-    """Ring position, after its slide, of each coincidence's first site (int64 ns);
-    the first listed site never moves."""
+    """Return the ring position, after its slide, of each coincidence's first site (int64 ns).
+
+    The first listed site never moves.
+    """
     u = np.full(rows.shape[0], -1, dtype=np.int64)
     for col in range(len(sites) - 1, -1, -1):
         present = rows[:, col] >= 0
@@ -376,8 +386,9 @@ def reference_positions(rows: np.ndarray, slide: np.ndarray, sites: list[SiteTri
 
 def cluster_by_slide(slide: np.ndarray, time_ns: np.ndarray, value: np.ndarray, window: int,
                      rows: np.ndarray) -> np.ndarray:
-    """Indices of entries with no louder entry of the same slide within ``window`` ns,
-    ordered by slide, then time, then trigger rows.
+    """Return the entries with no louder entry of the same slide within ``window`` ns.
+
+    Indices ordered by slide, then time, then trigger rows.
 
     Equal values favour the earlier entry in that order. Exact integer time differences
     and an order set by the values alone, so clustering one slide alone or all slides
