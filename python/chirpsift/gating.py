@@ -54,8 +54,10 @@ def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, hal
 
     Parameters
     ----------
-    strain : ndarray, shape (n,)
-        Data (finite), at least one ``welch_duration`` long.
+    strain : ndarray, shape (n,), or a lazy view
+        Data (finite), at least one ``welch_duration`` long. Only ``strain.shape[0]``
+        and slices ``strain[a:b]`` (one per block, in increasing order) are used, so a
+        view that reads long data from files block by block serves as well as an array.
     sample_rate : float
         Hz.
     threshold : float
@@ -88,27 +90,53 @@ def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, hal
     return gates
 
 
-def apply_gates(strain, sample_rate, gates, taper=0.125):
+def apply_gates(strain, sample_rate, gates, taper=0.125, *, start=0):
     """Multiply ``strain`` by an inverse Tukey window over each gate.
 
     The window is 0 inside each ``[start, stop)`` interval and rises to 1 over
     ``taper`` seconds on each side with a half-cosine (Hann) taper.
 
+    Parameters
+    ----------
+    strain : array_like, shape (m,)
+        Data (dimensionless).
+    sample_rate : float
+        Hz.
+    gates : list of (int, int)
+        Half-open sample intervals to zero, as :func:`find_gates` gives them.
+    taper : float
+        Length (s) of the taper on each side of a gate.
+    start : int, optional
+        Index of ``strain[0]`` in the data the gates were found in: a block of long
+        data is gated exactly as the same samples of the whole would be (the gates are
+        applied in the same order, so each sample sees the same products).
+
     Returns
     -------
     ndarray
         A gated copy of ``strain``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from chirpsift.gating import apply_gates
+    >>> x = np.ones(10)
+    >>> apply_gates(x, 1.0, [(4, 6)], taper=2.0)
+    array([1.  , 1.  , 0.75, 0.25, 0.  , 0.  , 0.25, 0.75, 1.  , 1.  ])
+    >>> apply_gates(x[5:], 1.0, [(4, 6)], taper=2.0, start=5)
+    array([0.  , 0.25, 0.75, 1.  , 1.  ])
     """
     out = np.array(strain, dtype=np.float64, copy=True)
-    n = out.shape[0]
+    m = out.shape[0]
     nt = int(round(taper * sample_rate))
     ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(1, nt + 1) / (nt + 1))  # rising from ~0 to ~1
     for a, b in gates:
-        out[a:b] = 0.0
+        a, b = a - start, b - start  # positions in ``out``
+        out[min(max(a, 0), m):min(max(b, 0), m)] = 0.0
         lo = np.arange(a - nt, a)
-        ok = lo >= 0
+        ok = (lo >= 0) & (lo < m)
         out[lo[ok]] *= ramp[::-1][ok]
         hi = np.arange(b, b + nt)
-        ok = hi < n
+        ok = (hi >= 0) & (hi < m)
         out[hi[ok]] *= ramp[ok]
     return out

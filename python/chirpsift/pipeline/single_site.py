@@ -3,7 +3,7 @@
 The flow, one step per function, in the order :func:`search` calls them:
 
 1. settings: :class:`~chirpsift.pipeline.SearchSettings` checks every option;
-2. :func:`_longest_template`: the bank against ``f_low`` and the sample rate;
+2. :func:`longest_template`: the bank against ``f_low`` and the sample rate;
 3. :func:`_lay_out`: the finite stretches of the strain (:mod:`chirpsift.condition`),
    and the segments of each (:mod:`chirpsift.segments`);
 4. :func:`_gate_stretches`: loud transients zeroed, live time counted;
@@ -11,6 +11,11 @@ The flow, one step per function, in the order :func:`search` calls them:
    the data FFT and the fused kernel (:func:`_filter_segments`), then clustering and
    ranking within the stretch (:func:`_cluster_and_rank`);
 6. the trigger table (:func:`chirpsift.triggers.trigger_table`) and :func:`_info`.
+
+The steps that concern one stretch (:func:`plan_stretch`, :func:`find_stretch_gates`,
+:func:`live_after_gates`, :func:`search_stretch`) take the stretch's data as an array
+or as a lazy view that slices into arrays, so :mod:`chirpsift.pipeline.streaming`
+runs the very same steps over data read from files block by block.
 """
 
 from __future__ import annotations
@@ -54,7 +59,7 @@ class ExcludedDataWarning(UserWarning):
 
 
 # --- the bank against the settings ---
-def _longest_template(bank, settings, sample_rate):
+def longest_template(bank, settings, sample_rate):
     """Duration (s, from ``f_low``, without margin) of the bank's longest template."""
     fl, fs = settings.f_low, sample_rate
     if fl >= fs / 2:
@@ -67,7 +72,7 @@ def _longest_template(bank, settings, sample_rate):
 
 
 # --- where to search: finite stretches, and the segments of each ---
-class _Stretch(NamedTuple):
+class Stretch(NamedTuple):
     """Input samples ``[start, stop)``, searched in ``plans`` (segments of ``length``
     samples; positions relative to ``start``)."""
 
@@ -87,14 +92,14 @@ class _Layout(NamedTuple):
     pads: tuple[int, int]  # samples discarded at each segment's start and end
     runs: list[tuple[int, int]]  # non-finite runs, left out
     short: list[tuple[int, int]]  # finite stretches too short to hold a segment
-    stretches: list[_Stretch]  # what is searched
+    stretches: list[Stretch]  # what is searched
 
     def seconds(self, intervals):
         """Sample intervals of the input as absolute ``(start, stop)`` times in s."""
         return [(self.t0 + a / self.sample_rate, self.t0 + b / self.sample_rate) for a, b in intervals]
 
 
-def _fixed_segment_length(settings, psd, sample_rate, longest, pads):
+def fixed_segment_length(settings, psd, sample_rate, longest, pads):
     """Segment length (samples) fixed by ``segment_duration`` or by a PSD given on a
     grid; None when it is sized from the bank, stretch by stretch."""
     seg = settings.segment_duration
@@ -154,6 +159,32 @@ def _excluded_message(layout):
     return "; ".join(parts) + "; see info['excluded'] and info['short_stretches']"
 
 
+def plan_stretch(start, stop, fixed_length, longest, settings, sample_rate, pads):
+    """The :class:`Stretch` of input samples ``[start, stop)``, or None when it is too
+    short to hold a segment.
+
+    Its segments have the fixed length (:func:`fixed_segment_length`), or else
+    :func:`chirpsift.segments.default_length` capped by the stretch, and are placed by
+    :func:`chirpsift.segments.plan_segments` over the whole stretch.
+    """
+    length = fixed_length or default_length(longest, settings.welch_duration, sample_rate, stop - start)
+    if stop - start < length or length - sum(pads) < 1:
+        return None
+    return Stretch(start, stop, length, plan_segments(stop - start, length, *pads))
+
+
+def check_psd_duration(stretches, settings, sample_rate):
+    """Refuse a ``psd_duration`` shorter than a segment of any stretch."""
+    if settings.psd_duration is None:
+        return
+    for s in stretches:
+        if settings.psd_duration * sample_rate < s.length:
+            raise ValueError(
+                f"psd_duration={settings.psd_duration} s is shorter than the {s.length / sample_rate:g} s segments "
+                "sized from the bank's longest template; give a longer psd_duration or a segment_duration"
+            )
+
+
 def _lay_out(x, sample_rate, t0, settings, psd, longest):
     """Split the input into finite stretches and plan the segments of each.
 
@@ -163,27 +194,21 @@ def _lay_out(x, sample_rate, t0, settings, psd, longest):
     """
     fs, n = sample_rate, x.shape[0]
     pads = padding(longest, settings.welch_duration, fs)
-    fixed_length = _fixed_segment_length(settings, psd, fs, longest, pads)
+    fixed_length = fixed_segment_length(settings, psd, fs, longest, pads)
     runs = find_nonfinite_runs(x)
     if runs and settings.nonfinite == "error":
         raise ValueError(f"{_nonfinite_message(runs, fs)}; remove them, or pass nonfinite='skip' to search the "
                          "finite stretches between them")
     stretches, short = [], []
     for a, b in stretches_between(n, runs):
-        length = fixed_length or default_length(longest, settings.welch_duration, fs, b - a)
-        if b - a < length or length - sum(pads) < 1:
+        stretch = plan_stretch(a, b, fixed_length, longest, settings, fs, pads)
+        if stretch is None:
             short.append((a, b))
         else:
-            stretches.append(_Stretch(a, b, length, plan_segments(b - a, length, *pads)))
+            stretches.append(stretch)
     if not stretches:
         raise ValueError(_nothing_to_search(n, fs, runs, settings, longest, pads, fixed_length))
-    if settings.psd_duration is not None:
-        for s in stretches:
-            if settings.psd_duration * fs < s.length:
-                raise ValueError(
-                    f"psd_duration={settings.psd_duration} s is shorter than the {s.length / fs:g} s segments "
-                    "sized from the bank's longest template; give a longer psd_duration or a segment_duration"
-                )
+    check_psd_duration(stretches, settings, fs)
     layout = _Layout(n, fs, t0, longest, pads, runs, short, stretches)
     if runs or short:
         warnings.warn(_excluded_message(layout), ExcludedDataWarning, stacklevel=3)
@@ -191,19 +216,26 @@ def _lay_out(x, sample_rate, t0, settings, psd, longest):
 
 
 # --- gating ---
+def find_stretch_gates(x, sample_rate, settings):
+    """Gates (sample intervals of ``x``) of one stretch ``x``, an array or a lazy view
+    that slices into arrays (see :func:`chirpsift.gating.find_gates`); none without a
+    ``gate_threshold``."""
+    if settings.gate_threshold is None:
+        return []
+    return find_gates(x, sample_rate, settings.gate_threshold, f_low=settings.f_low,
+                      welch_duration=settings.welch_duration, half_width=settings.gate_half_width)
+
+
 def _gate(x, sample_rate, settings):
     """Zero loud transients of one stretch; returns the gated data and the gates
     (sample intervals of ``x``)."""
-    if settings.gate_threshold is None:
-        return x, []
-    gates = find_gates(x, sample_rate, settings.gate_threshold, f_low=settings.f_low,
-                       welch_duration=settings.welch_duration, half_width=settings.gate_half_width)
+    gates = find_stretch_gates(x, sample_rate, settings)
     if gates:
         x = apply_gates(x, sample_rate, gates, taper=settings.gate_taper)
     return x, gates
 
 
-def _gating_summary(settings, gates, sample_rate):
+def gating_summary(settings, gates, sample_rate):
     total = sum(b - a for a, b in gates) / sample_rate
     return f"gate_threshold={settings.gate_threshold} gated {total:g} s in {len(gates)} gate(s)"
 
@@ -215,22 +247,35 @@ def _gate_stretches(x, layout, settings):
     gates as input sample intervals, and the live intervals: what the segments analyse
     minus the gates. Refuses a gating that leaves nothing live.
     """
-    fs, (pad_start, pad_end) = layout.sample_rate, layout.pads
+    fs = layout.sample_rate
     gated = [_gate(x[s.start:s.stop], fs, settings) for s in layout.stretches]
     gates = [(s.start + a, s.start + b) for s, (_, own) in zip(layout.stretches, gated) for a, b in own]
-    analysed = [(s.start + pad_start, s.stop - pad_end) for s in layout.stretches]
+    live = live_after_gates(layout.stretches, layout.pads, gates, settings, fs, stacklevel=4)
+    return gated, gates, live
+
+
+def live_after_gates(stretches, pads, gates, settings, sample_rate, stacklevel=2):
+    """The live sample intervals: what the segments of ``stretches`` analyse (each
+    stretch less its pads) minus ``gates`` (same sample numbering).
+
+    Warns (:class:`GatingWarning`, at ``stacklevel`` as :func:`warnings.warn` counts
+    from here) when gates take analysed time, and refuses a gating that leaves nothing
+    live.
+    """
+    fs, (pad_start, pad_end) = sample_rate, pads
+    analysed = [(s.start + pad_start, s.stop - pad_end) for s in stretches]
     live = subtract_intervals(analysed, gates)
     if gates:
         analysed_time = sum(b - a for a, b in analysed) / fs
         if not live:
             raise ValueError(
-                f"gating left nothing to search: {_gating_summary(settings, gates, fs)}, covering all "
+                f"gating left nothing to search: {gating_summary(settings, gates, fs)}, covering all "
                 f"{analysed_time:g} s that the segments analyse; raise gate_threshold"
             )
         lost = analysed_time - sum(b - a for a, b in live) / fs
-        warnings.warn(f"{_gating_summary(settings, gates, fs)}, {lost:g} s of the analysed time; see info['gates']",
-                      GatingWarning, stacklevel=3)
-    return gated, gates, live
+        warnings.warn(f"{gating_summary(settings, gates, fs)}, {lost:g} s of the analysed time; see info['gates']",
+                      GatingWarning, stacklevel=stacklevel)
+    return live
 
 
 def _low_fraction_message(layout, live, gates):
@@ -251,7 +296,7 @@ def _low_fraction_message(layout, live, gates):
 
 
 # --- the PSD of a segment: given (on the segment's grid) or estimated (from a block) ---
-def _check_psd_argument(psd):
+def check_psd_argument(psd):
     """Validate what can be validated before the segment grid is known."""
     if psd is None or callable(psd):
         return psd
@@ -302,7 +347,7 @@ def _no_noise_message(block_start, block, t_first, plan, sample_rate, settings, 
     in_block = [(max(a, lo), min(b, hi)) for a, b in gates if b > lo and a < hi]
     if in_block:
         return msg + (f", {sum(b - a for a, b in in_block) / fs:g} s of them gated "
-                      f"({_gating_summary(settings, gates, fs)} in this stretch); raise gate_threshold or give psd")
+                      f"({gating_summary(settings, gates, fs)} in this stretch); raise gate_threshold or give psd")
     return msg + "; mark missing data as NaN (non-finite runs are left out of the search) or give psd"
 
 
@@ -336,10 +381,14 @@ def _cluster_and_rank(peaks, settings):
     return peaks
 
 
-def _search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates=()):
+def search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates=()):
     """Filter one stretch ``x`` (whose first sample is at ``t_first``) segment by segment;
     returns its clustered, ranked peaks with absolute ``time``. ``gates`` (sample
     intervals of ``x`` already zeroed) only serve to explain a PSD that cannot be estimated.
+
+    ``x`` is read only through ``x.shape[0]`` and slices ``x[a:b]``, per segment in
+    order: the segment, then the block its PSD is estimated from (which starts at most
+    ``psd_duration - segment`` samples before the segment).
 
     Each stretch is its own analysis (PSDs from its own data, clustering within it), so
     a search of the whole input equals searches of its stretches one by one.
@@ -375,19 +424,22 @@ def _search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_c
     return _cluster_and_rank({k: np.concatenate(v) for k, v in columns.items()}, settings)
 
 
+def progress_bar(stretches, bank):
+    """A tqdm bar on stderr counting segments x templates of ``stretches``."""
+    from tqdm import tqdm
+
+    return tqdm(total=sum(len(s.plans) for s in stretches) * len(bank), unit="tmpl", desc="chirpsift search",
+                file=sys.stderr)
+
+
 def _search_stretches(gated, layout, bank, settings, psd, progress):
     """Search every gated stretch; returns the merged peak columns (not yet sorted)."""
     fs = layout.sample_rate
-    bar = None
-    if progress:
-        from tqdm import tqdm
-
-        bar = tqdm(total=sum(len(s.plans) for s in layout.stretches) * len(bank), unit="tmpl",
-                   desc="chirpsift search", file=sys.stderr)
+    bar = progress_bar(layout.stretches, bank) if progress else None
     found, psd_cache = [], {}
     try:
         for stretch, (xs, own_gates) in zip(layout.stretches, gated):
-            found.append(_search_stretch(xs, layout.t0 + stretch.start / fs, fs, stretch, bank, settings, psd,
+            found.append(search_stretch(xs, layout.t0 + stretch.start / fs, fs, stretch, bank, settings, psd,
                                          psd_cache, bar, own_gates))
     finally:
         if bar is not None:
@@ -617,14 +669,14 @@ def search(
     if len(b) == 0:
         raise ValueError("bank must hold at least one template")
     t_start = real_scalar("t0", t0)
-    psd = _check_psd_argument(psd)
+    psd = check_psd_argument(psd)
     settings = SearchSettings(
         f_low=f_low, segment_duration=segment_duration, min_snr=min_snr, peak_window=peak_window,
         chi2_bands=chi2_bands, gate_threshold=gate_threshold, gate_half_width=gate_half_width,
         gate_taper=gate_taper, welch_duration=welch_duration, psd_duration=psd_duration,
         bank_cluster=bank_cluster, phase_order=phase_order, nonfinite=nonfinite,
     )
-    longest = _longest_template(b, settings, fs)
+    longest = longest_template(b, settings, fs)
     layout = _lay_out(x, fs, t_start, settings, psd, longest)
     gated, gates, live = _gate_stretches(x, layout, settings)
     if sum(bb - a for a, bb in live) < MIN_ANALYSED_FRACTION * layout.n:
