@@ -1,0 +1,388 @@
+"""The search of a strain catalogue, block by block: any amount of data in bounded memory.
+
+:func:`search_catalogue` runs the steps of :func:`chirpsift.search` (those of
+:mod:`chirpsift.pipeline.single_site` that concern one stretch) over data read from the
+catalogue's files as they are needed:
+
+1. per span of abutting files, vetoed times and non-finite runs (found by reading the
+   span in chunks of :data:`SCAN_SAMPLES`) split it into stretches, planned exactly as
+   :func:`chirpsift.search` plans the stretches between non-finite runs (segments from
+   :func:`chirpsift.segments.plan_segments` over the whole stretch);
+2. gates are found per stretch in the whitening blocks of
+   :func:`chirpsift.gating.find_gates`, read one at a time;
+3. each stretch is filtered segment by segment; a segment and the block its PSD is
+   estimated from are read (and gated) when the search reaches them, and samples are
+   dropped once no later segment needs them.
+
+So each sample is read at most three times (once per step), the memory held is a
+few segments (and a PSD block) whatever the amount of data, and the triggers are those of
+:func:`chirpsift.search` over the same samples held in memory, bit for bit.
+"""
+
+from __future__ import annotations
+
+import warnings
+from typing import NamedTuple
+
+import numpy as np
+
+from ..bank import Bank
+from ..condition import find_nonfinite_runs, stretches_between, subtract_intervals
+from ..gating import apply_gates
+from ..segments import DURATION_MARGIN, padding
+from ..triggers import trigger_table
+from .catalogue import Catalogue, Span
+from .live_time import LiveTimeTable
+from .settings import SearchSettings
+from .single_site import (
+    MIN_ANALYSED_FRACTION,
+    AnalysedFractionWarning,
+    ExcludedDataWarning,
+    check_psd_argument,
+    check_psd_duration,
+    find_stretch_gates,
+    fixed_segment_length,
+    live_after_gates,
+    longest_template,
+    plan_stretch,
+    progress_bar,
+    search_stretch,
+)
+from .vetoes import check_vetoes
+
+__all__ = ["search_catalogue", "SCAN_SAMPLES"]
+
+#: Samples read at a time when a span is scanned for non-finite samples.
+SCAN_SAMPLES = 1 << 20
+
+
+class _StretchData:
+    """Samples ``[start, stop)`` of a span as a read-only 1-D sliceable, read on demand.
+
+    Slices are served from a buffer that grows forward by reading only samples not
+    yet held, and drops samples more than ``retain`` before the latest slice's start;
+    a slice reaching behind the buffer is read again. With ``gates`` (intervals of
+    the stretch), samples are gated as :func:`chirpsift.gating.apply_gates` gates the
+    whole stretch.
+    """
+
+    def __init__(self, span: Span, start: int, stop: int, *, gates=(), sample_rate=1.0, taper=0.0, retain=0):
+        self.shape = (stop - start,)
+        self._span, self._start = span, start
+        self._gates, self._fs, self._taper = list(gates), sample_rate, taper
+        self._retain = retain
+        self._lo = 0
+        self._buf = np.zeros(0)
+        self.samples_read = 0
+        self.largest = 0
+
+    def __len__(self) -> int:
+        return self.shape[0]
+
+    def _load(self, lo: int, hi: int) -> np.ndarray:
+        x = self._span.read(self._start + lo, self._start + hi)
+        self.samples_read += hi - lo
+        if self._gates:
+            x = apply_gates(x, self._fs, self._gates, taper=self._taper, start=lo)
+        return x
+
+    def __getitem__(self, key):
+        if not isinstance(key, slice) or key.step not in (None, 1):
+            raise TypeError("stretch data are read by contiguous slices only")
+        lo, hi, _ = key.indices(self.shape[0])
+        hi = max(hi, lo)
+        blo, bhi = self._lo, self._lo + self._buf.shape[0]
+        if lo < blo or lo > bhi:  # behind the buffer, or beyond it: start afresh
+            buf, new_lo = self._load(lo, hi), lo
+        else:
+            new_lo = max(blo, lo - self._retain)
+            kept = self._buf[new_lo - blo:]
+            buf = np.concatenate([kept, self._load(bhi, hi)]) if hi > bhi else kept
+        buf.flags.writeable = False
+        self._buf, self._lo = buf, new_lo
+        self.largest = max(self.largest, buf.shape[0])
+        return buf[lo - new_lo:hi - new_lo]
+
+
+class _SpanPlan(NamedTuple):
+    """What becomes of each sample of one span (sample intervals of the span)."""
+
+    span: Span
+    vetoed: list[tuple[int, int]]
+    nonfinite: list[tuple[int, int]]  # outside vetoes
+    short: list[tuple[int, int]]
+    stretches: list  # single_site.Stretch, positions in the span
+
+
+def _union(*lists) -> list[tuple[int, int]]:
+    out: list[tuple[int, int]] = []
+    for a, b in sorted(iv for lst in lists for iv in lst):
+        if out and a <= out[-1][1]:
+            out[-1] = (out[-1][0], max(out[-1][1], b))
+        else:
+            out.append((a, b))
+    return out
+
+
+def _nonfinite_runs(span: Span) -> tuple[list[tuple[int, int]], int]:
+    """Non-finite runs of a span, read in chunks; also the samples read."""
+    runs: list[tuple[int, int]] = []
+    for lo in range(0, span.n, SCAN_SAMPLES):
+        hi = min(lo + SCAN_SAMPLES, span.n)
+        for a, b in find_nonfinite_runs(span.read(lo, hi)):
+            if runs and runs[-1][1] == lo + a:  # a run across the chunk boundary
+                runs[-1] = (runs[-1][0], lo + b)
+            else:
+                runs.append((lo + a, lo + b))
+    return runs, span.n
+
+
+def _plan_span(span, veto_times, settings, longest, pads, fixed_length):
+    fs = span.sample_rate
+    vetoed = span.samples_within(veto_times)
+    runs, read = _nonfinite_runs(span)
+    nonfinite = subtract_intervals(runs, vetoed)
+    if nonfinite and settings.nonfinite == "error":
+        a, b = nonfinite[0]
+        count = sum(y - x for x, y in nonfinite)
+        raise ValueError(
+            f"{span.file_at(a).where}: {count} non-finite samples in {len(nonfinite)} run(s) of the span from "
+            f"{span.t0!r} s, the first from t={span.t0 + a / fs!r} s; veto them, or pass nonfinite='skip' to search "
+            "the finite stretches between them"
+        )
+    short, stretches = [], []
+    for a, b in stretches_between(span.n, _union(vetoed, nonfinite)):
+        stretch = plan_stretch(a, b, fixed_length, longest, settings, fs, pads)
+        if stretch is None:
+            short.append((a, b))
+        else:
+            stretches.append(stretch)
+    return _SpanPlan(span, vetoed, nonfinite, short, stretches), read
+
+
+def _nothing_to_search(plans, settings, longest, pads, fixed_length, fs):
+    longest_run = max((b - a for p in plans for a, b in p.short), default=0)
+    where = (f"the longest stretch of the catalogue left by gaps, vetoes and non-finite samples has "
+             f"{longest_run} samples ({longest_run / fs:g} s)")
+    if fixed_length is not None and longest_run < fixed_length:
+        return f"{where}, fewer than the {fixed_length}-sample ({fixed_length / fs:g} s) segments asked for"
+    return (f"templates last up to {longest * DURATION_MARGIN:.4g} s from f_low={settings.f_low} Hz: with the "
+            f"{settings.welch_duration} s whitening filter each segment discards {sum(pads) / fs:g} s, and {where}; "
+            "raise f_low or give longer stretches of data")
+
+
+def _seconds(span: Span, intervals):
+    fs = span.sample_rate
+    return [(span.t0 + a / fs, span.t0 + b / fs) for a, b in intervals]
+
+
+def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=False, **options):
+    """Matched-filter search of a strain catalogue, reading its files block by block.
+
+    The result is that of :func:`chirpsift.search` run on each span of abutting files
+    held in memory, with vetoed samples set to NaN, bit for bit; the memory used
+    depends on the segment length (set by the bank's longest template, or
+    ``segment_duration``) and ``psd_duration``, never on the amount of data.
+
+    Parameters
+    ----------
+    catalogue : Catalogue
+        One site's strain files (:func:`chirpsift.pipeline.read_catalogue`).
+    bank : Bank, structured array or mapping
+        Template parameters (``m1``, ``m2`` in solar masses, optional aligned spins
+        ``chi1``, ``chi2``).
+    f_low : float
+        Lower frequency cutoff (Hz).
+    vetoes : None, path, or iterable of (float, float), optional
+        Time intervals (s) to leave out before anything is filtered: a file
+        (:func:`chirpsift.pipeline.read_vetoes`) or the intervals. A sample is vetoed
+        when its time lies in ``[start, end)``.
+    psd : None, str, callable, (freqs, values) or ndarray, optional
+        As for :func:`chirpsift.search`.
+    progress : bool, optional
+        Show a progress bar (segments x templates) on stderr.
+    **options
+        Any other option of :func:`chirpsift.search` (``min_snr``, ``segment_duration``,
+        ``gate_threshold``, ``psd_duration``, ``nonfinite``, ...), with its meaning
+        there; an unknown name is an error naming the nearest valid one.
+
+    Returns
+    -------
+    triggers : ndarray with dtype :data:`chirpsift.TRIGGER_DTYPE`
+        Sorted by time.
+    info : dict
+        The keys of :func:`chirpsift.search`'s ``info`` (``excluded`` lists the
+        non-finite runs; ``analysed_fraction`` is the live time over the seconds of
+        data in files), and:
+
+        - ``vetoed``, ``gaps``: time intervals (s) left out;
+        - ``live_time_table``: a :class:`chirpsift.pipeline.LiveTimeTable` placing every
+          second from the first sample to the last in one category; its total is the
+          catalogue's span;
+        - ``files``, ``spans``: counts;
+        - ``samples_read``: samples read from files over all steps (at most three per
+          sample); ``largest_block``: the most samples held at once by one step.
+
+    Raises
+    ------
+    ValueError
+        As :func:`chirpsift.search`, and when no stretch of the catalogue can hold a
+        segment, or (``nonfinite="error"``) a file holds non-finite samples outside
+        the vetoes; the message names the file.
+    TypeError
+        If ``catalogue`` is not a :class:`Catalogue`.
+
+    Warns
+    -----
+    GatingWarning, ExcludedDataWarning, AnalysedFractionWarning
+        As :func:`chirpsift.search`.
+
+    Notes
+    -----
+    Each stretch (a run of samples between gaps, vetoes and non-finite samples) is its
+    own analysis: segments placed over the whole stretch, PSDs from its own data,
+    clustering within it. A stretch too short to hold a segment is not searched and is
+    reported (``short_stretches``, the ``short`` row of the live-time table), as are
+    the pads at each searched stretch's ends, where no segment's output is valid.
+
+    Examples
+    --------
+    Two abutting files and a third after a gap, with one veto:
+
+    >>> import numpy as np, os, tempfile, warnings
+    >>> import chirpsift as cs
+    >>> from chirpsift.pipeline import read_catalogue, search_catalogue
+    >>> from chirpsift.synthetic import colored_gaussian_noise
+    >>> d, fs = tempfile.mkdtemp(), 256.0
+    >>> for i, start in enumerate([2000.0, 2040.0, 2100.0]):
+    ...     x = colored_gaussian_noise(int(40 * fs), fs, "gen2-zero-detuned", seed=i, f_low=30.0)
+    ...     np.savez(os.path.join(d, f"site-x-{i}.npz"), strain=x, sample_rate=fs, t0=start)
+    >>> cat = read_catalogue(os.path.join(d, "*.npz"))
+    >>> bank = cs.Bank(m1=[14.0, 16.0], m2=[12.0, 14.0])
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     triggers, info = search_catalogue(cat, bank, f_low=40.0, welch_duration=1.0,
+    ...                                       vetoes=[(2050.0, 2052.0)], min_snr=5.0)
+    >>> [(s["start"], s["stop"]) for s in info["stretches"]]
+    [(2000.0, 2050.0), (2052.0, 2080.0), (2100.0, 2140.0)]
+    >>> table = info["live_time_table"]
+    >>> table.seconds["gap"], table.seconds["vetoed"], table.total == cat.end - cat.start
+    (20.0, 2.0, True)
+    """
+    if not isinstance(catalogue, Catalogue):
+        raise TypeError(f"catalogue must be a Catalogue (see read_catalogue), got {type(catalogue).__name__}")
+    b = Bank.from_any(bank)
+    if len(b) == 0:
+        raise ValueError("bank must hold at least one template")
+    psd = check_psd_argument(psd)
+    settings = SearchSettings.from_mapping({**options, "f_low": f_low}, where="search_catalogue")
+    veto_times = check_vetoes(vetoes)
+    fs = catalogue.sample_rate
+    longest = longest_template(b, settings, fs)
+    pads = padding(longest, settings.welch_duration, fs)
+    fixed_length = fixed_segment_length(settings, psd, fs, longest, pads)
+
+    planned = [_plan_span(span, veto_times, settings, longest, pads, fixed_length) for span in catalogue.spans]
+    samples_read = sum(read for _, read in planned)
+    plans = [p for p, _ in planned]
+    searched = [(p.span, s) for p in plans for s in p.stretches]
+    if not searched:
+        raise ValueError(_nothing_to_search(plans, settings, longest, pads, fixed_length, fs))
+    check_psd_duration([s for _, s in searched], settings, fs)
+    nonfinite = [iv for p in plans for iv in _seconds(p.span, p.nonfinite)]
+    short = [iv for p in plans for iv in _seconds(p.span, p.short)]
+    if nonfinite or short:
+        warnings.warn(
+            f"left out {len(nonfinite)} run(s) of non-finite samples ({sum(b - a for a, b in nonfinite):g} s) and "
+            f"{len(short)} stretch(es) too short to hold a segment ({sum(b - a for a, b in short):g} s); see "
+            "info['excluded'], info['short_stretches'] and info['live_time_table']",
+            ExcludedDataWarning, stacklevel=2)
+
+    # gates, per stretch, before anything is filtered (as the in-memory search)
+    largest = 0
+    own_gates = []
+    for span, s in searched:
+        view = _StretchData(span, s.start, s.stop)
+        own_gates.append(find_stretch_gates(view, fs, settings))
+        samples_read += view.samples_read
+        largest = max(largest, view.largest)
+    base, numbered, numbered_gates = 0, [], []
+    for p in plans:  # one numbering of all spans' samples, for the check over the whole search
+        for s in p.stretches:
+            numbered.append(s._replace(start=base + s.start, stop=base + s.stop))
+        base += p.span.n
+    base, k = 0, 0
+    for p in plans:
+        for s in p.stretches:
+            numbered_gates += [(base + s.start + a, base + s.start + g) for a, g in own_gates[k]]
+            k += 1
+        base += p.span.n
+    live_after_gates(numbered, pads, numbered_gates, settings, fs, stacklevel=3)
+
+    bar = progress_bar([s for _, s in searched], b) if progress else None
+    found, psd_cache = [], {}
+    try:
+        for (span, s), gates in zip(searched, own_gates):
+            psd_len = s.length if settings.psd_duration is None else int(round(settings.psd_duration * fs))
+            data = _StretchData(span, s.start, s.stop, gates=gates, sample_rate=fs, taper=settings.gate_taper,
+                                retain=max(0, psd_len - s.length) if psd is None else 0)
+            found.append(search_stretch(data, span.t0 + s.start / fs, fs, s, b, settings, psd, psd_cache, bar,
+                                        gates))
+            samples_read += data.samples_read
+            largest = max(largest, data.largest)
+    finally:
+        if bar is not None:
+            bar.close()
+    peaks = {key: np.concatenate([f[key] for f in found]) for key in found[0]}
+    triggers = trigger_table(peaks, peaks["time"], peaks["reweighted_snr"], b)
+
+    # bookkeeping: every sample of every span in one category
+    pad_start, pad_end = pads
+    per_span, live, gates_abs, k = [], [], [], 0
+    for p in plans:
+        parts = {"vetoed": p.vetoed, "nonfinite": p.nonfinite, "short": p.short, "pads": [], "gated": [],
+                 "analysed": []}
+        for s in p.stretches:
+            gates = [(s.start + a, s.start + g) for a, g in own_gates[k]]
+            k += 1
+            region = [(s.start + pad_start, s.stop - pad_end)]
+            analysed = subtract_intervals(region, gates)
+            parts["pads"] += [(s.start, s.start + pad_start), (s.stop - pad_end, s.stop)]
+            parts["gated"] += subtract_intervals(region, analysed)
+            parts["analysed"] += analysed
+            gates_abs += _seconds(p.span, gates)
+        live += _seconds(p.span, parts["analysed"])
+        per_span.append((p.span.t0, parts))
+    table = LiveTimeTable.from_samples(catalogue.start, catalogue.end, fs, per_span, catalogue.gaps)
+    analysed_fraction = table.live_time / catalogue.covered
+    if analysed_fraction < MIN_ANALYSED_FRACTION:
+        rows = ", ".join(f"{c} {sec:g} s" for c, sec, _ in table.rows() if sec > 0)
+        warnings.warn(f"only {100 * analysed_fraction:.0f}% of the {catalogue.covered:g} s of data in files is "
+                      f"searched: {rows}; see info['live_time_table']", AnalysedFractionWarning, stacklevel=2)
+    info = {
+        "segments": sum(len(s.plans) for _, s in searched),
+        "analysed": live,
+        "live_time": table.live_time,
+        "analysed_fraction": analysed_fraction,
+        "gates": gates_abs,
+        "gated_time": float(sum(g - a for gates in own_gates for a, g in gates) / fs),
+        "excluded": nonfinite,
+        "vetoed": [iv for p in plans for iv in _seconds(p.span, p.vetoed)],
+        "gaps": catalogue.gaps,
+        "short_stretches": short,
+        "stretches": [{"start": span.t0 + s.start / fs, "stop": span.t0 + s.stop / fs, "segments": len(s.plans),
+                       "segment_duration": s.length / fs} for span, s in searched],
+        "templates": len(b),
+        "max_template_duration": longest * DURATION_MARGIN,
+        "pad_start": pad_start / fs,
+        "pad_end": pad_end / fs,
+        "segment_duration": max(s.length for _, s in searched) / fs,
+        "sample_rate": fs,
+        "settings": settings.as_dict(),
+        "files": len(catalogue.files),
+        "spans": len(catalogue.spans),
+        "live_time_table": table,
+        "samples_read": samples_read,
+        "largest_block": largest,
+    }
+    return triggers, info
