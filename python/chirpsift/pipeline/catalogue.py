@@ -56,8 +56,7 @@ def _one_line(exc: BaseException) -> str:
 
 @dataclass(frozen=True)
 class _Layout:
-    """How a file's samples are reached: raw bytes at an offset, a compressed zip
-    member, or an HDF5 dataset."""
+    """How a file's samples are reached: raw bytes, a compressed zip member, or HDF5."""
 
     kind: str  # "raw", "zip" or "hdf5"
     dtype: np.dtype
@@ -487,7 +486,7 @@ def _expand(paths) -> tuple[list[Path], bool]:
 
 
 def _start_times(t0, paths: list[Path], patterned: bool) -> list[float | None]:
-    """The caller's start time of each file (None where not given)."""
+    """Return the caller's start time of each file (None where not given)."""
     if t0 is None:
         return [None] * len(paths)
     if isinstance(t0, Mapping):

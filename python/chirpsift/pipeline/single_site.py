@@ -160,8 +160,8 @@ def _excluded_message(layout):
 
 
 def plan_stretch(start, stop, fixed_length, longest, settings, sample_rate, pads):
-    """The :class:`Stretch` of input samples ``[start, stop)``, or None when it is too
-    short to hold a segment.
+    """Return the :class:`Stretch` of input samples ``[start, stop)``, or None when it is
+    too short to hold a segment.
 
     Its segments have the fixed length (:func:`fixed_segment_length`), or else
     :func:`chirpsift.segments.default_length` capped by the stretch, and are placed by
@@ -217,9 +217,9 @@ def _lay_out(x, sample_rate, t0, settings, psd, longest):
 
 # --- gating ---
 def find_stretch_gates(x, sample_rate, settings):
-    """Gates (sample intervals of ``x``) of one stretch ``x``, an array or a lazy view
-    that slices into arrays (see :func:`chirpsift.gating.find_gates`); none without a
-    ``gate_threshold``."""
+    """Return the gates (sample intervals of ``x``) of one stretch ``x``, an array or a
+    lazy view that slices into arrays (see :func:`chirpsift.gating.find_gates`); none
+    without a ``gate_threshold``."""
     if settings.gate_threshold is None:
         return []
     return find_gates(x, sample_rate, settings.gate_threshold, f_low=settings.f_low,
@@ -255,8 +255,8 @@ def _gate_stretches(x, layout, settings):
 
 
 def live_after_gates(stretches, pads, gates, settings, sample_rate, stacklevel=2):
-    """The live sample intervals: what the segments of ``stretches`` analyse (each
-    stretch less its pads) minus ``gates`` (same sample numbering).
+    """Return the live sample intervals: what the segments of ``stretches`` analyse
+    (each stretch less its pads) minus ``gates`` (same sample numbering).
 
     Warns (:class:`GatingWarning`, at ``stacklevel`` as :func:`warnings.warn` counts
     from here) when gates take analysed time, and refuses a gating that leaves nothing
@@ -425,7 +425,7 @@ def search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_ca
 
 
 def progress_bar(stretches, bank):
-    """A tqdm bar on stderr counting segments x templates of ``stretches``."""
+    """Return a tqdm bar on stderr counting segments x templates of ``stretches``."""
     from tqdm import tqdm
 
     return tqdm(total=sum(len(s.plans) for s in stretches) * len(bank), unit="tmpl", desc="chirpsift search",

@@ -113,7 +113,7 @@ def _read_text(path: Path) -> list[tuple[float, float]]:
 
 
 def read_vetoes(path) -> list[tuple[float, float]]:
-    """Read vetoes from a text or TOML file (module docstring), sorted and merged.
+    r"""Read vetoes from a text or TOML file (module docstring), sorted and merged.
 
     Parameters
     ----------
@@ -140,12 +140,12 @@ def read_vetoes(path) -> list[tuple[float, float]]:
     >>> d = tempfile.mkdtemp()
     >>> p = os.path.join(d, "vetoes.txt")
     >>> with open(p, "w") as fh:
-    ...     _ = fh.write("# loud fan at the invented site\\n1010 1012.5\\n1000 1001  # test tone\\n")
+    ...     _ = fh.write("# loud fan at the invented site\n1010 1012.5\n1000 1001  # test tone\n")
     >>> read_vetoes(p)
     [(1000.0, 1001.0), (1010.0, 1012.5)]
     >>> q = os.path.join(d, "vetoes.toml")
     >>> with open(q, "w") as fh:
-    ...     _ = fh.write("vetoes = [[1000, 1001], [1010, 1012.5]]\\n")
+    ...     _ = fh.write("vetoes = [[1000, 1001], [1010, 1012.5]]\n")
     >>> read_vetoes(q) == read_vetoes(p)
     True
     """
