@@ -55,7 +55,8 @@ def peak_kib():
 
 args = json.loads(sys.argv[1])
 import chirpsift as cs
-from chirpsift.pipeline import read_catalogue, search_catalogue
+from chirpsift.io.catalogue import read_catalogue
+from chirpsift.pipeline import search_catalogue
 start = time.perf_counter()
 out = {"imports_kib": peak_kib(), "files": len(args["paths"])}
 if args["paths"]:

@@ -8,7 +8,9 @@ import h5py
 import numpy as np
 import pytest
 
-from chirpsift.pipeline import ABUT_TOLERANCE, check_vetoes, read_catalogue, read_vetoes
+from chirpsift.io.catalogue import read_catalogue
+from chirpsift.io.strain import TIME_STEP_TOLERANCE
+from chirpsift.io.vetoes import check_vetoes, read_vetoes
 
 FS = 128.0
 T0 = 1_200_000_000.0  # start times of order 1e9 s, where float64 resolves ~1e-7 s
@@ -55,7 +57,7 @@ def test_a_file_missing_in_the_middle_is_a_gap(tmp_path):
     assert cat.gaps == [(T0 + 20.0, T0 + 30.0)]
 
 
-@pytest.mark.parametrize("shift, spans", [(0.5 * ABUT_TOLERANCE, 1), (2 * ABUT_TOLERANCE, 2)])
+@pytest.mark.parametrize("shift, spans", [(0.5 * TIME_STEP_TOLERANCE, 1), (2 * TIME_STEP_TOLERANCE, 2)])
 def test_abutting_means_within_the_tolerance_in_samples(tmp_path, shift, spans):
     # Tolerance stated in samples: a start 0.05 sample late still abuts, 0.2 is a gap.
     _npz(tmp_path, "a.npz", _samples(256, 1), T0)

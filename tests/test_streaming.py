@@ -10,7 +10,8 @@ import pytest
 
 import chirpsift as cs
 from chirpsift import synthetic
-from chirpsift.pipeline import CATEGORIES, ExcludedDataWarning, GatingWarning, read_catalogue, search_catalogue
+from chirpsift.io.catalogue import read_catalogue
+from chirpsift.pipeline import CATEGORIES, ExcludedDataWarning, GatingWarning, search_catalogue
 from chirpsift.reference import chirp_duration as ref_chirp_duration
 
 FS = 256.0

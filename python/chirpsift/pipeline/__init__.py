@@ -3,19 +3,16 @@
 It composes the numpy API's arrows (gating, spectrum, segments, the fused filter,
 clustering, ranking) and never reaches into the compiled core. :func:`search` takes
 strain held in memory; :func:`search_catalogue` runs the same search over a
-:class:`Catalogue` of files, reading them block by block.
+catalogue of files (:mod:`chirpsift.io.catalogue`), reading them block by block.
 """
 
 from ..gating import GatingWarning
 from ..triggers import TRIGGER_DTYPE
-from .catalogue import ABUT_TOLERANCE, Catalogue, Span, StrainFile, read_catalogue
 from .live_time import CATEGORIES, LiveTimeTable
 from .settings import SEARCH_OPTIONS, SearchOption, SearchSettings
 from .single_site import MIN_ANALYSED_FRACTION, AnalysedFractionWarning, ExcludedDataWarning, search
 from .streaming import search_catalogue
-from .vetoes import check_vetoes, read_vetoes
 
 __all__ = ["search", "SearchSettings", "SearchOption", "SEARCH_OPTIONS", "TRIGGER_DTYPE", "GatingWarning",
            "AnalysedFractionWarning", "ExcludedDataWarning", "MIN_ANALYSED_FRACTION",
-           "search_catalogue", "Catalogue", "Span", "StrainFile", "read_catalogue", "ABUT_TOLERANCE",
-           "LiveTimeTable", "CATEGORIES", "read_vetoes", "check_vetoes"]
+           "search_catalogue", "LiveTimeTable", "CATEGORIES"]

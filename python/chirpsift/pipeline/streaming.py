@@ -29,9 +29,10 @@ import numpy as np
 from ..bank import Bank
 from ..condition import find_nonfinite_runs, stretches_between, subtract_intervals
 from ..gating import apply_gates
+from ..io.catalogue import Catalogue, Span
+from ..io.vetoes import check_vetoes
 from ..segments import DURATION_MARGIN, padding
 from ..triggers import trigger_table
-from .catalogue import Catalogue, Span
 from .live_time import LiveTimeTable
 from .settings import SearchSettings
 from .single_site import (
@@ -48,7 +49,6 @@ from .single_site import (
     progress_bar,
     search_stretch,
 )
-from .vetoes import check_vetoes
 
 __all__ = ["search_catalogue", "SCAN_SAMPLES"]
 
@@ -187,7 +187,7 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
     Parameters
     ----------
     catalogue : Catalogue
-        One site's strain files (:func:`chirpsift.pipeline.read_catalogue`).
+        One site's strain files (:func:`chirpsift.io.catalogue.read_catalogue`).
     bank : Bank, structured array or mapping
         Template parameters (``m1``, ``m2`` in solar masses, optional aligned spins
         ``chi1``, ``chi2``).
@@ -195,7 +195,7 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         Lower frequency cutoff (Hz).
     vetoes : None, path, or iterable of (float, float), optional
         Time intervals (s) to leave out before anything is filtered: a file
-        (:func:`chirpsift.pipeline.read_vetoes`) or the intervals. A sample is vetoed
+        (:func:`chirpsift.io.vetoes.read_vetoes`) or the intervals. A sample is vetoed
         when its time lies in ``[start, end)``.
     psd : None, str, callable, (freqs, values) or ndarray, optional
         As for :func:`chirpsift.search`.
@@ -249,11 +249,13 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
     --------
     Two abutting files and a third after a gap, with one veto:
 
-    >>> import numpy as np, os, tempfile, warnings
+    >>> import numpy as np, os, warnings
     >>> import chirpsift as cs
-    >>> from chirpsift.pipeline import read_catalogue, search_catalogue
+    >>> from chirpsift.io.catalogue import read_catalogue
+    >>> from chirpsift.pipeline import search_catalogue
     >>> from chirpsift.synthetic import colored_gaussian_noise
-    >>> d, fs = tempfile.mkdtemp(), 256.0
+    >>> d, fs = "site-x-search", 256.0
+    >>> os.makedirs(d, exist_ok=True)
     >>> for i, start in enumerate([2000.0, 2040.0, 2100.0]):
     ...     x = colored_gaussian_noise(int(40 * fs), fs, "gen2-zero-detuned", seed=i, f_low=30.0)
     ...     np.savez(os.path.join(d, f"site-x-{i}.npz"), strain=x, sample_rate=fs, t0=start)

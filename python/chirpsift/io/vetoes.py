@@ -62,7 +62,7 @@ def check_vetoes(vetoes, name: str = "vetoes") -> list[tuple[float, float]]:
 
     Examples
     --------
-    >>> from chirpsift.pipeline import check_vetoes
+    >>> from chirpsift.io.vetoes import check_vetoes
     >>> check_vetoes([(20.0, 30.0), (5.0, 10.0), (9.0, 12.0)])
     [(5.0, 12.0), (20.0, 30.0)]
     """
@@ -135,15 +135,13 @@ def read_vetoes(path) -> list[tuple[float, float]]:
 
     Examples
     --------
-    >>> import os, tempfile
-    >>> from chirpsift.pipeline import read_vetoes
-    >>> d = tempfile.mkdtemp()
-    >>> p = os.path.join(d, "vetoes.txt")
+    >>> from chirpsift.io.vetoes import read_vetoes
+    >>> p = "vetoes.txt"
     >>> with open(p, "w") as fh:
     ...     _ = fh.write("# loud fan at the invented site\n1010 1012.5\n1000 1001  # test tone\n")
     >>> read_vetoes(p)
     [(1000.0, 1001.0), (1010.0, 1012.5)]
-    >>> q = os.path.join(d, "vetoes.toml")
+    >>> q = "vetoes.toml"
     >>> with open(q, "w") as fh:
     ...     _ = fh.write("vetoes = [[1000, 1001], [1010, 1012.5]]\n")
     >>> read_vetoes(q) == read_vetoes(p)

@@ -8,8 +8,10 @@ by :meth:`Span.read`.
 The rules that place files on the time line, in samples of the common sample rate:
 
 - files are ordered by start time, whatever order they are listed in;
-- a file *abuts* the one before it when it starts within :data:`ABUT_TOLERANCE` samples
-  of where that one ends; abutting files form one :class:`Span`, sampled on the grid of
+- a file *abuts* the one before it when it starts within
+  :data:`~chirpsift.io.strain.TIME_STEP_TOLERANCE` (a tenth) of a sample of where that
+  one ends, the rule by which :func:`~chirpsift.io.read_strain` settles a file's times
+  against the caller's; abutting files form one :class:`Span`, sampled on the grid of
   its first file;
 - a later start is a gap (the next span begins), an earlier one an overlap, which is
   an error naming both files; so are sample rates that differ.
@@ -32,13 +34,10 @@ from pathlib import Path
 import numpy as np
 
 from .._validate import positive_scalar, real_scalar
+from .readers import one_line
+from .strain import TIME_STEP_TOLERANCE
 
-__all__ = ["Catalogue", "Span", "StrainFile", "read_catalogue", "ABUT_TOLERANCE", "CATALOGUE_EXTENSIONS"]
-
-#: Largest distance (in samples) between one file's end and the next file's start for
-#: the two to count as one contiguous span: well above the rounding of start times of
-#: order 1e9 s in float64 (about 1e-7 s), well below one sample.
-ABUT_TOLERANCE = 0.1
+__all__ = ["Catalogue", "Span", "StrainFile", "read_catalogue", "CATALOGUE_EXTENSIONS"]
 
 #: Extensions a catalogue reads block by block (case-insensitive).
 CATALOGUE_EXTENSIONS = (".npy", ".npz", ".h5", ".hdf5")
@@ -47,11 +46,6 @@ _TEXT_EXT = (".txt", ".dat", ".csv")
 _GLOB_CHARS = "*?["
 _LOCAL_HEADER = struct.Struct("<IHHHHHIIIHH")  # zip local file header (30 bytes)
 _LOCAL_SIGNATURE = 0x04034B50
-
-
-def _one_line(exc: BaseException) -> str:
-    text = " ".join(str(exc).split()) or type(exc).__name__
-    return text if len(text) <= 200 else text[:197] + "..."
 
 
 @dataclass(frozen=True)
@@ -137,7 +131,7 @@ class StrainFile:
         except (FileNotFoundError, PermissionError):
             raise
         except Exception as exc:  # damaged data the header did not reveal
-            raise ValueError(f"{self.where}: cannot read samples [{start}, {stop}): {_one_line(exc)}") from None
+            raise ValueError(f"{self.where}: cannot read samples [{start}, {stop}): {one_line(exc)}") from None
         if raw.shape != (count,):
             raise ValueError(f"{self.where}: file ends before sample {stop} (its header promised {self.n})")
         return np.asarray(raw, dtype=np.float64)
@@ -148,8 +142,8 @@ class Span:
     """Abutting files read as one uniformly sampled series.
 
     Sample ``k`` of the span is at time ``t0 + k / sample_rate``, on the grid of its
-    first file; each later file starts within :data:`ABUT_TOLERANCE` samples of its
-    place on that grid.
+    first file; each later file starts within
+    :data:`~chirpsift.io.strain.TIME_STEP_TOLERANCE` of a sample of its place on that grid.
 
     Attributes
     ----------
@@ -331,7 +325,7 @@ def _header_npy(path: Path, where: str, rate_name, t0_name):
         try:
             shape, dtype = _npy_header(fh, where)
         except Exception as exc:
-            raise ValueError(f"{where}: cannot read as a .npy strain array: {_one_line(exc)}") from None
+            raise ValueError(f"{where}: cannot read as a .npy strain array: {one_line(exc)}") from None
         offset = fh.tell()
     dtype = _strain_dtype(dtype, shape, where)
     if os.path.getsize(path) < offset + shape[0] * dtype.itemsize:
@@ -367,11 +361,11 @@ def _header_npz(path: Path, where: str, rate_name, t0_name):
     except ValueError as exc:
         if str(exc).startswith(where):
             raise
-        raise ValueError(f"{where}: cannot read as a .npz strain archive: {_one_line(exc)}") from None
+        raise ValueError(f"{where}: cannot read as a .npz strain archive: {one_line(exc)}") from None
     except (FileNotFoundError, PermissionError):
         raise
     except Exception as exc:  # not a zip file, truncated directory, damaged member
-        raise ValueError(f"{where}: cannot read as a .npz strain archive: {_one_line(exc)}") from None
+        raise ValueError(f"{where}: cannot read as a .npz strain archive: {one_line(exc)}") from None
     dtype = _strain_dtype(dtype, shape, where)
     kind, offset, name = layout
     return shape[0], _Layout(kind, dtype, offset, name), stored.get(rate_name), stored.get(t0_name)
@@ -388,7 +382,7 @@ def _header_hdf5(path: Path, where: str, rate_name, t0_name, dataset):
     except (FileNotFoundError, PermissionError):
         raise
     except Exception as exc:
-        raise ValueError(f"{where}: cannot open as an HDF5 file: {_one_line(exc)}") from None
+        raise ValueError(f"{where}: cannot open as an HDF5 file: {one_line(exc)}") from None
     with h5file:
         obj = h5file.get(dataset)
         if not isinstance(obj, h5py.Dataset):
@@ -442,10 +436,10 @@ def _read_header(path: Path, *, dataset, sample_rate, t0, rate_name, t0_name) ->
         raise ValueError(f"{where}: stored sample rate must be a positive finite number of Hz, got {rate!r}")
     if start is not None and not math.isfinite(start):
         raise ValueError(f"{where}: stored start time must be finite, got {start!r}")
-    # the io rule: given and stored values agree within a tenth of a sample over the file
+    # read_strain's rule: given and stored values agree within a tenth of a sample over the file
     rate = _settle(rate, sample_rate, "sample_rate", where,
-                   lambda s, g: abs(max(n - 1, 1) * (1 / g - 1 / s)) <= ABUT_TOLERANCE / s, rate_missing)
-    start = _settle(start, t0, "t0", where, lambda s, g: abs(s - g) <= ABUT_TOLERANCE / rate, t0_missing)
+                   lambda s, g: abs(max(n - 1, 1) * (1 / g - 1 / s)) <= TIME_STEP_TOLERANCE / s, rate_missing)
+    start = _settle(start, t0, "t0", where, lambda s, g: abs(s - g) <= TIME_STEP_TOLERANCE / rate, t0_missing)
     return StrainFile(path=path, where=where, t0=start, n=int(n), sample_rate=rate, layout=layout)
 
 
@@ -570,18 +564,21 @@ def read_catalogue(paths, *, dataset=None, sample_rate=None, t0=None, sample_rat
 
     Notes
     -----
-    Files abut when one starts within :data:`ABUT_TOLERANCE` (0.1) samples of where the
-    previous one ends; a file missing from the middle of a run is simply a gap. Only
-    headers are read: the samples of HDF5 datasets, ``.npy`` files and uncompressed
-    ``.npz`` members are later read from their byte offsets, a block at a time.
+    Files abut when one starts within :data:`~chirpsift.io.strain.TIME_STEP_TOLERANCE`
+    (0.1) of a sample of where the previous one ends: well above the rounding of start
+    times of order 1e9 s in float64 (about 1e-7 s), well below a sample. A file missing
+    from the middle of a run is simply a gap. Only headers are read: the samples of HDF5
+    datasets, ``.npy`` files and uncompressed ``.npz`` members are later read from their
+    byte offsets, a block at a time.
 
     Examples
     --------
     Three files of an invented site, the last one after a 2 s gap, listed in any order:
 
-    >>> import numpy as np, os, tempfile
-    >>> from chirpsift.pipeline import read_catalogue
-    >>> d = tempfile.mkdtemp()
+    >>> import numpy as np, os
+    >>> from chirpsift.io.catalogue import read_catalogue
+    >>> d = "site-x"
+    >>> os.makedirs(d, exist_ok=True)
     >>> for name, start in [("b", 1008.0), ("a", 1000.0), ("c", 1018.0)]:
     ...     np.savez(os.path.join(d, f"site-x-{name}.npz"), strain=np.zeros(8 * 256), sample_rate=256.0, t0=start)
     >>> cat = read_catalogue(os.path.join(d, "site-x-*.npz"))
@@ -607,11 +604,11 @@ def read_catalogue(paths, *, dataset=None, sample_rate=None, t0=None, sample_rat
     for prev, f in zip(found, found[1:]):
         end = t_first + n / fs
         late = (f.t0 - end) * fs  # samples between the span's end and this file's start
-        if late < -ABUT_TOLERANCE:
+        if late < -TIME_STEP_TOLERANCE:
             overlap = min(end, f.end) - f.t0
             raise ValueError(f"{f.where} overlaps {prev.where} by {overlap:g} s (from {f.t0!r} s); "
                              "a catalogue holds each time once")
-        if late <= ABUT_TOLERANCE:
+        if late <= TIME_STEP_TOLERANCE:
             group.append(f)
             offsets.append(n)
             n += f.n
