@@ -402,11 +402,11 @@ def _settle(stored, given, name: str, where: str, agree, missing: str) -> float:
     """One value from the file and the caller: either alone, or both if they agree."""
     if stored is None and given is None:
         raise ValueError(f"{where}: no {name}: {missing}")
-    if stored is None:
-        return given
-    if given is not None and not agree(stored, given):
+    if given is None:
+        return stored
+    if stored is not None and not agree(stored, given):
         raise ValueError(f"{where}: {name}={given!r} given conflicts with {stored!r} stored in the file")
-    return stored
+    return given
 
 
 def _read_header(path: Path, *, dataset, sample_rate, t0, rate_name, t0_name) -> StrainFile:
