@@ -140,11 +140,11 @@ def test_file_problems_are_errors_naming_the_file(tmp_path):
     assert str(text) in str(err.value)
     npy = str(tmp_path / "b.npy")
     np.save(npy, _samples(10, 1))
-    with pytest.raises(ValueError, match=r"b\.npy: no t0"):
+    with pytest.raises(ValueError, match=r"b\.npy: no start time"):
         read_catalogue(npy, sample_rate=FS)
     no_rate = str(tmp_path / "c.npz")
     np.savez(no_rate, strain=_samples(10, 1), t0=T0)
-    with pytest.raises(ValueError, match=r"c\.npz: no sample_rate"):
+    with pytest.raises(ValueError, match=r"c\.npz: no sample rate"):
         read_catalogue(no_rate)
     stored = _npz(tmp_path, "d.npz", _samples(10, 1), T0)
     with pytest.raises(ValueError, match=r"d\.npz: t0=.* conflicts"):

@@ -26,7 +26,8 @@ Units: seconds, Hz; strain is dimensionless.
 
 from ..condition import find_nonfinite_runs  # re-exported: readers keep NaN runs for the search
 from .atomic import atomic_path, write_json_atomic
-from .strain import STRAIN_EXTENSIONS, TIME_STEP_TOLERANCE, StrainSeries, read_strain
+from .metadata import TIME_STEP_TOLERANCE
+from .strain import STRAIN_EXTENSIONS, StrainSeries, read_strain
 from .tables import METADATA_KEY, read_triggers, write_triggers
 
 __all__ = [

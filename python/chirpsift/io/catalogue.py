@@ -9,7 +9,7 @@ The rules that place files on the time line, in samples of the common sample rat
 
 - files are ordered by start time, whatever order they are listed in;
 - a file *abuts* the one before it when it starts within
-  :data:`~chirpsift.io.strain.TIME_STEP_TOLERANCE` (a tenth) of a sample of where that
+  :data:`~chirpsift.io.metadata.TIME_STEP_TOLERANCE` (a tenth) of a sample of where that
   one ends, the rule by which :func:`~chirpsift.io.read_strain` settles a file's times
   against the caller's; abutting files form one :class:`Span`, sampled on the grid of
   its first file;
@@ -35,7 +35,8 @@ import numpy as np
 
 from .._validate import positive_scalar, real_scalar
 from .readers import one_line
-from .strain import TIME_STEP_TOLERANCE
+from .metadata import (TIME_STEP_TOLERANCE, import_h5py, metadata_name, settle_sample_rate, settle_t0,
+                       stored_number)
 
 __all__ = ["Catalogue", "Span", "StrainFile", "read_catalogue", "CATALOGUE_EXTENSIONS"]
 
@@ -125,7 +126,7 @@ class StrainFile:
                     member.seek(lay.offset + start * lay.dtype.itemsize)  # decompresses up to there
                     raw = np.frombuffer(member.read(count * lay.dtype.itemsize), dtype=lay.dtype)
             else:
-                h5py = _import_h5py()
+                h5py = import_h5py()
                 with h5py.File(self.path, "r") as h5file:
                     raw = h5file[lay.name][start:stop]
         except (FileNotFoundError, PermissionError):
@@ -143,7 +144,7 @@ class Span:
 
     Sample ``k`` of the span is at time ``t0 + k / sample_rate``, on the grid of its
     first file; each later file starts within
-    :data:`~chirpsift.io.strain.TIME_STEP_TOLERANCE` of a sample of its place on that grid.
+    :data:`~chirpsift.io.metadata.TIME_STEP_TOLERANCE` of a sample of its place on that grid.
 
     Attributes
     ----------
@@ -279,16 +280,6 @@ class Catalogue:
 # ---------------------------------------------------------------------------
 # headers, one reader per format
 # ---------------------------------------------------------------------------
-def _import_h5py():
-    try:
-        import h5py
-    except ImportError as exc:
-        raise ImportError(
-            "reading HDF5 strain files needs the optional h5py package: pip install chirpsift[hdf5]"
-        ) from exc
-    return h5py
-
-
 def _strain_dtype(dtype: np.dtype, shape, where: str) -> np.dtype:
     if dtype.kind == "c":
         raise ValueError(f"{where}: strain must be real, got complex dtype {dtype}")
@@ -311,13 +302,6 @@ def _npy_header(fh, where: str):
     else:
         raise ValueError(f"unsupported .npy format version {version[0]}.{version[1]}")
     return shape, dtype
-
-
-def _stored_number(value, origin: str, where: str) -> float:
-    arr = np.asarray(value)
-    if arr.size != 1 or arr.dtype.kind not in "iuf":
-        raise ValueError(f"{where}: {origin} must hold one real number, got {value!r}")
-    return float(arr.reshape(()))
 
 
 def _header_npy(path: Path, where: str, rate_name, t0_name):
@@ -347,7 +331,7 @@ def _header_npz(path: Path, where: str, rate_name, t0_name):
             for name in (rate_name, t0_name):
                 if name in members:
                     with archive.open(members[name]) as member:
-                        stored[name] = _stored_number(np.load(member, allow_pickle=False), f"array {name!r}", where)
+                        stored[name] = stored_number(np.load(member, allow_pickle=False), f"array {name!r}", where)
             if info.compress_type == zipfile.ZIP_STORED:
                 with open(path, "rb") as fh:
                     fh.seek(info.header_offset)
@@ -372,7 +356,7 @@ def _header_npz(path: Path, where: str, rate_name, t0_name):
 
 
 def _header_hdf5(path: Path, where: str, rate_name, t0_name, dataset):
-    h5py = _import_h5py()
+    h5py = import_h5py()
     if dataset is None:
         raise ValueError(f"{where}: name the HDF5 dataset holding the strain (dataset=)")
     if not isinstance(dataset, str):
@@ -393,20 +377,9 @@ def _header_hdf5(path: Path, where: str, rate_name, t0_name, dataset):
         dtype = _strain_dtype(obj.dtype, obj.shape, where)
         n = obj.shape[0]
         attrs = dict(obj.attrs)
-    rate = _stored_number(attrs[rate_name], f"attribute {rate_name!r}", where) if rate_name in attrs else None
-    t0 = _stored_number(attrs[t0_name], f"attribute {t0_name!r}", where) if t0_name in attrs else None
+    rate = stored_number(attrs[rate_name], f"attribute {rate_name!r}", where) if rate_name in attrs else None
+    t0 = stored_number(attrs[t0_name], f"attribute {t0_name!r}", where) if t0_name in attrs else None
     return n, _Layout("hdf5", dtype, 0, dataset), rate, t0, where
-
-
-def _settle(stored, given, name: str, where: str, agree, missing: str) -> float:
-    """One value from the file and the caller: either alone, or both if they agree."""
-    if stored is None and given is None:
-        raise ValueError(f"{where}: no {name}: {missing}")
-    if given is None:
-        return stored
-    if stored is not None and not agree(stored, given):
-        raise ValueError(f"{where}: {name}={given!r} given conflicts with {stored!r} stored in the file")
-    return given
 
 
 def _read_header(path: Path, *, dataset, sample_rate, t0, rate_name, t0_name) -> StrainFile:
@@ -424,22 +397,22 @@ def _read_header(path: Path, *, dataset, sample_rate, t0, rate_name, t0_name) ->
         n, layout, rate, start = _header_npy(path, where, rate_name, t0_name)
         rate_missing, t0_missing = "a .npy file holds only samples: pass sample_rate", \
             "a .npy file holds only samples: pass t0 (a mapping from file to start time)"
+        holder = "array"
     elif ext == ".npz":
         n, layout, rate, start = _header_npz(path, where, rate_name, t0_name)
         rate_missing = f"the archive has no array {rate_name!r}: store one or pass sample_rate"
         t0_missing = f"the archive has no array {t0_name!r}: store one or pass t0"
+        holder = "array"
     else:
         n, layout, rate, start, where = _header_hdf5(path, where, rate_name, t0_name, dataset)
         rate_missing = f"the dataset has no attribute {rate_name!r}: store one or pass sample_rate"
         t0_missing = f"the dataset has no attribute {t0_name!r}: store one or pass t0"
-    if rate is not None and not (math.isfinite(rate) and rate > 0):
-        raise ValueError(f"{where}: stored sample rate must be a positive finite number of Hz, got {rate!r}")
+        holder = "attribute"
     if start is not None and not math.isfinite(start):
         raise ValueError(f"{where}: stored start time must be finite, got {start!r}")
-    # read_strain's rule: given and stored values agree within a tenth of a sample over the file
-    rate = _settle(rate, sample_rate, "sample_rate", where,
-                   lambda s, g: abs(max(n - 1, 1) * (1 / g - 1 / s)) <= TIME_STEP_TOLERANCE / s, rate_missing)
-    start = _settle(start, t0, "t0", where, lambda s, g: abs(s - g) <= TIME_STEP_TOLERANCE / rate, t0_missing)
+    rate = settle_sample_rate(rate, sample_rate, n, where=where, origin=f"{holder} {rate_name!r}",
+                              missing=rate_missing)
+    start = settle_t0(start, t0, rate, where=where, origin=f"{holder} {t0_name!r}", missing=t0_missing)
     return StrainFile(path=path, where=where, t0=start, n=int(n), sample_rate=rate, layout=layout)
 
 
@@ -503,12 +476,6 @@ def _start_times(t0, paths: list[Path], patterned: bool) -> list[float | None]:
     return [real_scalar("t0", t0)]
 
 
-def _name_option(name: str, value) -> str:
-    if not isinstance(value, str) or not value:
-        raise TypeError(f"{name} must be a non-empty string, got {value!r}")
-    return value
-
-
 def read_catalogue(paths, *, dataset=None, sample_rate=None, t0=None, sample_rate_attr="sample_rate",
                    t0_attr="t0") -> Catalogue:
     """List one site's strain files and place them on one time line, reading headers only.
@@ -564,7 +531,7 @@ def read_catalogue(paths, *, dataset=None, sample_rate=None, t0=None, sample_rat
 
     Notes
     -----
-    Files abut when one starts within :data:`~chirpsift.io.strain.TIME_STEP_TOLERANCE`
+    Files abut when one starts within :data:`~chirpsift.io.metadata.TIME_STEP_TOLERANCE`
     (0.1) of a sample of where the previous one ends: well above the rounding of start
     times of order 1e9 s in float64 (about 1e-7 s), well below a sample. A file missing
     from the middle of a run is simply a gap. Only headers are read: the samples of HDF5
@@ -588,8 +555,8 @@ def read_catalogue(paths, *, dataset=None, sample_rate=None, t0=None, sample_rat
     ([(1016.0, 1018.0)], 24.0)
     """
     files, patterned = _expand(paths)
-    rate_name = _name_option("sample_rate_attr", sample_rate_attr)
-    t0_name = _name_option("t0_attr", t0_attr)
+    rate_name = metadata_name("sample_rate_attr", sample_rate_attr)
+    t0_name = metadata_name("t0_attr", t0_attr)
     rate_given = None if sample_rate is None else positive_scalar("sample_rate", sample_rate)
     starts = _start_times(t0, files, patterned)
     found = [_read_header(p, dataset=dataset, sample_rate=rate_given, t0=s, rate_name=rate_name, t0_name=t0_name)

@@ -29,13 +29,12 @@ from pathlib import Path
 import numpy as np
 
 from .._validate import positive_scalar, real_scalar
+from .metadata import (TIME_STEP_TOLERANCE, import_h5py, metadata_name, settle_sample_rate, settle_t0,
+                       stored_number)
 from .readers import load_npy, load_npz, one_line
 
 __all__ = ["StrainSeries", "read_strain", "TIME_STEP_TOLERANCE", "STRAIN_EXTENSIONS"]
 
-#: Largest disagreement, as a fraction of one sampling step, between a time a file implies
-#: and the time a uniform series puts a sample at (see :func:`read_strain`).
-TIME_STEP_TOLERANCE = 0.1
 
 _NUMPY_EXT = (".npy",)
 _NPZ_EXT = (".npz",)
@@ -101,16 +100,6 @@ class _InFile:
 # ---------------------------------------------------------------------------
 # values read from files
 # ---------------------------------------------------------------------------
-def _stored_number(value, origin: str, where: str) -> float:
-    """One real number stored in a file (a scalar or a single-element array), as a float."""
-    arr = np.asarray(value)
-    if arr.size != 1 or arr.dtype.kind not in "iuf":
-        shown = repr(value)
-        shown = shown if len(shown) <= 60 else shown[:57] + "..."
-        raise ValueError(f"{where}: {origin} must hold one real number, got {shown}")
-    return float(arr.reshape(()))
-
-
 def _check_samples(data, where: str) -> np.ndarray:
     """Return a file's strain samples as a fresh float64 1-D array, or raise ValueError naming the file."""
     arr = np.asarray(data)
@@ -154,8 +143,8 @@ def _read_npz(path: Path, rate_name: str, t0_name: str) -> _InFile:
     return _InFile(
         data=arrays["strain"],
         where=where,
-        sample_rate=_stored_number(arrays[rate_name], rate_origin, where) if rate_name in arrays else None,
-        t0=_stored_number(arrays[t0_name], t0_origin, where) if t0_name in arrays else None,
+        sample_rate=stored_number(arrays[rate_name], rate_origin, where) if rate_name in arrays else None,
+        t0=stored_number(arrays[t0_name], t0_origin, where) if t0_name in arrays else None,
         rate_origin=rate_origin,
         t0_origin=t0_origin,
         rate_missing=f"the archive has no array {rate_name!r} (it holds {members}); "
@@ -163,16 +152,6 @@ def _read_npz(path: Path, rate_name: str, t0_name: str) -> _InFile:
         t0_missing=f"the archive has no array {t0_name!r} (it holds {members}); "
         + _supply("t0", "--t0", "t0_attr", "--t0-attr", "array"),
     )
-
-
-def _import_h5py():
-    try:
-        import h5py
-    except ImportError as exc:
-        raise ImportError(
-            "reading HDF5 strain files needs the optional h5py package: pip install chirpsift[hdf5]"
-        ) from exc
-    return h5py
 
 
 def _hdf5_datasets(h5file) -> list[str]:
@@ -187,7 +166,7 @@ def _hdf5_datasets(h5file) -> list[str]:
 
 
 def _read_hdf5(path: Path, dataset, rate_name: str, t0_name: str) -> _InFile:
-    h5py = _import_h5py()
+    h5py = import_h5py()
     where = str(path)
     if dataset is not None and not isinstance(dataset, str):
         raise TypeError(f"{where}: dataset must be a string, got {dataset!r}")
@@ -222,8 +201,8 @@ def _read_hdf5(path: Path, dataset, rate_name: str, t0_name: str) -> _InFile:
     return _InFile(
         data=data,
         where=where,
-        sample_rate=_stored_number(attrs[rate_name], rate_origin, where) if rate_name in attrs else None,
-        t0=_stored_number(attrs[t0_name], t0_origin, where) if t0_name in attrs else None,
+        sample_rate=stored_number(attrs[rate_name], rate_origin, where) if rate_name in attrs else None,
+        t0=stored_number(attrs[t0_name], t0_origin, where) if t0_name in attrs else None,
         rate_origin=rate_origin,
         t0_origin=t0_origin,
         rate_missing=f"the dataset has no attribute {rate_name!r} (attributes: {listed}); "
@@ -309,47 +288,6 @@ def _read_text(path: Path, rate_name: str, t0_name: str) -> _InFile:
 # ---------------------------------------------------------------------------
 # settling the file's values against the caller's
 # ---------------------------------------------------------------------------
-def _settle_rate(found: _InFile, given: float | None, n: int) -> float:
-    if found.sample_rate is None:
-        if given is None:
-            raise ValueError(f"{found.where}: no sample rate: {found.rate_missing}")
-        return given
-    stored = positive_scalar(found.rate_origin, found.sample_rate, where=found.where)
-    if given is None:
-        return stored
-    steps = max(n - 1, 1)
-    if abs(steps / given - steps / stored) > TIME_STEP_TOLERANCE / stored:
-        raise ValueError(
-            f"{found.where}: sample_rate={given!r} Hz (the sample_rate argument, --sample-rate) conflicts with "
-            f"{stored!r} Hz from the file's {found.rate_origin}; leave it out to use the file's value"
-        )
-    return given
-
-
-def _settle_t0(found: _InFile, given: float | None, sample_rate: float) -> float:
-    if found.t0 is None:
-        if given is not None:
-            return given
-        if found.t0_missing is None:
-            return 0.0
-        raise ValueError(f"{found.where}: no start time: {found.t0_missing}")
-    stored = real_scalar(found.t0_origin, found.t0, where=found.where)
-    if given is None:
-        return stored
-    if abs(given - stored) > TIME_STEP_TOLERANCE / sample_rate:
-        raise ValueError(
-            f"{found.where}: t0={given!r} s (the t0 argument, --t0) conflicts with {stored!r} s from the "
-            f"file's {found.t0_origin}; leave it out to use the file's value"
-        )
-    return given
-
-
-def _metadata_name(name: str, value) -> str:
-    if not isinstance(value, str) or not value:
-        raise TypeError(f"{name} must be a non-empty string, got {value!r}")
-    return value
-
-
 def read_strain(
     path,
     *,
@@ -464,8 +402,8 @@ def read_strain(
         sample_rate = positive_scalar("sample_rate", sample_rate, where=str(path))
     if t0 is not None:
         t0 = real_scalar("t0", t0, where=str(path))
-    rate_name = _metadata_name("sample_rate_attr", sample_rate_attr)
-    t0_name = _metadata_name("t0_attr", t0_attr)
+    rate_name = metadata_name("sample_rate_attr", sample_rate_attr)
+    t0_name = metadata_name("t0_attr", t0_attr)
     if dataset is not None and ext not in _HDF5_EXT:
         raise ValueError(f"{path}: dataset={dataset!r} applies to HDF5 files only (extension {ext!r})")
     if ext in _NUMPY_EXT + _TEXT_EXT:
@@ -487,6 +425,7 @@ def read_strain(
             f"{path}: unknown strain file extension {ext or '(none)'!r}; supported: {', '.join(STRAIN_EXTENSIONS)}"
         )
     data = _check_samples(found.data, found.where)
-    rate = _settle_rate(found, sample_rate, data.size)
-    start = _settle_t0(found, t0, rate)
+    rate = settle_sample_rate(found.sample_rate, sample_rate, data.size, where=found.where,
+                              origin=found.rate_origin, missing=found.rate_missing)
+    start = settle_t0(found.t0, t0, rate, where=found.where, origin=found.t0_origin, missing=found.t0_missing)
     return StrainSeries(data=data, sample_rate=rate, t0=start, source=found.where)
