@@ -3,19 +3,20 @@ prints its table. Nothing here times anything: speed is measured in ``bench/`` a
 ``chirpsift bench``, never asserted in tests."""
 
 import json
-
-import numpy as np
-import pytest
+import re
+import statistics
+from pathlib import Path
 
 import chirpsift
+import numpy as np
+import pytest
 from chirpsift import benchmarks
+from chirpsift.benchmarks.suite import SCALING_NOTE, scaling_summary
+from chirpsift.cli.bench import QUICK_SECONDS
 from chirpsift.synthetic import colored_gaussian_noise
 
 TINY = 0.004  # smoke-test scale: a few templates, shortened data
-
-
-def _mchirp(bank):
-    return (bank.m1 * bank.m2) ** 0.6 / (bank.m1 + bank.m2) ** 0.2
+ROOT = Path(__file__).resolve().parents[1]
 
 
 def test_w1_full_size_bank_and_data_shape():
@@ -30,10 +31,11 @@ def test_w1_full_size_bank_and_data_shape():
     assert np.all(b.m1 >= b.m2)
     assert np.all(b.chi1 == 0) and np.all(b.chi2 == 0)
     # uniform in chirp mass, end to end over the range the component bounds allow
-    mc = _mchirp(b)
+    mc = b.mchirp
     assert np.allclose(np.diff(mc), np.diff(mc)[0], rtol=1e-9)
-    assert mc[0] == pytest.approx(_mchirp(chirpsift.Bank(1.2, 1.2))[0])
-    assert mc[-1] == pytest.approx(_mchirp(chirpsift.Bank(2.0, 2.0))[0])
+    # chirp mass of equal masses m: m 2^(-1/5) (from Mc = (m1 m2)^(3/5) / M^(1/5))
+    assert mc[0] == pytest.approx(1.2 * 2**-0.2)
+    assert mc[-1] == pytest.approx(2.0 * 2**-0.2)
 
 
 def test_w2_spans_total_mass_2_to_40():
@@ -111,16 +113,50 @@ def test_banks_are_deterministic_and_checked():
         benchmarks.workload("W1", 0.0)
 
 
+def test_workload_settings_are_the_search_defaults():
+    w = benchmarks.workload("W1", TINY)
+    assert w.settings == chirpsift.SearchSettings(f_low=20.0, segment_duration=w.segment_duration)
+    kw = w.filter_kwargs()
+    assert kw["min_snr"] == chirpsift.SearchSettings.min_snr and kw["chi2_bands"] == chirpsift.SearchSettings.chi2_bands
+    assert kw["cluster_samples"] == round(chirpsift.SearchSettings.peak_window * w.sample_rate)
+
+
+def test_scaling_is_judged_on_the_median():
+    # the seven 2-thread ratios of one shared 2-core machine quoted in the README
+    ratios = [1.51, 1.61, 1.72, 1.82, 1.83, 1.84, 1.89]
+    s = scaling_summary(ratios, threads=2)
+    assert s["median"] == np.median(ratios) == 1.82
+    assert (s["low"], s["high"], s["target"]) == (1.51, 1.89, 1.8)
+    assert s["met"] is True  # although the slowest single run missed the target
+    assert scaling_summary([1.5, 1.7, 1.95], threads=2)["met"] is False
+    assert scaling_summary([3.5], threads=4)["met"] is False
+    with pytest.raises(ValueError, match="at least one"):
+        scaling_summary([], threads=2)
+
+
 def test_main_quick_tiny_prints_every_measurement(tmp_path, capsys):
     out = tmp_path / "bench.json"
     before = chirpsift.get_threads()
-    rc = benchmarks.main(["--quick", "--scale", str(TINY), "--threads", "2", "--repeats", "1", "--quiet",
-                          "--json", str(out)])
+    rc = benchmarks.main(["--quick", "--scale", str(TINY), "--threads", "2", "--repeats", "1",
+                          "--scaling-runs", "3", "--quiet", "--json", str(out)])
     assert rc == 0
     table = capsys.readouterr().out
     doc = json.loads(out.read_text())
-    keys = {m["key"] for m in doc["measurements"]}
-    assert {"a", "b", "c", "d", "e", "e2", "f", "g", "g1", "g2"} <= keys
+    keys = [m["key"] for m in doc["measurements"]]
+    assert len(keys) == len(set(keys))  # unique
+    assert {"yardstick_ifft_ms", "w1_fused_per_ifft", "w2_over_w1_per_template", "w1_speedup_over_reference",
+            "w1_thread_scaling", "w1_thread_scaling_range", "w1_identical_across_threads",
+            "w1_generation_in_kernel_per_fused", "w3_peak_rss_ratio", "w3_peak_rss_small_mib",
+            "w3_peak_rss_full_mib"} <= set(keys)
+    by_key = {m["key"]: m for m in doc["measurements"]}
+    # the scaling row is the median of the paired runs, its verdict the median's
+    ratios = doc["context"]["thread_scaling_ratios"]
+    assert len(ratios) == 3
+    scaling = by_key["w1_thread_scaling"]
+    assert scaling["value"] == pytest.approx(statistics.median(ratios), rel=1e-3)
+    assert scaling["met"] == (statistics.median(ratios) >= 1.8)
+    assert by_key["w1_thread_scaling_range"]["value"] == f"{min(ratios):.3g} - {max(ratios):.3g}"
+    assert SCALING_NOTE in table and "README" in SCALING_NOTE
     lines = table.splitlines()
     assert lines[0] == "| measurement | value | target | met |"
     for m in doc["measurements"]:
@@ -129,10 +165,12 @@ def test_main_quick_tiny_prints_every_measurement(tmp_path, capsys):
         assert label in table
     assert doc["context"]["threads"] == 2 and doc["context"]["scale"] == TINY
     assert doc["context"]["cpu"]
-    # every ratio is a finite positive number; a targeted row says whether it is met
+    # every ratio is a finite positive number (the range row: two of them); a targeted
+    # row says whether it is met
     for m in doc["measurements"]:
         if m["unit"] == "x" and m["value"] is not None:
-            assert np.isfinite(m["value"]) and m["value"] > 0
+            values = [float(v) for v in m["value"].split(" - ")] if isinstance(m["value"], str) else [m["value"]]
+            assert all(np.isfinite(v) and v > 0 for v in values), m
         if m["target"]:
             assert isinstance(m["met"], bool)
     assert chirpsift.get_threads() == before  # restored
@@ -142,9 +180,22 @@ def test_main_rejects_bad_arguments(capsys):
     assert benchmarks.main(["--workloads", "W1,W9"]) == 2
     assert "W9" in capsys.readouterr().err
     assert benchmarks.main(["--scale", "-1"]) == 2
+    assert "--scale" in capsys.readouterr().err
+    assert benchmarks.main(["--threads", "0"]) == 2
     assert benchmarks.main(["--no-such-option"]) == 2
     assert benchmarks.main(["--help"]) == 0
     assert "--workloads" in capsys.readouterr().out
+
+
+def test_quick_time_in_help_matches_the_docs(capsys):
+    # one measured figure for `--quick`, the same in the help, the README and the guide
+    assert benchmarks.main(["--help"]) == 0
+    help_text = " ".join(capsys.readouterr().out.split())
+    assert f"about {QUICK_SECONDS} s" in help_text
+    for doc in ("README.md", "DEVELOPERS.md"):
+        text = " ".join((ROOT / doc).read_text(encoding="utf-8").split())
+        quoted = {int(x) for x in re.findall(r"--quick.{0,80}?about (\d+) s", text)}
+        assert quoted == {QUICK_SECONDS}, doc
 
 
 def test_cli_forwards_to_benchmarks(capsys):
@@ -155,8 +206,8 @@ def test_cli_forwards_to_benchmarks(capsys):
 
 
 def test_table_marks_rows_not_measured():
-    rows = [benchmarks.Measurement("e", "thread scaling", None, "x"),
-            benchmarks.Measurement("b", "ratio", 0.5, "x", "<= 1.3", True)]
+    rows = [benchmarks.Measurement("w1_thread_scaling", "thread scaling", None, "x"),
+            benchmarks.Measurement("w1_fused_per_ifft", "ratio", 0.5, "x", "<= 1.3", True)]
     text = benchmarks.format_table(rows, {"cpu": "test cpu", "workloads": {}})
     assert "| thread scaling | not measured | n/a |  |" in text
     assert "| ratio | 0.5 x | <= 1.3 | yes |" in text

@@ -10,18 +10,28 @@ error, as argparse itself uses).
 import json
 import math
 import os
-import sys
+import re
+from pathlib import Path
 
+import chirpsift
 import numpy as np
 import pytest
-
 from chirpsift.bank import Bank
 from chirpsift.cli import main
-from chirpsift.config import load_config, merge_settings
+from chirpsift.config import TABLES, keys_table, load_config, merge_settings
+from chirpsift.pipeline import SEARCH_OPTIONS, SearchSettings
+from chirpsift.triggers import TRIGGER_DTYPE
 
-chirpsift = pytest.importorskip("chirpsift")
-HAVE_SEARCH = callable(getattr(chirpsift, "search", None))
-needs_search = pytest.mark.skipif(not HAVE_SEARCH, reason="chirpsift.search is not available")
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _help(capsys, *argv) -> str:
+    assert main([*argv, "--help"]) == 0
+    return capsys.readouterr().out
+
+
+def _flags(help_text: str) -> set:
+    return set(re.findall(r"(?<![\w-])--[a-z0-9][a-z0-9-]*", help_text))
 
 
 # ---------------------------------------------------------------------------
@@ -32,10 +42,11 @@ def test_config_maps_keys_and_resolves_paths(tmp_path):
     p.write_text(
         """
 [input]
-strain = "data/site_a.npz"
+strain = "data/site_a.h5"
+dataset = "strain"
+sample-rate-attr = "rate"
+t0-attr = "start"
 bank = "/abs/bank.parquet"
-sample-rate = 1024
-t0 = 12.5
 
 [search]
 f-low = 30
@@ -46,14 +57,20 @@ chi2-bands = 8
 gate-threshold = 40.0
 welch-duration = 2.0
 bank-cluster = true
+
+[run]
+threads = 2
+output = "out/t.parquet"
+progress = false
 """
     )
     cfg = load_config(p)
     assert cfg.input == {
-        "strain": str(tmp_path / "data" / "site_a.npz"),
+        "strain": str(tmp_path / "data" / "site_a.h5"),
+        "dataset": "strain",
+        "sample_rate_attr": "rate",
+        "t0_attr": "start",
         "bank": "/abs/bank.parquet",
-        "sample_rate": 1024.0,
-        "t0": 12.5,
     }
     assert cfg.search == {
         "f_low": 30.0,
@@ -65,17 +82,22 @@ bank-cluster = true
         "welch_duration": 2.0,
         "bank_cluster": True,
     }
+    assert cfg.run == {"threads": 2, "output": str(tmp_path / "out" / "t.parquet"), "progress": False}
 
 
-def test_config_unknown_key_lists_allowed(tmp_path):
+def test_config_unknown_key_names_the_nearest_valid_key(tmp_path):
     p = tmp_path / "run.toml"
     p.write_text("[search]\nflow = 20\n")
-    with pytest.raises(ValueError, match=r"unknown key\(s\) \['flow'\] in \[search\]") as e:
+    with pytest.raises(ValueError, match=r"\[search\]: unknown key 'flow'; did you mean 'f-low'\?"):
         load_config(p)
-    for key in ("f-low", "segment-duration", "min-snr", "bank-cluster"):
-        assert key in str(e.value)
+    p.write_text("[run]\nthread = 2\n")
+    with pytest.raises(ValueError, match=r"\[run\]: unknown key 'thread'; did you mean 'threads'\?"):
+        load_config(p)
     p.write_text("[output]\nx = 1\n")
-    with pytest.raises(ValueError, match="allowed tables"):
+    with pytest.raises(ValueError, match="unknown table or top-level key 'output'"):
+        load_config(p)
+    p.write_text("f-low = 20\n")
+    with pytest.raises(ValueError, match=r"put it under \[search\]"):
         load_config(p)
 
 
@@ -83,17 +105,24 @@ def test_config_unknown_key_lists_allowed(tmp_path):
     "body, pattern",
     [
         ("[search]\nf-low = -3\n", "f-low must be positive"),
-        ("[search]\nchi2-bands = 2.5\n", "chi2-bands must be a positive integer"),
-        ("[search]\nbank-cluster = 1\n", "bank-cluster must be true or false"),
-        ("[search]\nmin-snr = 'high'\n", "min-snr must be a number"),
+        ("[search]\nchi2-bands = 2.5\n", "chi2-bands must be an integer"),
+        ("[search]\nchi2-bands = 1\n", "chi2-bands must be at least 2"),
+        ("[search]\nbank-cluster = 1\n", "bank-cluster must be True or False"),
+        ("[search]\nmin-snr = 'high'\n", "min-snr must be a real number"),
+        ("[search]\nwelch-duration = 8\nsegment-duration = 4\n",
+         "welch-duration=8.0 s is longer than segment-duration"),
+        ("[search]\nf-low = 20\nf_low = 30\n", "given twice"),
         ("[input]\nstrain = 3\n", "strain must be a non-empty string"),
+        ("[input]\nsample-rate = -1\n", r"\[input\] sample-rate must be positive"),
+        ("[run]\nthreads = 0\n", r"\[run\] threads must be at least 1"),
+        ("[run]\nprogress = 'no'\n", r"\[run\] progress must be true or false"),
         ("[search\n", "invalid TOML"),
     ],
 )
 def test_config_bad_values(tmp_path, body, pattern):
     p = tmp_path / "run.toml"
     p.write_text(body)
-    with pytest.raises(ValueError, match=pattern):
+    with pytest.raises((ValueError, TypeError), match=pattern):
         load_config(p)
 
 
@@ -107,23 +136,71 @@ def test_merge_cli_overrides_file():
     assert merged == {"f_low": 30.0, "chi2_bands": 16, "x": 1}
 
 
+def test_config_search_table_has_exactly_the_search_options():
+    assert [o.key for o in TABLES["search"]] == [o.key for o in SEARCH_OPTIONS]
+
+
+def test_every_search_flag_has_a_config_key_and_back(capsys):
+    flags = _flags(_help(capsys, "search"))
+    keys = {f"--{entry.key}" for table in TABLES.values() for entry in table}
+    switches = {f"--no-{entry.key}" for table in TABLES.values() for entry in table if entry.kind == "switch"}
+    assert flags == keys | switches | {"--help", "--config"}
+    for name in ("threads", "output", "summary", "progress"):  # the ones the README once promised
+        assert name in {entry.key for entry in TABLES["run"]}
+
+
+def test_readme_keys_table_matches_the_code():
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    assert keys_table() in readme, "regenerate the README table with chirpsift.config.keys_table()"
+
+
 # ---------------------------------------------------------------------------
-# command line: usage and input errors (no search needed)
+# command line: help and usage errors (no search needed)
 # ---------------------------------------------------------------------------
 def test_help_exits_zero(capsys):
-    assert main(["--help"]) == 0
-    assert "search" in capsys.readouterr().out
-    assert main(["search", "--help"]) == 0
-    assert "--strain" in capsys.readouterr().out
+    assert "search" in _help(capsys)
+    assert "--strain" in _help(capsys, "search")
+
+
+def test_help_shows_defaults_units_and_meanings(capsys):
+    text = " ".join(_help(capsys, "search").split("options:", 1)[1].split())  # past the usage lines
+    assert "--peak-window S half-width of the clustering window" in text
+    assert "(default: 1.0 s)" in text and "(default: 5.5)" in text and "(default: 16)" in text
+    assert "--f-low HZ" in text and "--welch-duration S" in text
+    assert re.search(r"--gate-threshold X whitened amplitude \(in units of the noise standard deviation\)", text)
+    # every search option's default appears beside its flag
+    for option in SEARCH_OPTIONS:
+        default = getattr(SearchSettings, option.name, None)
+        if default is not None and not isinstance(default, bool):
+            segment = text.split(f"--{option.key} ", 1)[1].split(" --", 1)[0]
+            assert f"(default: {default}" in segment, option.key
 
 
 def test_no_command_is_usage_error(capsys):
     assert main([]) == 2
 
 
-def test_bad_flag_value_is_usage_error(capsys):
+def test_bad_flag_value_names_the_flag_and_value(capsys):
     assert main(["search", "--f-low", "-5"]) == 2
-    assert "positive" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "--f-low" in err and "'-5'" in err and "> 0" in err
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+def test_misspelt_flag_suggests_the_nearest(capsys):
+    assert main(["search", "--peak-windw", "1"]) == 2
+    err = capsys.readouterr().err
+    assert "did you mean --peak-window?" in err and len(err.strip().splitlines()) == 1
+
+
+def test_settings_errors_name_flags_not_python_keywords(capsys):
+    assert main(["search", "--strain", "s.npz", "--bank", "b.npz", "--f-low", "20", "--welch-duration", "8",
+                 "--segment-duration", "4"]) == 2
+    err = capsys.readouterr().err
+    assert "--welch-duration=8.0 s is longer than --segment-duration=4.0 s" in err
+    assert "welch_duration" not in err
+    assert main(["search", "--strain", "s.npz", "--bank", "b.npz", "--f-low", "20", "--phase-order", "9"]) == 2
+    assert "--phase-order must be at most 7" in capsys.readouterr().err
 
 
 def test_missing_strain_file_reports_without_traceback(tmp_path, capsys):
@@ -156,38 +233,109 @@ def test_bad_sample_rate_in_file_is_input_error(tmp_path, capsys):
     np.savez(s, strain=np.zeros(64), sample_rate=-1.0)
     b = tmp_path / "b.npz"
     Bank.mass_grid(5.0, 6.0, 2).save(b)
-    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30", "--output", str(tmp_path / "t.parquet")])
+    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30",
+               "--output", str(tmp_path / "t.parquet")])
     err = capsys.readouterr().err
     assert rc == 2 and "sample_rate" in err and "s.npz" in err
     assert not (tmp_path / "t.parquet").exists()
 
 
-def test_bench_hook_without_module(monkeypatch, capsys):
-    import importlib
-
-    real = importlib.import_module
-
-    def fake(name, *a, **k):
-        if name == "chirpsift.benchmarks":
-            raise ModuleNotFoundError("No module named 'chirpsift.benchmarks'", name="chirpsift.benchmarks")
-        return real(name, *a, **k)
-
-    monkeypatch.setattr(importlib, "import_module", fake)
-    assert main(["bench", "--quick"]) == 2
-    assert "chirpsift.benchmarks" in capsys.readouterr().err
+@pytest.mark.parametrize("flag", ["--strain", "--bank", "--config", "--output"])
+def test_single_file_options_given_twice_are_refused(tmp_path, capsys, flag):
+    # with the last value silently winning, "--strain a --strain b" searched only b
+    given = {"--strain": "a.npz", "--bank": "b.npz", "--f-low": "30"}
+    argv = ["search", *[x for f, v in given.items() if f != flag for x in (f, v)], flag, "x1", flag, "x2"]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert f"argument {flag}: given twice ('x1' and 'x2')" in err
 
 
-def test_bench_hook_forwards_arguments(monkeypatch):
-    import types
+# ---------------------------------------------------------------------------
+# outputs never overwrite inputs, and carry the extension of what they hold
+# ---------------------------------------------------------------------------
+@pytest.fixture
+def inputs(tmp_path):
+    s = tmp_path / "site_c.npz"
+    np.savez(s, strain=np.random.default_rng(2).normal(size=8192), sample_rate=256.0, t0=0.0)
+    b = tmp_path / "bank.parquet"
+    Bank.mass_grid(5.0, 6.0, 2).save(b)
+    c = tmp_path / "run.toml"
+    c.write_text("[search]\nf-low = 30\n")
+    return {"strain": s, "bank": b, "config": c}
 
-    seen = {}
-    mod = types.ModuleType("chirpsift.benchmarks")
-    mod.main = lambda args: seen.setdefault("args", args) and 0
-    monkeypatch.setitem(sys.modules, "chirpsift.benchmarks", mod)
-    assert main(["bench", "--quick", "-n", "3"]) == 0
-    assert seen["args"] == ["--quick", "-n", "3"]
+
+def _refused(capsys, inputs, extra, flag, value):
+    before = {k: p.read_bytes() for k, p in inputs.items()}
+    argv = ["search", "--strain", str(inputs["strain"]), "--bank", str(inputs["bank"]), "--config",
+            str(inputs["config"]), "--no-progress", *extra]
+    rc = main(argv)
+    err = capsys.readouterr().err
+    assert rc == 2, err
+    assert err.startswith(f"chirpsift: error: {flag} {str(value)!r}") and len(err.strip().splitlines()) == 1
+    assert {k: p.read_bytes() for k, p in inputs.items()} == before  # nothing overwritten
 
 
+def test_output_over_the_bank_is_refused(inputs, capsys):
+    _refused(capsys, inputs, ["--output", str(inputs["bank"])], "--output", inputs["bank"])
+
+
+def test_summary_over_an_input_is_refused(inputs, tmp_path, capsys):
+    link = tmp_path / "s.json"
+    os.link(inputs["config"], link)  # a hard link: another name, the same file
+    _refused(capsys, inputs, ["--output", str(tmp_path / "t.parquet"), "--summary", str(link)], "--summary", link)
+
+
+def test_output_through_a_symbolic_link_to_an_input_is_refused(inputs, tmp_path, capsys):
+    link = tmp_path / "t.parquet"
+    link.symlink_to(inputs["bank"])
+    _refused(capsys, inputs, ["--output", str(link)], "--output", link)
+
+
+@pytest.mark.parametrize("flag, value", [("--output", "t.csv"), ("--output", "t.npz"), ("--summary", "s.txt")])
+def test_output_extension_must_match_what_is_written(inputs, tmp_path, capsys, flag, value):
+    target = tmp_path / value
+    extra = ["--output", str(tmp_path / "t.parquet")] if flag == "--summary" else []
+    _refused(capsys, inputs, [*extra, flag, str(target)], flag, target)
+    assert not target.exists()
+
+
+def test_strain_file_as_output_is_refused_by_extension_and_identity(inputs, tmp_path, capsys):
+    strain_pq = tmp_path / "strain_copy.parquet"
+    os.link(inputs["strain"], strain_pq)
+    inputs = {**inputs, "strain": strain_pq}
+    _refused(capsys, inputs, ["--output", str(strain_pq)], "--output", strain_pq)
+
+
+def test_bench_json_extension_is_checked(tmp_path, capsys):
+    assert main(["bench", "--json", str(tmp_path / "out.txt"), "--workloads", "W1", "--quiet"]) == 2
+    assert "--json" in capsys.readouterr().err
+
+
+# ---------------------------------------------------------------------------
+# HDF5 attribute names from the command line
+# ---------------------------------------------------------------------------
+def test_hdf5_attribute_flags_need_a_dataset(inputs, capsys):
+    rc = main(["search", "--strain", str(inputs["strain"]), "--bank", str(inputs["bank"]), "--f-low", "30",
+               "--t0-attr", "start", "--output", str(inputs["strain"].with_name("t.parquet"))])
+    assert rc == 2 and "--t0-attr" in capsys.readouterr().err
+
+
+def test_hdf5_missing_attribute_message_points_to_flags(tmp_path, capsys):
+    h5py = pytest.importorskip("h5py")
+    p = tmp_path / "site_d.h5"
+    with h5py.File(p, "w") as f:
+        f.create_dataset("strain", data=np.zeros(4096)).attrs["start"] = 10.0
+    b = tmp_path / "bank.npz"
+    Bank.mass_grid(5.0, 6.0, 2).save(b)
+    rc = main(["search", "--strain", str(p), "--dataset", "strain", "--bank", str(b), "--f-low", "30",
+               "--output", str(tmp_path / "t.parquet")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "--sample-rate-attr" in err and "sample_rate_attr" not in err
+
+
+# ---------------------------------------------------------------------------
+# failures and screen wording, with the search replaced
+# ---------------------------------------------------------------------------
 def test_unexpected_failure_exits_one(tmp_path, monkeypatch, capsys):
     s = tmp_path / "s.npz"
     np.savez(s, strain=np.zeros(1024), sample_rate=64.0, t0=0.0)
@@ -198,10 +346,34 @@ def test_unexpected_failure_exits_one(tmp_path, monkeypatch, capsys):
         raise RuntimeError("kernel exploded")
 
     monkeypatch.setattr(chirpsift.pipeline, "search", boom)
-    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30", "--output", str(tmp_path / "t.parquet")])
+    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30",
+               "--output", str(tmp_path / "t.parquet")])
     err = capsys.readouterr().err
     assert rc == 1 and "kernel exploded" in err
     assert not (tmp_path / "t.parquet").exists() and not (tmp_path / "t.json").exists()
+
+
+def test_screen_counts_use_the_singular_for_one(tmp_path, monkeypatch, capsys):
+    s = tmp_path / "s.npz"
+    np.savez(s, strain=np.ones(1024), sample_rate=64.0, t0=5.0)
+    b = tmp_path / "b.npz"
+    Bank([5.0], [5.0]).save(b)
+    one = np.zeros(1, dtype=TRIGGER_DTYPE)
+    one[0] = (9.0, 0, 7.0, 0.1, 1.0, 30.0, 30, 7.0, 5.0, 5.0, 0.0, 0.0)
+
+    def one_trigger(strain, sample_rate, bank, *, t0, **kwargs):
+        info = {"segments": 1, "templates": 1, "analysed": [(t0 + 2.0, t0 + 14.0)], "gates": [(t0 + 3.0, t0 + 3.5)]}
+        return one, info
+
+    monkeypatch.setattr(chirpsift.pipeline, "search", one_trigger)
+    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30", "--output", str(tmp_path / "t.parquet"),
+               "--no-progress"])
+    out = capsys.readouterr().out
+    assert rc == 0
+    for phrase in ("1 template ", "1 trigger ", "1 segment", "1 gate "):
+        assert phrase in out, phrase
+    assert not re.search(r"\b1 (triggers|templates|segments|gates)\b", out)
+    assert "Analysed 12 s of the 16 s (75.0%)" in out
 
 
 # ---------------------------------------------------------------------------
@@ -221,10 +393,9 @@ def small_run(tmp_path_factory):
     data = inject_taylorf2(noise, fs, m1=10.0, m2=8.0, t_coalescence=tc, distance=rho1 / 15.0, f_low=30.0, t0=t0)
     np.savez(d / "site_b.npz", strain=data, sample_rate=fs, t0=t0)
     Bank.mass_grid(7.0, 11.0, 5).save(d / "bank.parquet")
-    return dict(dir=d, tc=tc, fs=fs, t0=t0, n=n)
+    return dict(dir=d, tc=tc, fs=fs, t0=t0, n=n, data=data)
 
 
-@needs_search
 def test_search_end_to_end(small_run, capsys):
     d = small_run["dir"]
     out = d / "triggers.parquet"
@@ -235,7 +406,7 @@ def test_search_end_to_end(small_run, capsys):
     rc = main(argv)
     captured = capsys.readouterr()
     assert rc == 0, captured.err
-    assert "triggers" in captured.out and "Loudest" in captured.out
+    assert "triggers" in captured.out and "Loudest" in captured.out and "Analysed" in captured.out
 
     from chirpsift.io import read_triggers
 
@@ -246,7 +417,9 @@ def test_search_end_to_end(small_run, capsys):
     assert doc["counts"]["templates"] == 15
     assert doc["inputs"]["strain"]["path"] == os.path.abspath(d / "site_b.npz")
     assert doc["inputs"]["strain"]["sample_rate"] == small_run["fs"]
-    assert doc["settings"]["f_low"] == 30.0 and doc["settings"]["segment_duration"] == 32.0
+    # the summary records the settings as the settings type gives them
+    assert doc["settings"] == SearchSettings(f_low=30.0, segment_duration=32.0).as_dict()
+    assert doc["run"]["threads"] == 2
     assert set(doc["versions"]) == {"chirpsift", "numpy", "python"}
     assert doc["wall_time_s"] > 0
     # the loudest trigger is the injection: within a few samples plus the clustering
@@ -254,12 +427,13 @@ def test_search_end_to_end(small_run, capsys):
     loud = doc["loudest"]
     assert abs(loud["time"] - small_run["tc"]) < 0.05
     assert loud["snr"] > 8.0
-    # and every analysed interval lies inside the data
+    # every analysed interval lies inside the data, and the fraction is their share of it
     t0, t_end = small_run["t0"], small_run["t0"] + small_run["n"] / small_run["fs"]
     assert all(t0 <= a < b <= t_end for a, b in doc["analysed"])
+    assert doc["live_time"] == pytest.approx(sum(b - a for a, b in doc["analysed"]))
+    assert doc["analysed_fraction"] == pytest.approx(doc["live_time"] / (t_end - t0))
 
 
-@needs_search
 def test_search_from_config_with_cli_override(small_run, capsys):
     d = small_run["dir"]
     cfg = d / "run.toml"
@@ -276,11 +450,44 @@ def test_search_from_config_with_cli_override(small_run, capsys):
     assert doc["counts"]["triggers"] > 0
 
 
-@needs_search
+def test_run_table_of_the_config_sets_outputs_and_threads(small_run, tmp_path, capsys):
+    d = small_run["dir"]
+    (tmp_path / "results").mkdir()
+    cfg = tmp_path / "run.toml"
+    cfg.write_text(
+        f'[input]\nstrain = "{d / "site_b.npz"}"\nbank = "{d / "bank.parquet"}"\n\n'
+        "[search]\nf-low = 30\nsegment-duration = 32\n\n"
+        '[run]\nthreads = 1\noutput = "results/t.parquet"\nsummary = "results/s.json"\nprogress = false\n'
+    )
+    rc = main(["search", "--config", str(cfg)])
+    captured = capsys.readouterr()
+    assert rc == 0, captured.err
+    assert "chirpsift search" not in captured.err  # no progress bar
+    doc = json.loads((tmp_path / "results" / "s.json").read_text())
+    assert (tmp_path / "results" / "t.parquet").exists()
+    assert doc["run"]["threads"] == 1
+
+
+def test_hdf5_attributes_named_on_the_command_line(small_run, tmp_path, capsys):
+    h5py = pytest.importorskip("h5py")
+    p = tmp_path / "site_b.hdf5"
+    with h5py.File(p, "w") as f:
+        ds = f.create_dataset("data/strain", data=small_run["data"])
+        ds.attrs["rate"] = small_run["fs"]
+        ds.attrs["start"] = small_run["t0"]
+    rc = main(["search", "--strain", str(p), "--dataset", "data/strain", "--sample-rate-attr", "rate",
+               "--t0-attr", "start", "--bank", str(small_run["dir"] / "bank.parquet"), "--f-low", "30",
+               "--segment-duration", "32", "--output", str(tmp_path / "t.parquet"), "--no-progress"])
+    assert rc == 0, capsys.readouterr().err
+    doc = json.loads((tmp_path / "t.json").read_text())
+    assert doc["inputs"]["strain"]["t0"] == small_run["t0"]
+    assert doc["inputs"]["strain"]["sample_rate"] == small_run["fs"]
+    assert abs(doc["loudest"]["time"] - small_run["tc"]) < 0.05
+
+
 def test_search_leaves_out_nan_runs(small_run, tmp_path, capsys):
     d = small_run["dir"]
-    with np.load(d / "site_b.npz") as z:
-        data = z["strain"].copy()
+    data = small_run["data"].copy()
     data[5000:5100] = np.nan
     np.savez(tmp_path / "gappy.npz", strain=data, sample_rate=small_run["fs"], t0=small_run["t0"])
     with pytest.warns(UserWarning, match="non-finite"):
@@ -296,14 +503,31 @@ def test_search_leaves_out_nan_runs(small_run, tmp_path, capsys):
     assert any(a <= small_run["tc"] < b for a, b in doc["analysed"])
 
 
-@needs_search
-def test_demo_runs(capsys, tmp_path):
+def test_demo_runs_and_labels_what_it_shows(capsys, tmp_path):
     rc = main(["demo", "--duration", "512", "--threads", "2", "--no-progress", "--output-dir", str(tmp_path)])
     out = capsys.readouterr().out
     assert rc == 0
-    assert "Site A" in out and "injected" in out and "loudest" in out
+    assert "Site A" in out
+    # injected optimal SNR and measured SNRs in separate, labelled columns
+    header = next(line for line in out.splitlines() if line.lstrip().startswith("time (s)"))
+    for column in ("time (s)", "optimal SNR", "measured SNR", "chi2/dof", "reweighted SNR"):
+        assert column in header
+    rows = {line.split()[0] + " " + line.split()[1]: line for line in out.splitlines()
+            if line.startswith(("injected source", "loudest trigger"))}
+    assert set(rows) == {"injected source", "loudest trigger"}
+    assert rows["injected source"].split()[-3:] == ["-", "-", "-"]  # no measured values for the source
+    # how much was analysed, and what chi-squared to expect
+    assert re.search(r"Analysed [\d.]+ s of the 512 s \([\d.]+%\)", out)
+    flat = " ".join(out.split())
+    assert "2p - 2 = 30 degrees of freedom" in flat and "Bank.mass_grid" in flat and "43%" in flat
+
     doc = json.loads((tmp_path / "summary.json").read_text())
     inj = doc["injection"]
     assert abs(doc["loudest"]["time"] - inj["time"]) < 0.05
-    # recovered SNR of an optimal-SNR-12 signal in unit-variance noise: 12 +- a few
-    assert math.isfinite(doc["loudest"]["snr"]) and abs(doc["loudest"]["snr"] - 12.0) < 5.0
+    # the source lies between the bank's grid points, not on a template
+    bank = Bank.load(tmp_path / "bank.npz")
+    nearest = np.min(np.hypot(bank.m1 - inj["m1"], bank.m2 - inj["m2"]))
+    assert nearest > 0.01
+    # measured SNR: the optimal SNR 12 times the best template's match, give or take the
+    # noise (unit variance per quadrature, so a few units at most)
+    assert math.isfinite(doc["loudest"]["snr"]) and abs(doc["loudest"]["snr"] - 12.0 * inj["best_match"]) < 3.0

@@ -1,0 +1,124 @@
+"""The ``chirpsift`` command line.
+
+Each subcommand is a module listed in :data:`COMMANDS` with:
+
+``HELP``
+    One line for ``chirpsift --help``.
+``add_arguments(parser)``
+    Give the subcommand's parser its description and arguments.
+``run(args) -> int``
+    Do the work and return the exit status. Bad input is raised, never printed:
+    :class:`UsageError`, ``ValueError``, ``TypeError`` or an ``OSError`` about a file.
+
+:func:`main` parses the command line, calls the subcommand and turns what it raises into
+an exit status: 0 success, 2 bad usage or bad input (one line on stderr, no traceback),
+1 unexpected failure (with the traceback, to report), 130 interrupted. A new subcommand
+(``bank``, ``network``) is one more line in :data:`COMMANDS`.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+import traceback
+from typing import NamedTuple
+
+from ._errors import INPUT_ERRORS, Parser, UsageError, print_error
+
+__all__ = ["main", "build_parser", "COMMANDS", "Command", "UsageError",
+           "EXIT_OK", "EXIT_FAILURE", "EXIT_USAGE", "EXIT_INTERRUPTED"]
+
+PROG = "chirpsift"
+
+EXIT_OK = 0
+EXIT_FAILURE = 1
+EXIT_USAGE = 2
+EXIT_INTERRUPTED = 130
+
+
+class Command(NamedTuple):
+    """A subcommand: its name and the module holding ``HELP``, ``add_arguments`` and ``run``."""
+
+    name: str
+    module: str
+
+
+COMMANDS: tuple[Command, ...] = (
+    Command("search", "chirpsift.cli.search"),
+    Command("demo", "chirpsift.cli.demo"),
+    Command("bench", "chirpsift.cli.bench"),
+    Command("network", "chirpsift.network.command"),
+)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``chirpsift`` command (all subcommands)."""
+    parser = Parser(
+        prog=PROG,
+        description="Matched-filter search for compact-binary inspiral signals in strain data.",
+        epilog=f"Run '{PROG} COMMAND --help' for a command's options.",
+        allow_abbrev=False,
+    )
+    parser.add_argument("--version", action="store_true", help="print the version and exit")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for command in COMMANDS:
+        module = importlib.import_module(command.module)
+        p = sub.add_parser(command.name, help=module.HELP, description=module.HELP, allow_abbrev=False)
+        module.add_arguments(p)
+        p.set_defaults(run=module.run)
+    return parser
+
+
+def _version() -> str:
+    from .. import __version__
+
+    return __version__
+
+
+def main(argv=None) -> int:
+    """Run the ``chirpsift`` command.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        Arguments without the program name (default: ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        Exit status: 0 success, 2 bad usage or input, 1 unexpected failure,
+        130 interrupted.
+    """
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse: --help (0) or a usage error (2)
+        return exc.code if isinstance(exc.code, int) else EXIT_USAGE
+    if args.version:
+        print(f"{PROG} {_version()}")
+        return EXIT_OK
+    if args.command is None:
+        parser.print_help(sys.stderr)
+        return EXIT_USAGE
+    args.argv = argv
+    try:
+        return int(args.run(args))
+    except KeyboardInterrupt:
+        print(f"{PROG}: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except INPUT_ERRORS as exc:
+        print_error(PROG, exc)
+        return EXIT_USAGE
+    except ImportError as exc:  # an optional dependency that is not installed
+        print_error(PROG, exc)
+        return EXIT_FAILURE
+    except Exception:
+        print(f"{PROG}: unexpected failure; please report it with the traceback below", file=sys.stderr)
+        traceback.print_exc(file=sys.stderr)
+        return EXIT_FAILURE
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
