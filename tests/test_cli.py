@@ -190,7 +190,19 @@ def test_bad_flag_value_names_the_flag_and_value(capsys):
 def test_misspelt_flag_suggests_the_nearest(capsys):
     assert main(["search", "--peak-windw", "1"]) == 2
     err = capsys.readouterr().err
-    assert "did you mean --peak-window?" in err and len(err.strip().splitlines()) == 1
+    assert "did you mean --peak-window?" in err and "see chirpsift search --help" in err
+    assert len(err.strip().splitlines()) == 1
+    assert main(["serch"]) == 2
+    assert "did you mean search?" in capsys.readouterr().err
+
+
+def test_file_errors_point_to_flags_not_python_keywords(tmp_path, capsys):
+    s = tmp_path / "s.npy"
+    np.save(s, np.zeros(64))
+    rc = main(["search", "--strain", str(s), "--bank", "b.npz", "--f-low", "30",
+               "--output", str(tmp_path / "t.parquet")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "pass --sample-rate" in err and "sample_rate (" not in err
 
 
 def test_settings_errors_name_flags_not_python_keywords(capsys):
@@ -351,6 +363,28 @@ def test_unexpected_failure_exits_one(tmp_path, monkeypatch, capsys):
     err = capsys.readouterr().err
     assert rc == 1 and "kernel exploded" in err
     assert not (tmp_path / "t.parquet").exists() and not (tmp_path / "t.json").exists()
+
+
+def test_warnings_are_one_line_in_the_command_s_words(tmp_path, monkeypatch, capsys):
+    import warnings
+
+    s = tmp_path / "s.npz"
+    np.savez(s, strain=np.ones(1024), sample_rate=64.0, t0=5.0)
+    b = tmp_path / "b.npz"
+    Bank([5.0], [5.0]).save(b)
+
+    def warn_and_find_nothing(strain, sample_rate, bank, *, t0, **kwargs):
+        warnings.warn("gated 2 intervals", chirpsift.GatingWarning, stacklevel=2)
+        return np.zeros(0, dtype=TRIGGER_DTYPE), {"segments": 1, "templates": 1, "analysed": [(t0, t0 + 16.0)],
+                                                  "gates": []}
+
+    monkeypatch.setattr(chirpsift.pipeline, "search", warn_and_find_nothing)
+    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30", "--output", str(tmp_path / "t.parquet"),
+               "--no-progress"])
+    captured = capsys.readouterr()
+    assert rc == 0
+    assert captured.err == "chirpsift: warning: gated 2 intervals\n"
+    assert "Found 0 triggers with SNR >= 5.5." in captured.out and "Loudest" not in captured.out
 
 
 def test_screen_counts_use_the_singular_for_one(tmp_path, monkeypatch, capsys):

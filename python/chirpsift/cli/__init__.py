@@ -22,9 +22,10 @@ import argparse
 import importlib
 import sys
 import traceback
+import warnings
 from typing import NamedTuple
 
-from ._errors import INPUT_ERRORS, Parser, UsageError, print_error
+from ._errors import INPUT_ERRORS, Parser, UsageError, one_line, print_error
 
 __all__ = ["main", "build_parser", "COMMANDS", "Command", "UsageError",
            "EXIT_OK", "EXIT_FAILURE", "EXIT_USAGE", "EXIT_INTERRUPTED"]
@@ -76,6 +77,11 @@ def _version() -> str:
     return __version__
 
 
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    """Warnings in one line, as the command's own words, not as a source location."""
+    print(f"{PROG}: warning: {one_line(message)}", file=sys.stderr if file is None else file)
+
+
 def main(argv=None) -> int:
     """Run the ``chirpsift`` command.
 
@@ -93,7 +99,9 @@ def main(argv=None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
     try:
-        args = parser.parse_args(argv)
+        args, unknown = parser.parse_known_args(argv)
+        if unknown:  # reported by the subcommand's parser, which knows its own flags
+            parser.subparser(args.command).error(f"unrecognized arguments: {' '.join(unknown)}")
     except SystemExit as exc:  # argparse: --help (0) or a usage error (2)
         return exc.code if isinstance(exc.code, int) else EXIT_USAGE
     if args.version:
@@ -104,7 +112,9 @@ def main(argv=None) -> int:
         return EXIT_USAGE
     args.argv = argv
     try:
-        return int(args.run(args))
+        with warnings.catch_warnings():
+            warnings.showwarning = _show_warning
+            return int(args.run(args))
     except KeyboardInterrupt:
         print(f"{PROG}: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED

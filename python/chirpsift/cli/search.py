@@ -9,14 +9,13 @@ every flag has a config key of the same name and the help shows each default and
 from __future__ import annotations
 
 import argparse
-import re
 import time
 
 from .. import pipeline
 from ..config import TABLES, RunConfig, default_text, in_option_terms, load_config, merge_settings
 from ..report import plural, run_summary
 from ..threads import get_threads, set_threads
-from ._errors import UsageError
+from ._errors import UsageError, in_flag_terms
 from ._paths import check_output
 from ._types import Once, finite_float, nonnegative_float, nonnegative_int, positive_float, positive_int
 
@@ -109,10 +108,7 @@ def _read_strain(inputs: dict):
         return read_strain(inputs["strain"], dataset=inputs.get("dataset"), sample_rate=inputs.get("sample_rate"),
                            t0=inputs.get("t0"), **attrs)
     except (TypeError, ValueError) as exc:
-        message = str(exc)
-        for name, flag in _READ_STRAIN_FLAGS.items():
-            message = re.sub(rf"(?<![\w-]){name}(?![\w-])", flag, message)
-        raise UsageError(message) from None
+        raise UsageError(in_flag_terms(str(exc), _READ_STRAIN_FLAGS)) from None
 
 
 def _search(strain, bank, settings, progress: bool):
@@ -197,7 +193,8 @@ def run(args) -> int:
     print(f"Searched {strain.duration:.6g} s of strain from {strain.source} ({strain.sample_rate:g} Hz) with "
           f"{plural(len(bank), 'template')} from {settings.f_low:g} Hz.")
     print(describe_analysed(doc))
-    print(f"Found {plural(len(triggers), 'trigger')} with SNR >= {settings.min_snr:g}. "
-          f"Loudest by reweighted SNR: {describe_trigger(doc['loudest'])}.")
+    found = f"Found {plural(len(triggers), 'trigger')} with SNR >= {settings.min_snr:g}"
+    print(f"{found}. Loudest by reweighted SNR: {describe_trigger(doc['loudest'])}." if len(triggers) else
+          f"{found}.")
     print(f"Wrote {output} and {summary_path} in {wall:.1f} s.")
     return 0
