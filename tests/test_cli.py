@@ -372,19 +372,25 @@ def test_warnings_are_one_line_in_the_command_s_words(tmp_path, monkeypatch, cap
     np.savez(s, strain=np.ones(1024), sample_rate=64.0, t0=5.0)
     b = tmp_path / "b.npz"
     Bank([5.0], [5.0]).save(b)
+    shown = {}
 
     def warn_and_find_nothing(strain, sample_rate, bank, *, t0, **kwargs):
+        shown["line"] = warnings.formatwarning("gated 2 intervals;\nsee info['gates']", chirpsift.GatingWarning,
+                                               "single_site.py", 231)
         warnings.warn("gated 2 intervals", chirpsift.GatingWarning, stacklevel=2)
         return np.zeros(0, dtype=TRIGGER_DTYPE), {"segments": 1, "templates": 1, "analysed": [(t0, t0 + 16.0)],
                                                   "gates": []}
 
     monkeypatch.setattr(chirpsift.pipeline, "search", warn_and_find_nothing)
-    rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30", "--output", str(tmp_path / "t.parquet"),
-               "--no-progress"])
-    captured = capsys.readouterr()
+    plain = warnings.formatwarning
+    with pytest.warns(chirpsift.GatingWarning, match="gated 2 intervals"):
+        rc = main(["search", "--strain", str(s), "--bank", str(b), "--f-low", "30",
+                   "--output", str(tmp_path / "t.parquet"), "--no-progress"])
     assert rc == 0
-    assert captured.err == "chirpsift: warning: gated 2 intervals\n"
-    assert "Found 0 triggers with SNR >= 5.5." in captured.out and "Loudest" not in captured.out
+    assert shown["line"] == "chirpsift: warning: gated 2 intervals; see 'gates' in the run summary\n"
+    assert warnings.formatwarning is plain  # restored when the command returns
+    out = capsys.readouterr().out
+    assert "Found 0 triggers with SNR >= 5.5." in out and "Loudest" not in out
 
 
 def test_screen_counts_use_the_singular_for_one(tmp_path, monkeypatch, capsys):
@@ -535,6 +541,7 @@ def test_search_leaves_out_nan_runs(small_run, tmp_path, capsys):
     nan_start, nan_stop = small_run["t0"] + 5000 / small_run["fs"], small_run["t0"] + 5100 / small_run["fs"]
     assert doc["analysed"] and all(b <= nan_start or a >= nan_stop for a, b in doc["analysed"])
     assert any(a <= small_run["tc"] < b for a, b in doc["analysed"])
+    assert doc["excluded"] == [pytest.approx([nan_start, nan_stop])]  # recorded in the summary
 
 
 def test_demo_runs_and_labels_what_it_shows(capsys, tmp_path):

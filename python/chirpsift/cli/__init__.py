@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import re
 import sys
 import traceback
 import warnings
@@ -77,9 +78,13 @@ def _version() -> str:
     return __version__
 
 
-def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
-    """Warnings in one line, as the command's own words, not as a source location."""
-    print(f"{PROG}: warning: {one_line(message)}", file=sys.stderr if file is None else file)
+def _format_warning(message, category, filename, lineno, line=None) -> str:
+    """A warning as one line in the command's words, not as a source location: flags for
+    the search's keywords, and the run summary's ``gates`` for the search's ``info['gates']``."""
+    from ..config import in_option_terms
+
+    text = re.sub(r"info\['(\w+)'\]", r"'\1' in the run summary", in_option_terms(one_line(message), "--"))
+    return f"{PROG}: warning: {text}\n"
 
 
 def main(argv=None) -> int:
@@ -111,10 +116,10 @@ def main(argv=None) -> int:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
     args.argv = argv
+    plain_format = warnings.formatwarning
+    warnings.formatwarning = _format_warning
     try:
-        with warnings.catch_warnings():
-            warnings.showwarning = _show_warning
-            return int(args.run(args))
+        return int(args.run(args))
     except KeyboardInterrupt:
         print(f"{PROG}: interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
@@ -128,6 +133,8 @@ def main(argv=None) -> int:
         print(f"{PROG}: unexpected failure; please report it with the traceback below", file=sys.stderr)
         traceback.print_exc(file=sys.stderr)
         return EXIT_FAILURE
+    finally:
+        warnings.formatwarning = plain_format
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -21,7 +21,7 @@ INPUT_ERRORS = (ValueError, TypeError, FileNotFoundError, IsADirectoryError, Not
 
 def one_line(message) -> str:
     """``message`` as one line (the parts of a multi-line message joined by "; ")."""
-    parts = [p.strip() for p in str(message).splitlines() if p.strip()]
+    parts = [p.strip().rstrip(";") for p in str(message).splitlines() if p.strip()]
     return "; ".join(parts)
 
 

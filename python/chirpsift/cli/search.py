@@ -125,10 +125,12 @@ def describe_analysed(doc: dict) -> str:
     total = doc["inputs"]["strain"]["duration"]
     text = (f"Analysed {doc['live_time']:.6g} s of the {total:.6g} s ({100 * doc['analysed_fraction']:.1f}%) "
             f"in {plural(doc['counts']['segments'], 'segment')}")
-    if doc["search"].get("segment_duration") is not None:
-        text += f" of up to {doc['search']['segment_duration']:g} s"
+    lengths = {s["segment_duration"] for s in doc["search"].get("stretches", [])}
+    longest = doc["search"].get("segment_duration")
+    if longest is not None:
+        text += f" of {'up to ' if len(lengths) > 1 else ''}{longest:g} s"
     gates = doc["counts"]["gates"]
-    text += f"; {plural(gates, 'gate')}" + (f" took {doc['gated_time']:.3g} s" if gates else "")
+    text += f"; {plural(gates, 'gate')}" + (f" zeroed {doc['gated_time']:.3g} s" if gates else "")
     excluded = sum(b - a for a, b in doc.get("excluded", []))
     if excluded:
         text += f"; {excluded:.6g} s of non-finite data left out"

@@ -49,7 +49,8 @@ def loudest(triggers: np.ndarray) -> dict | None:
 
 #: Entries of the search's ``info`` placed at the top of the document (the rest go under
 #: ``"search"``).
-_TOP_LEVEL = ("settings", "analysed", "live_time", "analysed_fraction", "gates", "gated_time", "excluded")
+_TOP_LEVEL = ("settings", "analysed", "live_time", "analysed_fraction", "gates", "gated_time", "excluded",
+              "short_stretches")
 
 
 def _seconds(pairs) -> float:
@@ -139,6 +140,7 @@ def run_summary(
         "gates": gates,
         "gated_time": float(info.get("gated_time", _seconds(gates))),
         "excluded": _float_pairs(info.get("excluded", [])),
+        "short_stretches": _float_pairs(info.get("short_stretches", [])),
         "search": _search_report(info),
         "loudest": loudest(triggers),
         "wall_time_s": wall,
