@@ -78,7 +78,9 @@ def test_scale_reduces_templates_and_keeps_data_at_quick_scale():
     assert len(tiny.bank) >= 1 and tiny.n < 2**20
     assert tiny.n & (tiny.n - 1) == 0  # still a power of two
     # the tiny bank's templates outlast its data: the window falls back to the middle
+    assert not tiny.templates_fit
     assert tiny.valid() == (tiny.segment_samples // 4, 3 * tiny.segment_samples // 4)
+    assert q.templates_fit and q.valid()[0] > 0
 
 
 def test_data_are_deterministic_and_match_the_generator():
@@ -147,7 +149,7 @@ def test_main_quick_tiny_prints_every_measurement(tmp_path, capsys):
     assert {"yardstick_ifft_ms", "w1_fused_per_ifft", "w2_over_w1_per_template", "w1_speedup_over_reference",
             "w1_thread_scaling", "w1_thread_scaling_range", "w1_identical_across_threads",
             "w1_generation_in_kernel_per_fused", "w3_peak_rss_ratio", "w3_peak_rss_small_mib",
-            "w3_peak_rss_full_mib"} <= set(keys)
+            "w3_peak_rss_full_mib", "w1_search_quarter_bank_per_ifft", "w1_search_full_bank_per_ifft"} <= set(keys)
     by_key = {m["key"]: m for m in doc["measurements"]}
     # the scaling row is the median of the paired runs, its verdict the median's
     ratios = doc["context"]["thread_scaling_ratios"]

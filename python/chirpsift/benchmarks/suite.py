@@ -11,12 +11,14 @@ import os
 import statistics
 import tempfile
 import time
+from functools import partial
 
 import numpy as np
 
 from ..threads import get_threads, set_threads
 from .measure import (
     Measurement,
+    best_time,
     cpu_ticks,
     fused_bank,
     generation_seconds,
@@ -111,6 +113,28 @@ def _measure_fused(w: Workload, t_ifft: float, repeats: int, target: float | Non
                             f"{w.name} fused call with 1 template / inverse FFT (1 thread)",
                             ratio(t_one / t_ifft), "x"))
     return rows, per_template, result
+
+
+def _measure_search_fixed_cost(w: Workload, t_ifft: float, repeats: int, say) -> list[Measurement]:
+    """The whole :func:`chirpsift.search` over the workload's data (one segment), per
+    template against the yardstick, with the full bank and with a quarter of it (at most
+    64 templates): the gap between the two is the per-segment fixed cost (PSD estimate,
+    data transform, kernel preparation) spread over fewer templates. One thread."""
+    from .. import pipeline
+
+    x = w.strain()
+    kwargs = w.settings.as_dict()
+    rows = []
+    for size, k in (("quarter", max(1, min(64, len(w.bank) // 4))), ("full", len(w.bank))):
+        key = f"{w.name.lower()}_search_{size}_bank_per_ifft"
+        name = f"{w.name} whole search, {k} templates: per template / inverse FFT (1 thread)"
+        if not w.templates_fit:
+            rows.append(Measurement(key, f"{name} (data at this scale too short)", None, "x"))
+            continue
+        say(f"{w.name}: whole search with {k} templates")
+        seconds = best_time(partial(pipeline.search, x, w.sample_rate, w.bank[:k], **kwargs), repeats)
+        rows.append(Measurement(key, name, ratio(seconds / k / t_ifft), "x"))
+    return rows
 
 
 def _measure_scaling(w: Workload, threads: int, runs: int, single_result: dict, context: dict, say):
@@ -280,6 +304,7 @@ def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, 
             rows.extend(fused_rows)
             if w.name != "W1":
                 continue
+            rows.extend(_measure_search_fixed_cost(w, t_ifft, repeats, say))
             rows.extend(_measure_scaling(w, n_threads, scaling_runs, single_result, context, say))
             rows.append(_measure_reference(w, per_template["W1"], scale, say))
             rows.extend(_measure_generation(w, per_template["W1"], repeats, say))

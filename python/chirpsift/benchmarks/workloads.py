@@ -154,22 +154,29 @@ class Workload:
             self._cache["segment"] = (np.fft.rfft(x) / fs, psd)
         return self._cache["segment"]
 
+    def _analysable(self) -> tuple[int, int]:
+        from ..segments import padding
+        from ..waveform import chirp_duration
+
+        longest = float(np.max(chirp_duration(self.bank.m1, self.bank.m2, self.f_low)))
+        pad_start, pad_end = padding(longest, self.settings.welch_duration, self.sample_rate)
+        return pad_start, self.segment_samples - pad_end
+
+    @property
+    def templates_fit(self) -> bool:
+        """Whether a segment keeps any samples after the search's pads for the longest template
+        (false only at smoke-test scales, whose data are shortened)."""
+        start, stop = self._analysable()
+        return 1 <= start < stop <= self.segment_samples - 1
+
     def valid(self) -> tuple[int, int]:
         """Analysable samples ``[start, stop)`` of one segment, as the search computes them.
 
         If the bank's longest template does not fit in the segment (only at smoke-test
         scales) the middle half of the segment is used; the timing is unaffected.
         """
-        from ..segments import padding
-        from ..waveform import chirp_duration
-
         n = self.segment_samples
-        longest = float(np.max(chirp_duration(self.bank.m1, self.bank.m2, self.f_low)))
-        pad_start, pad_end = padding(longest, self.settings.welch_duration, self.sample_rate)
-        start, stop = pad_start, n - pad_end
-        if not 1 <= start < stop <= n - 1:
-            return n // 4, 3 * n // 4
-        return start, stop
+        return self._analysable() if self.templates_fit else (n // 4, 3 * n // 4)
 
     def filter_kwargs(self) -> dict:
         """Keyword arguments of :func:`chirpsift.filter_segment` for this workload."""
