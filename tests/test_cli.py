@@ -113,9 +113,9 @@ def test_config_unknown_key_names_the_nearest_valid_key(tmp_path):
          "welch-duration=8.0 s is longer than segment-duration"),
         ("[search]\nf-low = 20\nf_low = 30\n", "given twice"),
         ("[input]\nstrain = 3\n", "strain must be a non-empty string"),
-        ("[input]\nsample-rate = -1\n", r"\[input\] sample-rate must be positive"),
-        ("[run]\nthreads = 0\n", r"\[run\] threads must be at least 1"),
-        ("[run]\nprogress = 'no'\n", r"\[run\] progress must be true or false"),
+        ("[input]\nsample-rate = -1\n", r"\[input\]: sample-rate must be positive"),
+        ("[run]\nthreads = 0\n", r"\[run\]: threads must be at least 1"),
+        ("[run]\nprogress = 'no'\n", r"\[run\]: progress must be true or false"),
         ("[search\n", "invalid TOML"),
     ],
 )
@@ -326,10 +326,13 @@ def test_bench_json_extension_is_checked(tmp_path, capsys):
 # ---------------------------------------------------------------------------
 # HDF5 attribute names from the command line
 # ---------------------------------------------------------------------------
-def test_hdf5_attribute_flags_need_a_dataset(inputs, capsys):
-    rc = main(["search", "--strain", str(inputs["strain"]), "--bank", str(inputs["bank"]), "--f-low", "30",
-               "--t0-attr", "start", "--output", str(inputs["strain"].with_name("t.parquet"))])
-    assert rc == 2 and "--t0-attr" in capsys.readouterr().err
+def test_metadata_name_flags_are_refused_where_a_format_has_no_names(tmp_path, capsys):
+    s = tmp_path / "s.npy"
+    np.save(s, np.zeros(64))
+    rc = main(["search", "--strain", str(s), "--sample-rate", "64", "--bank", "b.npz", "--f-low", "30",
+               "--t0-attr", "start", "--output", str(tmp_path / "t.parquet")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "--t0-attr" in err and "t0_attr" not in err
 
 
 def test_hdf5_missing_attribute_message_points_to_flags(tmp_path, capsys):

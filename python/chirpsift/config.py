@@ -36,7 +36,7 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ._validate import positive_int, positive_scalar, real_scalar
+from ._validate import integer, positive_scalar, real_scalar
 from .pipeline import SEARCH_OPTIONS, SearchSettings
 from .pipeline.settings import option_key
 
@@ -89,11 +89,15 @@ class ConfigKey:
 INPUT_KEYS: tuple[ConfigKey, ...] = (
     ConfigKey("strain", "", "path", "strain file: .npy, .npz, .h5/.hdf5, .txt/.dat/.csv (required)"),
     ConfigKey("dataset", "", "text", "HDF5 dataset holding the strain (HDF5 input only)"),
-    ConfigKey("sample_rate", "Hz", "positive", "sampling rate, for files that store none (.npy, one-column text)"),
-    ConfigKey("t0", "s", "real", "time of the first sample, for files that store none"),
-    ConfigKey("sample_rate_attr", "", "text", "HDF5 attribute of the dataset holding the sample rate in Hz",
-              "sample_rate"),
-    ConfigKey("t0_attr", "", "text", "HDF5 attribute of the dataset holding the time of the first sample in s", "t0"),
+    ConfigKey("sample_rate", "Hz", "positive",
+              "sampling rate: needed where the file stores none, and must agree with the file's where it does"),
+    ConfigKey("t0", "s", "real",
+              "time of the first sample: needed where the file could store one but does not, and must agree "
+              "with the file's where it does"),
+    ConfigKey("sample_rate_attr", "", "text", "name of the .npz array or HDF5 dataset attribute holding the "
+              "sample rate in Hz", "sample_rate"),
+    ConfigKey("t0_attr", "", "text", "name of the .npz array or HDF5 dataset attribute holding the time of the "
+              "first sample in s", "t0"),
     ConfigKey("bank", "", "path", "template bank: .npz or .parquet (required)"),
 )
 
@@ -133,16 +137,17 @@ class RunConfig:
 
 
 def default_of(entry):
-    """The default of a :class:`ConfigKey` or a search option, or a sentinel if it has none."""
+    """Return the default of a :class:`ConfigKey` or a search option, or a sentinel if it has none."""
     if isinstance(entry, ConfigKey):
         return entry.default
     return getattr(SearchSettings, entry.name, _NO_DEFAULT)
 
 
 def default_text(entry, *, unit: bool = True) -> str:
-    """The default of a key as help screens show it: ``"1.0 s"``, ``"on"``; ``""`` when the
-    key has no default value (its help says what happens then). ``unit=False`` leaves the
-    unit out.
+    """Show the default of a key as help screens do: ``"1.0 s"``, ``"on"``.
+
+    ``""`` when the key has no default value (its help says what happens then).
+    ``unit=False`` leaves the unit out.
 
     Examples
     --------
@@ -164,8 +169,10 @@ def _nearest(word: str, valid) -> str:
 
 
 def in_option_terms(message: str, prefix: str = "") -> str:
-    """``message`` with the search options' Python names spelled as keys (``prefix=""``) or
-    flags (``prefix="--"``): ``"segment_duration=4 s"`` -> ``"--segment-duration=4 s"``.
+    """Spell the search options' Python names in ``message`` as keys or flags.
+
+    With ``prefix=""`` as config keys, with ``prefix="--"`` as flags:
+    ``"segment_duration=4 s"`` -> ``"--segment-duration=4 s"``.
 
     Examples
     --------
@@ -179,7 +186,7 @@ def in_option_terms(message: str, prefix: str = "") -> str:
 
 
 def _check_value(entry: ConfigKey, value, where: str, base: Path):
-    label = f"{where} {entry.key}"
+    label = f"{where}: {entry.key}"
     if entry.kind == "switch":
         if not isinstance(value, bool):
             raise ValueError(f"{label} must be true or false, got {value!r}")
@@ -191,13 +198,16 @@ def _check_value(entry: ConfigKey, value, where: str, base: Path):
             p = Path(value).expanduser()
             return str(p if p.is_absolute() else base / p)
         return value
-    check = {"positive": positive_scalar, "real": real_scalar, "count": positive_int}[entry.kind]
-    return check(label, value)
+    check = {"positive": positive_scalar, "real": real_scalar, "count": integer}[entry.kind]
+    return check(entry.key, value, where=where)
 
 
 def _names_in(section: dict, keys, where: str) -> dict:
-    """``{python name: value}``, refusing unknown keys (naming the nearest valid one) and a key
-    given in both spellings."""
+    """Map a table's keys to Python names, refusing unknown keys and a key given twice.
+
+    An unknown key's message names the nearest valid one; a key may not be given with
+    dashes and with underscores both.
+    """
     valid = [k.key for k in keys]
     out: dict = {}
     for key, value in section.items():
@@ -223,7 +233,7 @@ def _search_section(section: dict, where: str) -> dict:
 
 
 def load_config(path) -> RunConfig:
-    """Read and validate a TOML run configuration.
+    r"""Read and validate a TOML run configuration.
 
     Parameters
     ----------
@@ -245,10 +255,10 @@ def load_config(path) -> RunConfig:
 
     Examples
     --------
-    >>> import os, tempfile
+    >>> from pathlib import Path
     >>> from chirpsift.config import load_config
-    >>> p = os.path.join(tempfile.mkdtemp(), "run.toml")
-    >>> _ = open(p, "w").write('[search]\\nf-low = 30\\npeak-window = 0.5\\n[run]\\nprogress = false\\n')
+    >>> p = Path("run.toml")
+    >>> _ = p.write_text('[search]\nf-low = 30\npeak-window = 0.5\n[run]\nprogress = false\n')
     >>> c = load_config(p)
     >>> c.search, c.run
     ({'f_low': 30.0, 'peak_window': 0.5}, {'progress': False})
@@ -315,8 +325,10 @@ def merge_settings(from_file: dict, from_cli: dict) -> dict:
 
 
 def keys_table() -> str:
-    """Every ``chirpsift search`` flag with its config key, unit, default and meaning, as a
-    Markdown table (the README carries it; a test checks that it matches)."""
+    """List every ``chirpsift search`` flag with its config key, unit, default and meaning.
+
+    A Markdown table: the README carries it, and a test checks that it matches.
+    """
 
     def row(*cells) -> str:
         return "|" + "|".join(f" {c} " if c else " " for c in cells) + "|"

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from .._validate import positive_int
+from .._validate import integer
 from ..bank import Bank
 
 __all__ = ["component_mass_bank", "total_mass_bank"]
@@ -20,7 +20,7 @@ def _weyl(k: int) -> np.ndarray:
 
 
 def component_mass_bank(k: int, m_min: float, m_max: float) -> Bank:
-    """A non-spinning bank of ``k`` templates with both components in ``[m_min, m_max]``.
+    """Build a non-spinning bank of ``k`` templates with both components in ``[m_min, m_max]``.
 
     Parameters
     ----------
@@ -51,7 +51,7 @@ def component_mass_bank(k: int, m_min: float, m_max: float) -> Bank:
     >>> len(b), bool(b.m2.min() >= 1.2 - 1e-12), bool(b.m1.max() <= 2.0 + 1e-12)
     (4, True, True)
     """
-    k = positive_int("k", k)
+    k = integer("k", k)
     lo, hi = float(m_min), float(m_max)
     if not (0 < lo <= hi and math.isfinite(hi)):
         raise ValueError(f"need 0 < m_min <= m_max (solar masses), got m_min={m_min!r}, m_max={m_max!r}")
@@ -79,7 +79,7 @@ def component_mass_bank(k: int, m_min: float, m_max: float) -> Bank:
 
 
 def total_mass_bank(k: int, mtotal_min: float, mtotal_max: float, m_min: float = 1.0) -> Bank:
-    """A non-spinning bank of ``k`` templates spanning a total-mass range.
+    """Build a non-spinning bank of ``k`` templates spanning a total-mass range.
 
     Parameters
     ----------
@@ -103,7 +103,7 @@ def total_mass_bank(k: int, mtotal_min: float, mtotal_max: float, m_min: float =
     >>> [round(float(m), 6) for m in b.mtotal]
     [2.0, 8.944272, 40.0]
     """
-    k = positive_int("k", k)
+    k = integer("k", k)
     lo, hi, mm = float(mtotal_min), float(mtotal_max), float(m_min)
     if not (mm > 0 and 2 * mm <= lo <= hi and math.isfinite(hi)):
         raise ValueError(

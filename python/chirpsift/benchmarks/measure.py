@@ -56,7 +56,7 @@ class Measurement:
 
 
 def ratio(x: float) -> float:
-    """A ratio rounded to four significant digits (the table's precision)."""
+    """Round a ratio to four significant digits (the table's precision)."""
     return float(f"{x:.4g}")
 
 

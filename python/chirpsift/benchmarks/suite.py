@@ -95,8 +95,10 @@ def _measure_yardstick(w: Workload, context: dict, say) -> tuple[float, Measurem
 
 
 def _measure_fused(w: Workload, t_ifft: float, repeats: int, target: float | None):
-    """Per-template cost of the fused kernel over the whole bank against the yardstick, its
-    throughput, and the fixed cost of a call (a one-template bank). One thread."""
+    """Time the fused kernel per template over the whole bank, against the yardstick.
+
+    Also its throughput, and the fixed cost of a call (a one-template bank). One thread.
+    """
     prefix = w.name.lower()
     t1, result = fused_bank(w, w.bank, repeats=repeats)
     per_template = t1 / len(w.bank)
@@ -116,10 +118,12 @@ def _measure_fused(w: Workload, t_ifft: float, repeats: int, target: float | Non
 
 
 def _measure_search_fixed_cost(w: Workload, t_ifft: float, repeats: int, say) -> list[Measurement]:
-    """The whole :func:`chirpsift.search` over the workload's data (one segment), per
-    template against the yardstick, with the full bank and with a quarter of it (at most
-    64 templates): the gap between the two is the per-segment fixed cost (PSD estimate,
-    data transform, kernel preparation) spread over fewer templates. One thread."""
+    """Time the whole :func:`chirpsift.search` per template against the yardstick.
+
+    Over the workload's data (one segment), with the full bank and with a quarter of it
+    (at most 64 templates): the gap between the two is the per-segment fixed cost (PSD
+    estimate, data transform, kernel preparation) spread over fewer templates. One thread.
+    """
     from .. import pipeline
 
     x = w.strain()
@@ -138,8 +142,11 @@ def _measure_search_fixed_cost(w: Workload, t_ifft: float, repeats: int, say) ->
 
 
 def _measure_scaling(w: Workload, threads: int, runs: int, single_result: dict, context: dict, say):
-    """Thread scaling from ``runs`` paired runs (1 thread, then ``threads``, back to back so
-    both see the same machine conditions), and bitwise identity of the results."""
+    """Measure thread scaling from ``runs`` paired runs, and bitwise identity of the results.
+
+    Each pair runs 1 thread, then ``threads``, back to back, so both see the same machine
+    conditions.
+    """
     prefix = w.name.lower()
     if threads < 2:
         return [
@@ -192,8 +199,11 @@ def _measure_scaling(w: Workload, threads: int, runs: int, single_result: dict, 
 
 
 def _measure_reference(w: Workload, fused_per_template: float, scale: float, say) -> Measurement:
-    """The numpy reference on an evenly spread subset, per template, against the fused
-    per-template cost over the whole bank (its per-call set-up amortised)."""
+    """Time the numpy reference per template on an evenly spread subset of the bank.
+
+    It is compared with the fused per-template cost over the whole bank (its per-call
+    set-up amortised).
+    """
     k_ref = max(2, min(len(w.bank), int(round(16 * scale))))
     sub = w.bank[np.linspace(0, len(w.bank) - 1, k_ref).round().astype(int)]
     say(f"{w.name}: numpy reference on {k_ref} templates")
@@ -205,8 +215,11 @@ def _measure_reference(w: Workload, fused_per_template: float, scale: float, say
 
 
 def _measure_generation(w: Workload, fused_per_template: float, repeats: int, say) -> list[Measurement]:
-    """Template generation alone, as inside the fused kernel (reused buffer, no Python), and
-    through the numpy API (fresh output array, validation), against the fused cost."""
+    """Time template generation alone, against the fused per-template cost.
+
+    Once as inside the fused kernel (reused buffer, no Python), once through the numpy API
+    (fresh output array, validation).
+    """
     say(f"{w.name}: template generation")
     prefix = w.name.lower()
     frac = generation_seconds(w, repeats) / fused_per_template
@@ -222,8 +235,10 @@ def _measure_generation(w: Workload, fused_per_template: float, repeats: int, sa
 
 
 def _measure_memory(w: Workload, threads: int, say) -> tuple[list[Measurement], dict]:
-    """Peak resident memory of a whole search with a small and with the full bank, each in
-    a process of its own."""
+    """Measure the peak resident memory of a whole search with a small and with the full bank.
+
+    Each search runs in a process of its own.
+    """
     small = w.bank[: min(_W3_SMALL, max(1, len(w.bank) // 4))]
     with tempfile.TemporaryDirectory(prefix="chirpsift-bench-") as tmp:
         strain_path = os.path.join(tmp, "strain.npy")

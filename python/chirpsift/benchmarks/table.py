@@ -66,7 +66,7 @@ def _value_text(m: Measurement) -> str:
 
 
 def format_table(rows, context) -> str:
-    """The benchmark table as Markdown.
+    """Format the benchmark table as Markdown.
 
     Parameters
     ----------

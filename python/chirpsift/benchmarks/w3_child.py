@@ -84,8 +84,10 @@ def search_in_child(strain_path: str, bank, sample_rate: float, settings, thread
 
 
 def _child_environment() -> dict:
-    """This process's environment, with the folder chirpsift was imported from first on
-    ``PYTHONPATH``, so the child imports the same build."""
+    """Return this process's environment for the child, so it imports the same build.
+
+    The folder chirpsift was imported from goes first on ``PYTHONPATH``.
+    """
     import chirpsift
 
     root = os.path.dirname(os.path.dirname(os.path.abspath(chirpsift.__file__)))

@@ -129,7 +129,7 @@ class Workload:
         return int(round(self.settings.peak_window * self.sample_rate))
 
     def strain(self) -> np.ndarray:
-        """The noise (read-only float64, deterministic for the workload's seed)."""
+        """Return the noise (read-only float64, deterministic for the workload's seed)."""
         return _noise(self.n, self.sample_rate, self.seed, self.f_low)
 
     def segment(self):
@@ -164,8 +164,10 @@ class Workload:
 
     @property
     def templates_fit(self) -> bool:
-        """Whether a segment keeps any samples after the search's pads for the longest template
-        (false only at smoke-test scales, whose data are shortened)."""
+        """Whether a segment keeps any samples after the search's pads for the longest template.
+
+        False only at smoke-test scales, whose data are shortened.
+        """
         start, stop = self._analysable()
         return 1 <= start < stop <= self.segment_samples - 1
 

@@ -55,7 +55,7 @@ COMMANDS: tuple[Command, ...] = (
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The argument parser of the ``chirpsift`` command (all subcommands)."""
+    """Build the argument parser of the ``chirpsift`` command (all subcommands)."""
     parser = Parser(
         prog=PROG,
         description="Matched-filter search for compact-binary inspiral signals in strain data.",
@@ -79,8 +79,11 @@ def _version() -> str:
 
 
 def _format_warning(message, category, filename, lineno, line=None) -> str:
-    """A warning as one line in the command's words, not as a source location: flags for
-    the search's keywords, and the run summary's ``gates`` for the search's ``info['gates']``."""
+    """Format a warning as one line in the command's words, not as a source location.
+
+    Flags stand for the search's keywords, and the run summary's ``gates`` for the
+    search's ``info['gates']``.
+    """
     from ..config import in_option_terms
 
     text = re.sub(r"info\['(\w+)'\]", r"'\1' in the run summary", in_option_terms(one_line(message), "--"))

@@ -26,11 +26,14 @@ def one_line(message) -> str:
 
 
 class Parser(argparse.ArgumentParser):
-    """An argument parser whose errors are one line naming the argument, with a pointer to
-    ``--help`` and, for a misspelt option, the nearest valid one."""
+    """Argument parser whose errors are one line naming the argument.
+
+    The line points to ``--help`` and, for a misspelt option or command, to the nearest
+    valid one.
+    """
 
     def subparser(self, name: str | None) -> "Parser":
-        """The parser of subcommand ``name`` (this parser if there is none by that name)."""
+        """Return the parser of subcommand ``name`` (this parser if there is none by that name)."""
         for action in self._actions:
             if isinstance(action, argparse._SubParsersAction) and name in action.choices:
                 return action.choices[name]

@@ -19,8 +19,10 @@ _FORMATS = {".parquet": "a Parquet table", ".json": "a JSON document"}
 
 
 def same_file(a, b) -> bool:
-    """Whether paths ``a`` and ``b`` name the same file (same inode when both exist,
-    otherwise the same resolved path)."""
+    """Whether paths ``a`` and ``b`` name the same file.
+
+    The same inode when both exist, otherwise the same resolved path.
+    """
     try:
         return os.path.samefile(a, b)
     except OSError:
@@ -28,7 +30,7 @@ def same_file(a, b) -> bool:
 
 
 def check_output(text, flag: str, suffix: str, inputs: dict) -> Path:
-    """The path to write for ``flag``, after checking it.
+    """Check the path to write for ``flag`` and return it.
 
     Parameters
     ----------

@@ -26,7 +26,7 @@ def _bounds_text(kind: type, above, at_least, at_most) -> str:
 
 
 def number(kind: type = float, *, above=None, at_least=None, at_most=None):
-    """An argparse ``type``: text to ``kind`` (``float`` or ``int``), finite and within bounds.
+    """Make an argparse ``type``: text to ``kind`` (``float`` or ``int``), finite and within bounds.
 
     Parameters
     ----------
@@ -73,9 +73,9 @@ nonnegative_int = number(int, at_least=0)
 
 
 class Once(argparse.Action):
-    """Store a value, refusing the option when it is given a second time (``what`` names
-    the value in the message).
+    """Store a value, refusing the option when it is given a second time.
 
+    ``what`` names the value in the message.
     For options naming one file or one choice (``--strain``, ``--bank``, ``--output``):
     with the last one silently winning, ``--strain a.h5 --strain b.h5`` would search
     only ``b.h5``.

@@ -35,7 +35,7 @@ def _workload_list(text: str) -> list[str]:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    """The flags of ``chirpsift bench``."""
+    """Add the flags of ``chirpsift bench`` to ``parser``."""
     parser.description = (
         "Run the standard benchmark workloads (chirpsift.benchmarks) and print one table. Every target is a "
         "ratio of two timings taken in the same run; speed is measured, never asserted, so the exit status "

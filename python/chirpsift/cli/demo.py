@@ -10,8 +10,6 @@ grid point's; most sources between the grid points would be lost.)
 from __future__ import annotations
 
 import argparse
-import os
-import tempfile
 import textwrap
 import time
 from pathlib import Path
@@ -54,7 +52,7 @@ GRID_LOSS_TEXT = "for 16 random sources in its mass range the best template kept
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    """The flags of ``chirpsift demo``."""
+    """Add the flags of ``chirpsift demo`` to ``parser``."""
     m1, m2 = DEMO_MASSES
     parser.description = (
         f"Generate coloured Gaussian noise for an invented detector site ({DEMO_SITE}) from the "
@@ -74,7 +72,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def best_match(bank, m1: float, m2: float, *, f_low: float, sample_rate: float, duration: float, psd: str):
-    """The template of ``bank`` that best matches a non-spinning ``m1 + m2`` source.
+    """Find the template of ``bank`` that best matches a non-spinning ``m1 + m2`` source.
 
     Parameters
     ----------
@@ -115,18 +113,6 @@ def best_match(bank, m1: float, m2: float, *, f_low: float, sample_rate: float, 
     return float(matches[best]), best
 
 
-def _save_strain(path: Path, data, sample_rate: float, t0: float) -> None:
-    """``np.savez`` into a temporary file beside ``path``, renamed onto it once complete."""
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".partial.npz", dir=path.parent)
-    os.close(fd)
-    try:
-        np.savez(tmp, strain=data, sample_rate=sample_rate, t0=t0)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
 def _say(paragraph: str) -> None:
     print(textwrap.fill(paragraph, width=100))
 
@@ -136,8 +122,11 @@ def _dash(value, fmt: str, width: int) -> str:
 
 
 def _comparison(tc: float, masses, loud: dict | None) -> list[str]:
-    """The injected source and the loudest trigger side by side, each quantity in its own
-    labelled column (the injection has an optimal SNR; a trigger has measured ones)."""
+    """Lay out the injected source and the loudest trigger side by side.
+
+    Each quantity has its own labelled column: the injection has an optimal SNR, a
+    trigger has measured ones.
+    """
     cols = [("", 16, None), ("time (s)", 14, ".4f"), ("m1 (Msun)", 10, ".3f"), ("m2 (Msun)", 10, ".3f"),
             ("optimal SNR", 12, ".2f"), ("measured SNR", 13, ".2f"), ("chi2/dof", 9, ".2f"),
             ("reweighted SNR", 15, ".2f")]
@@ -170,7 +159,7 @@ def _chi2_expectation(bands: int) -> str:
 def run(args) -> int:
     """Run ``chirpsift demo`` from parsed arguments (see :func:`add_arguments`)."""
     from ..bank import Bank
-    from ..io import StrainSeries, write_json_atomic, write_triggers
+    from ..io import StrainSeries, atomic_path, write_json_atomic, write_triggers
     from ..synthetic import colored_gaussian_noise, inject_taylorf2, optimal_snr
     from ..waveform import chirp_duration
 
@@ -255,7 +244,8 @@ def run(args) -> int:
     print(f"{plural(len(triggers), 'trigger')} in {wall:.1f} s.")
 
     if out_dir is not None:
-        _save_strain(out_dir / "strain.npz", data, fs, t0)
+        with atomic_path(out_dir / "strain.npz") as tmp, open(tmp, "wb") as fh:
+            np.savez(fh, strain=data, sample_rate=fs, t0=t0)
         bank.save(out_dir / "bank.npz")
         write_triggers(out_dir / "triggers.parquet", triggers, doc)
         write_json_atomic(out_dir / "summary.json", doc)

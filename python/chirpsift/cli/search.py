@@ -31,7 +31,7 @@ _TYPES = {"positive": positive_float, "nonnegative": nonnegative_float, "real": 
 
 #: What one value of a single-valued file or name option is, for the "given twice" message.
 _ONE = {"strain": "strain file", "bank": "bank file", "dataset": "dataset", "output": "trigger file",
-        "summary": "summary file", "sample_rate_attr": "attribute name", "t0_attr": "attribute name"}
+        "summary": "summary file", "sample_rate_attr": "name", "t0_attr": "name"}
 
 #: read_strain keywords that only exist in the Python API, and the flags that set them.
 _READ_STRAIN_FLAGS = {"sample_rate_attr": "--sample-rate-attr", "t0_attr": "--t0-attr"}
@@ -69,7 +69,7 @@ def _add_flag(group, entry) -> None:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    """The flags of ``chirpsift search``: one per configuration key, plus ``--config``."""
+    """Add the flags of ``chirpsift search`` to ``parser``: one per configuration key, plus ``--config``."""
     parser.description = (
         "Search one strain file with a template bank; write the triggers (a Parquet table) and "
         "a JSON run summary. Every flag except --config has a key of the same name in the "
@@ -101,9 +101,6 @@ def _read_strain(inputs: dict):
     from ..io import read_strain
 
     attrs = {name: inputs[name] for name in _READ_STRAIN_FLAGS if inputs.get(name) is not None}
-    if attrs and inputs.get("dataset") is None:
-        flags = " and ".join(_READ_STRAIN_FLAGS[name] for name in attrs)
-        raise UsageError(f"{flags} name attributes of an HDF5 dataset: give --dataset (HDF5 input only)")
     try:
         return read_strain(inputs["strain"], dataset=inputs.get("dataset"), sample_rate=inputs.get("sample_rate"),
                            t0=inputs.get("t0"), **attrs)
@@ -120,8 +117,10 @@ def _search(strain, bank, settings, progress: bool):
 
 
 def describe_analysed(doc: dict) -> str:
-    """One line: how much of the data the search analysed (its live time), in how many
-    segments, what the gates took and what was left out."""
+    """Say in one line how much of the data the search analysed (its live time).
+
+    Also in how many segments, what the gates took and what was left out.
+    """
     total = doc["inputs"]["strain"]["duration"]
     text = (f"Analysed {doc['live_time']:.6g} s of the {total:.6g} s ({100 * doc['analysed_fraction']:.1f}%) "
             f"in {plural(doc['counts']['segments'], 'segment')}")
@@ -138,7 +137,7 @@ def describe_analysed(doc: dict) -> str:
 
 
 def describe_trigger(loud: dict | None) -> str:
-    """A trigger in words: time, template masses, SNR, chi-squared per degree of freedom, reweighted SNR."""
+    """Describe a trigger: time, template masses, SNR, chi-squared per degree of freedom, reweighted SNR."""
     if loud is None:
         return "no triggers"
     return (

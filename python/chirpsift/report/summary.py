@@ -30,7 +30,7 @@ def _float_pairs(values) -> list:
 
 
 def loudest(triggers: np.ndarray) -> dict | None:
-    """The trigger with the largest reweighted SNR as plain Python values, or ``None``.
+    """Return the trigger with the largest reweighted SNR as plain Python values, or ``None``.
 
     Parameters
     ----------
@@ -58,8 +58,11 @@ def _seconds(pairs) -> float:
 
 
 def _search_report(info: dict) -> dict:
-    """What else the search reported about itself (segment length, pads, longest template,
-    stretches, ...): every entry of ``info`` not recorded elsewhere in the document."""
+    """Keep what else the search reported about itself.
+
+    Segment length, pads, longest template, stretches, ...: every entry of ``info`` not
+    recorded elsewhere in the document.
+    """
     return {key: value for key, value in info.items() if key not in _TOP_LEVEL}
 
 
