@@ -196,6 +196,13 @@ def test_misspelt_flag_suggests_the_nearest(capsys):
     assert "did you mean search?" in capsys.readouterr().err
 
 
+def test_a_flag_that_conflicts_with_the_file_is_named_as_a_flag(inputs, capsys):
+    rc = main(["search", "--strain", str(inputs["strain"]), "--sample-rate", "512", "--bank", str(inputs["bank"]),
+               "--f-low", "30", "--output", str(inputs["strain"].with_name("t.parquet"))])
+    err = capsys.readouterr().err
+    assert rc == 2 and "--sample-rate=512.0 Hz conflicts with 256.0 Hz" in err and "argument" not in err
+
+
 def test_file_errors_point_to_flags_not_python_keywords(tmp_path, capsys):
     s = tmp_path / "s.npy"
     np.save(s, np.zeros(64))

@@ -61,8 +61,10 @@ def in_flag_terms(message: str, api_only: dict | None = None) -> str:
     """``message`` as a command-line user needs it: flags, not Python keywords.
 
     A keyword followed by its own flag (``"pass sample_rate (--sample-rate)"``,
-    ``"(dataset=, --dataset)"``) keeps only the flag; the keywords in ``api_only`` (keyword
-    to flag) are replaced wherever they appear.
+    ``"(dataset=, --dataset)"``) keeps only the flag; a value explained as an argument
+    (``"sample_rate=2048.0 Hz (the sample_rate argument, --sample-rate)"``) is shown as
+    the flag's (``"--sample-rate=2048.0 Hz"``); the keywords in ``api_only`` (keyword to
+    flag) are replaced wherever they appear.
 
     Examples
     --------
@@ -71,11 +73,17 @@ def in_flag_terms(message: str, api_only: dict | None = None) -> str:
     'pass --sample-rate or set --t0-attr'
     >>> in_flag_terms("name the dataset (dataset=, --dataset)")
     'name the dataset (--dataset)'
+    >>> in_flag_terms("f.npz: sample_rate=2.0 Hz (the sample_rate argument, --sample-rate) conflicts")
+    'f.npz: --sample-rate=2.0 Hz conflicts'
     """
 
     def keep_flag(match):
         return match.group(2) if _flag_of(match.group(1)) == match.group(2) else match.group(0)
 
+    for name, flag in re.findall(r" \(the ([a-z][a-z0-9_]*) argument, (--[a-z0-9-]+)\)", message):
+        if _flag_of(name) == flag:
+            message = message.replace(f" (the {name} argument, {flag})", "")
+            message = re.sub(rf"(?<![\w-]){re.escape(name)}=", f"{flag}=", message)
     message = re.sub(r"(?<![\w-])([a-z][a-z0-9_]*) \((--[a-z0-9-]+)\)", keep_flag, message)
     message = re.sub(r"\(([a-z][a-z0-9_]*)=, (--[a-z0-9-]+)\)",
                      lambda m: f"({m.group(2)})" if _flag_of(m.group(1)) == m.group(2) else m.group(0), message)
