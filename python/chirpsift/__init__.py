@@ -17,6 +17,7 @@ from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_p
 from .threads import get_threads, set_threads
 from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
 from .network import Site, coincidences, light_travel_time, load_sites
+from .inject import draw_injections, efficiency, horizon_distance, injection_snr, project, sensitive_volume, sensitivity
 
 __version__ = "0.1.0"
 
@@ -54,4 +55,11 @@ __all__ = [
     "coincidences",
     "light_travel_time",
     "load_sites",
+    "draw_injections",
+    "efficiency",
+    "horizon_distance",
+    "injection_snr",
+    "project",
+    "sensitive_volume",
+    "sensitivity",
 ]
