@@ -253,7 +253,7 @@ def _fast_length(n: int) -> int:
     return 1 << max(1, int(n - 1).bit_length())
 
 
-def project(injections, site, *, start, duration, sample_rate, f_low, approximant="taylorf2"):
+def project(injections, site, *, start, duration, sample_rate, f_low, approximant="taylorf2", require_overlap=True):
     """Strain that a set of simulated sources adds at one site.
 
     Parameters
@@ -274,6 +274,10 @@ def project(injections, site, *, start, duration, sample_rate, f_low, approximan
         search); below it the signal is switched on smoothly (Notes).
     approximant : {"taylorf2"}, optional
         Signal model: :func:`chirpsift.taylorf2` with the injection's masses and spins.
+    require_overlap : bool, optional
+        Raise if no signal overlaps the span (the usual sign of injection times that do
+        not belong to these data). Pass False when projecting long data block by block,
+        where some blocks hold no signal; they come back as zeros.
 
     Returns
     -------
@@ -283,7 +287,8 @@ def project(injections, site, *, start, duration, sample_rate, f_low, approximan
     Raises
     ------
     ValueError
-        If no injection's signal overlaps ``[start, start + duration)``, or ``f_low``
+        If no injection's signal overlaps ``[start, start + duration)`` (unless
+        ``require_overlap`` is False), or ``f_low``
         is at or above an injection's ISCO frequency.
 
     Notes
@@ -349,7 +354,7 @@ def project(injections, site, *, start, duration, sample_rate, f_low, approximan
     first = np.floor((t_site - t0 - pre) * fs).astype(np.int64)
     length = np.array([_fast_length(int(math.ceil((p + POST_MERGER) * fs)) + 1) for p in pre], dtype=np.int64)
     overlaps = (first < n) & (first + length > 0)
-    if not overlaps.any():
+    if require_overlap and not overlaps.any():
         raise ValueError(
             f"injections: none of the {inj.size} signals (coalescence times {inj['time'].min():.6f} to "
             f"{inj['time'].max():.6f} s) overlaps the data [{t0}, {t0 + n / fs}) s"

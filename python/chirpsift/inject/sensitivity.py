@@ -332,7 +332,8 @@ def plot_efficiency(table, path, *, title=None, xlabel="distance (Mpc)", sensiti
     ok = table["injected"] > 0
     mid = 0.5 * (table["low"] + table["high"])
     e = table["efficiency"]
-    ax.errorbar(mid[ok], e[ok], yerr=[e[ok] - table["lower"][ok], table["upper"][ok] - e[ok]],
+    yerr = [np.maximum(e[ok] - table["lower"][ok], 0.0), np.maximum(table["upper"][ok] - e[ok], 0.0)]
+    ax.errorbar(mid[ok], e[ok], yerr=yerr,
                 xerr=0.5 * (table["high"] - table["low"])[ok], fmt="o", ms=4, capsize=2, color="C0",
                 label="found / injected (Wilson 68% interval)")
     if sensitive_range is not None:
