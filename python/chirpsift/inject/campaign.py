@@ -1,0 +1,175 @@
+"""Injection campaigns: search data with simulated signals added, with the analysis's
+own settings, and say which signals were found, how loud, and how significant.
+
+The found/missed table (:func:`found_missed`) has one row per injection: the injection's
+parameters (:data:`chirpsift.inject.INJECTION_DTYPE`), then
+
+``analysed`` (bool)
+    the coalescence time at every site lies inside that site's analysed time, so the
+    search could have found it; efficiencies and volumes should count only these rows,
+``<site>_optimal_snr`` (float64)
+    optimal SNR at each site from its PSD (:func:`chirpsift.injection_snr`),
+``network_optimal_snr`` (float64)
+    their quadrature sum,
+``found`` (bool)
+    a candidate was matched and passes the threshold (:func:`match_injections`),
+``statistic``, ``far`` (per year), ``ifar`` (years), ``recovered_time`` (s), ``template``
+    of the matched candidate (NaN, NaN, 0, NaN and -1 when none).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .._validate import nonnegative_scalar, real_array
+from .population import INJECTION_DTYPE, injection_table
+
+__all__ = ["MATCH_WINDOW", "match_injections", "found_missed", "found_missed_dtype", "analysed_mask"]
+
+#: Default half-width (s) of the window around an injection's geocentric coalescence time
+#: in which a candidate is taken as its recovery: the largest geocentric delay
+#: (Earth radius / c = 21 ms) plus the time offset of a near-miss template (a
+#: mass mismatch shifts the SNR peak by up to a few tens of ms), with room to spare; far
+#: below the search's clustering window (1 s), so a signal is never matched to a
+#: neighbour's candidate.
+MATCH_WINDOW = 0.1
+
+
+def found_missed_dtype(site_names) -> np.dtype:
+    """dtype of the found/missed table for the given site names (module notes)."""
+    fields = list(INJECTION_DTYPE.descr) + [("analysed", "?")]
+    fields += [(f"{name}_optimal_snr", "f8") for name in site_names]
+    fields += [("network_optimal_snr", "f8"), ("found", "?"), ("statistic", "f8"), ("far", "f8"), ("ifar", "f8"),
+               ("recovered_time", "f8"), ("template", "i4")]
+    return np.dtype(fields)
+
+
+def match_injections(times, candidate_times, candidate_statistic, *, window=MATCH_WINDOW) -> np.ndarray:
+    """Index of the candidate that recovers each injection, or -1.
+
+    Parameters
+    ----------
+    times : array_like, shape (n,)
+        Injection times (s), e.g. geocentric coalescence times.
+    candidate_times : array_like, shape (m,)
+        Candidate times (s), in the same frame.
+    candidate_statistic : array_like, shape (m,)
+        Ranking statistic of each candidate.
+    window : float, optional
+        Half-width (s) of the matching window, :data:`MATCH_WINDOW` by default.
+
+    Returns
+    -------
+    ndarray of int64, shape (n,)
+        For each injection, the candidate with the largest statistic among those within
+        ``|t_candidate - t_injection| <= window``; -1 if there is none.
+    """
+    t = real_array("times", times, ndim=1, allow_empty=True)
+    ct = real_array("candidate_times", candidate_times, ndim=1, allow_empty=True)
+    cs_ = real_array("candidate_statistic", candidate_statistic, ndim=1, allow_empty=True, finite=False)
+    if cs_.shape != ct.shape:
+        raise ValueError(f"candidate_statistic must have one value per candidate ({ct.size}), got {cs_.size}")
+    w = nonnegative_scalar("window", window)
+    out = np.full(t.size, -1, dtype=np.int64)
+    if ct.size == 0 or t.size == 0:
+        return out
+    order = np.argsort(ct, kind="stable")
+    sorted_t = ct[order]
+    lo = np.searchsorted(sorted_t, t - w, side="left")
+    hi = np.searchsorted(sorted_t, t + w, side="right")
+    for i in np.flatnonzero(hi > lo):
+        idx = order[lo[i]:hi[i]]
+        stat = np.where(np.isnan(cs_[idx]), -np.inf, cs_[idx])
+        out[i] = idx[int(np.argmax(stat))]
+    return out
+
+
+def analysed_mask(times, intervals) -> np.ndarray:
+    """Whether each time lies in one of the ``[start, end)`` intervals (a (k, 2) array, s)."""
+    t = real_array("times", times, ndim=1, allow_empty=True)
+    iv = real_array("analysed", intervals, ndim=2, allow_empty=True).reshape(-1, 2)
+    inside = np.zeros(t.size, dtype=bool)
+    for a, b in iv:
+        inside |= (t >= a) & (t < b)
+    return inside
+
+
+def found_missed(injections, candidates, *, optimal_snr, analysed=None, window=MATCH_WINDOW, ifar_threshold=None,
+                 min_statistic=None, statistic="statistic") -> np.ndarray:
+    """Found/missed table of an injection set against a search's candidates.
+
+    Parameters
+    ----------
+    injections : ndarray of :data:`chirpsift.inject.INJECTION_DTYPE`
+        The injections made.
+    candidates : structured ndarray
+        Candidates (or one site's triggers) with fields ``time``, ``template`` and the
+        ranking field named by ``statistic``; ``far`` and ``ifar`` are copied when present.
+    optimal_snr : mapping of str to array_like
+        Site name -> optimal SNR of each injection there.
+    analysed : mapping of str to (k, 2) array_like, optional
+        Site name -> analysed intervals; an injection counts as analysed if its time at
+        the Earth's centre lies inside every site's intervals (delays of up to 21 ms are
+        ignored here). Default: everything analysed.
+    window : float, optional
+        Matching half-width (s) around the geocentric time, :data:`MATCH_WINDOW`.
+    ifar_threshold : float, optional
+        Years: found only if the matched candidate's ``ifar`` reaches it.
+    min_statistic : float, optional
+        Found only if the matched candidate's statistic reaches it (e.g. an SNR threshold
+        for one site's triggers).
+    statistic : str, optional
+        Candidate field that ranks candidates (``"statistic"`` for network candidates,
+        ``"snr"`` or ``"reweighted_snr"`` for triggers).
+
+    Returns
+    -------
+    ndarray of :func:`found_missed_dtype`
+        One row per injection (module notes). With neither threshold, every matched
+        injection counts as found.
+    """
+    inj = injection_table(injections)
+    if not isinstance(candidates, np.ndarray) or candidates.dtype.names is None:
+        raise TypeError(f"candidates must be a structured array, got {type(candidates).__name__}")
+    for field in ("time", "template", statistic):
+        if field not in candidates.dtype.names:
+            raise ValueError(f"candidates lack the field {field!r} (fields: {', '.join(candidates.dtype.names)})")
+    names = list(optimal_snr)
+    out = np.zeros(inj.size, dtype=found_missed_dtype(names))
+    for field in INJECTION_DTYPE.names:
+        out[field] = inj[field]
+    total = np.zeros(inj.size)
+    for name in names:
+        rho = real_array(f"optimal_snr[{name!r}]", optimal_snr[name], ndim=1)
+        if rho.shape != (inj.size,):
+            raise ValueError(f"optimal_snr[{name!r}] must have one value per injection ({inj.size}), got {rho.size}")
+        out[f"{name}_optimal_snr"] = rho
+        total += rho**2
+    out["network_optimal_snr"] = np.sqrt(total)
+    out["analysed"] = True
+    for name, intervals in (analysed or {}).items():
+        out["analysed"] &= analysed_mask(inj["time"], intervals)
+    stat = np.asarray(candidates[statistic], dtype=np.float64)
+    match = match_injections(inj["time"], candidates["time"], stat, window=window)
+    hit = match >= 0
+    m = match[hit]
+    out["statistic"] = np.nan
+    out["far"] = np.nan
+    out["ifar"] = 0.0
+    out["recovered_time"] = np.nan
+    out["template"] = -1
+    out["statistic"][hit] = stat[m]
+    out["recovered_time"][hit] = candidates["time"][m]
+    out["template"][hit] = candidates["template"][m]
+    for field in ("far", "ifar"):
+        if field in candidates.dtype.names:
+            out[field][hit] = candidates[field][m]
+    found = hit.copy()
+    if ifar_threshold is not None:
+        if "ifar" not in candidates.dtype.names:
+            raise ValueError("ifar_threshold needs candidates with an 'ifar' field (network candidates)")
+        found &= out["ifar"] >= nonnegative_scalar("ifar_threshold", ifar_threshold)
+    if min_statistic is not None:
+        found &= out["statistic"] >= real_array("min_statistic", min_statistic, ndim=0)
+    out["found"] = found
+    return out
