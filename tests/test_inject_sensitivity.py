@@ -63,7 +63,8 @@ def test_sensitive_range_is_horizon_over_finn_chernoff_factor():
     assert abs(gain - 1.0436) < 1e-3
     assert abs(noisy.range - gain * expect) < 3 * noisy.range_error
     print(f"horizon {horizon:.2f} Mpc, horizon/2.2648 {expect:.2f} Mpc, range (optimal SNR) "
-          f"{exact.range:.2f} +- {exact.range_error:.2f}, range (with noise) {noisy.range:.2f} +- {noisy.range_error:.2f}")
+          f"{exact.range:.2f} +- {exact.range_error:.2f}, "
+          f"range (with noise) {noisy.range:.2f} +- {noisy.range_error:.2f}")
 
 
 def test_mean_square_orientation_factor_is_sixteen_hundredths():

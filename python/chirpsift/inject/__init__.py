@@ -10,8 +10,23 @@ This workflow uses only chirpsift's numpy API, never the compiled core.
 """
 
 from .campaign import MATCH_WINDOW, analysed_mask, found_missed, found_missed_dtype, match_injections
-from .population import DISTANCE_DISTRIBUTIONS, INJECTION_COLUMNS, INJECTION_DTYPE, SPACING_MARGIN, draw_injections, longest_signal
-from .project import APPROXIMANTS, arrival_times, effective_distance, injection_snr, optimal_sigma, project, site_response
+from .population import (
+    DISTANCE_DISTRIBUTIONS,
+    INJECTION_COLUMNS,
+    INJECTION_DTYPE,
+    SPACING_MARGIN,
+    draw_injections,
+    longest_signal,
+)
+from .project import (
+    APPROXIMANTS,
+    arrival_times,
+    effective_distance,
+    injection_snr,
+    optimal_sigma,
+    project,
+    site_response,
+)
 from .sensitivity import (
     EFFICIENCY_DTYPE,
     FINN_CHERNOFF_RATIO,

@@ -19,12 +19,16 @@ parameters (:data:`chirpsift.inject.INJECTION_DTYPE`), then
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+from dataclasses import dataclass
+
 import numpy as np
 
 from .._validate import nonnegative_scalar, real_array
 from .population import INJECTION_DTYPE, injection_table
 
-__all__ = ["MATCH_WINDOW", "match_injections", "found_missed", "found_missed_dtype", "analysed_mask"]
+__all__ = ["MATCH_WINDOW", "CampaignResult", "analysed_mask", "common_time", "found_missed", "found_missed_dtype",
+           "match_injections", "run_campaign"]
 
 #: Default half-width (s) of the window around an injection's geocentric coalescence time
 #: in which a candidate is taken as its recovery: the largest geocentric delay
@@ -173,3 +177,153 @@ def found_missed(injections, candidates, *, optimal_snr, analysed=None, window=M
         found &= out["statistic"] >= real_array("min_statistic", min_statistic, ndim=0)
     out["found"] = found
     return out
+
+
+def common_time(analysed) -> float:
+    """Seconds covered by every site's analysed intervals at once (the coincident live time)."""
+    spans = None
+    for name, intervals in analysed.items():
+        iv = real_array(f"analysed[{name!r}]", intervals, ndim=2, allow_empty=True).reshape(-1, 2)
+        iv = iv[np.argsort(iv[:, 0])]
+        if spans is None:
+            spans = [tuple(r) for r in iv]
+            continue
+        out = []
+        for a, b in spans:
+            for c, d in iv:
+                lo, hi = max(a, c), min(b, d)
+                if hi > lo:
+                    out.append((lo, hi))
+        spans = out
+    return float(sum(b - a for a, b in spans or []))
+
+
+@dataclass(frozen=True)
+class CampaignResult:
+    """What :func:`run_campaign` found.
+
+    Attributes
+    ----------
+    found_missed : ndarray
+        One row per injection (module notes).
+    candidates, background : ndarray
+        The network stage's zero-lag candidates and time-slide background over the data
+        with injections (:func:`chirpsift.coincidences`).
+    triggers : dict of ndarray
+        Each site's trigger table.
+    analysed : dict of list of (float, float)
+        Each site's analysed intervals (s).
+    analysed_time : float
+        Seconds analysed by every site at once.
+    """
+
+    found_missed: np.ndarray
+    candidates: np.ndarray
+    background: np.ndarray
+    triggers: dict
+    analysed: dict
+    analysed_time: float
+
+
+def _site_mapping(sites) -> dict:
+    if isinstance(sites, Mapping):
+        return dict(sites)
+    out = {}
+    for s in sites:
+        name = getattr(s, "name", None)
+        if not isinstance(name, str):
+            raise TypeError(f"sites must be chirpsift.Site objects (with a name) or a mapping of them, got {s!r}")
+        out[name] = s
+    return out
+
+
+def run_campaign(strain, sites, injections, bank, *, sample_rate, t0, f_low, psd=None, settings=None, n_slides=0,
+                 slide_step=None, coincidence_window=None, match_window=MATCH_WINDOW, ifar_threshold=None,
+                 progress=False) -> CampaignResult:
+    """Search data with injections added at every site and tabulate found and missed signals.
+
+    Parameters
+    ----------
+    strain : mapping of str to array_like
+        Site name -> that site's strain (the analysis's data, without the injections),
+        all at ``sample_rate`` and starting at ``t0``.
+    sites : sequence or mapping of chirpsift.Site
+        The site set; every key of ``strain`` must name one of them.
+    injections : ndarray of :data:`chirpsift.inject.INJECTION_DTYPE`
+        The injections (see :func:`chirpsift.draw_injections`).
+    bank : chirpsift.Bank or equivalent
+        The analysis's template bank.
+    sample_rate, t0, f_low : float
+        Hz, GPS s of the first sample, Hz (as for :func:`chirpsift.search`).
+    psd : optional
+        As for :func:`chirpsift.search` (``None``: estimated per segment). The optimal
+        SNRs use it too, or, when ``None``, a Welch median estimate from each site's
+        whole strain (without injections).
+    settings : chirpsift.SearchSettings or mapping, optional
+        The analysis's search settings (``f_low`` here wins).
+    n_slides, slide_step, coincidence_window
+        Passed to :func:`chirpsift.coincidences` (time slides for the background, and
+        the coincidence window).
+    match_window : float, optional
+        Seconds around each geocentric coalescence time searched for its candidate.
+    ifar_threshold : float, optional
+        Years: an injection counts as found only if its candidate reaches it; without a
+        threshold any matched candidate counts.
+    progress : bool, optional
+        Show the search's progress bars.
+
+    Returns
+    -------
+    CampaignResult
+
+    Notes
+    -----
+    The candidates' false-alarm rates come from time slides of the data with
+    injections, as the analysis's would with signals in the data; with many loud
+    injections the background grows a little (an injection coincident with noise at a
+    shifted site), which makes the measured false-alarm rates conservative. An injection
+    counts as analysed when its geocentric time lies inside every site's analysed time.
+    """
+    from ..network import coincidences
+    from ..pipeline import SearchSettings, search
+    from ..spectrum import welch
+    from .project import injection_snr, project
+
+    inj = injection_table(injections)
+    site_map = _site_mapping(sites)
+    if not isinstance(strain, Mapping) or not strain:
+        raise TypeError("strain must be a non-empty mapping of site name to strain array")
+    unknown = [name for name in strain if name not in site_map]
+    if unknown:
+        raise ValueError(f"strain names site {unknown[0]!r}, which is not in the site set "
+                         f"({', '.join(site_map) or 'empty'})")
+    if settings is None:
+        base = {}
+    elif isinstance(settings, SearchSettings):
+        base = settings.as_dict()
+    else:
+        base = SearchSettings.from_mapping({"f_low": f_low, **dict(settings)}).as_dict()
+    base["f_low"] = f_low
+    chosen = SearchSettings(**base)
+    fs = float(sample_rate)
+    triggers, analysed, snrs = {}, {}, {}
+    for name, data in strain.items():
+        x = np.asarray(data, dtype=np.float64)
+        site = site_map[name]
+        added = project(inj, site, start=t0, duration=x.size / fs, sample_rate=fs, f_low=f_low,
+                        require_overlap=False)
+        trig, info = search(x + added, fs, bank, t0=t0, psd=psd, progress=progress, full_output=True,
+                            **chosen.as_dict())
+        triggers[name], analysed[name] = trig, [tuple(map(float, iv)) for iv in info["analysed"]]
+        if psd is None:
+            freqs, est = welch(x, fs, chosen.welch_duration, average="median")
+            site_psd = (freqs, est)
+        else:
+            site_psd = psd
+        snrs[name] = injection_snr(inj, site, site_psd, f_low=f_low, f_high=fs / 2)
+    used = {name: site_map[name] for name in strain}
+    candidates, background = coincidences(triggers, used, analysed={k: np.asarray(v) for k, v in analysed.items()},
+                                          n_slides=n_slides, slide_step=slide_step, window=coincidence_window)
+    table = found_missed(inj, candidates, optimal_snr=snrs, analysed=analysed, window=match_window,
+                         ifar_threshold=ifar_threshold)
+    return CampaignResult(table, candidates, background, triggers, analysed, common_time(analysed))
