@@ -7,6 +7,7 @@ response and delay formulas are written out independently of chirpsift."""
 
 import numpy as np
 import pytest
+from hypothesis import given, settings, strategies as st
 from scipy.optimize import minimize_scalar
 
 import chirpsift as cs
@@ -240,3 +241,18 @@ def test_sky_fixed_site_double_matches_the_literature():
     assert abs(fp[0] ** 2 + fx[0] ** 2 - 1) < 1e-12
     fp, fx = site.antenna_pattern(np.array([1.1]), np.array([np.pi / 2 - 0.7]), np.array([0.9]), 0.0)
     assert abs(fp[0] ** 2 + fx[0] ** 2 - 0.599897) < 1e-6
+
+
+@settings(max_examples=40, deadline=None)
+@given(distance=st.floats(-1e6, 0.0, allow_nan=False), shift=st.floats(1e3, 1e8))
+def test_any_non_positive_distance_or_far_off_time_is_refused(distance, shift):
+    # Property: a non-positive distance is an error naming the field and value; a set
+    # whose signals all lie outside the data is an error naming the data span.
+    inj = _one_injection(1)
+    bad = inj.copy()
+    bad["distance"] = distance
+    with pytest.raises(ValueError, match=r"\['distance'\] must be positive"):
+        cs.project(bad, FixedResponse("o", 1.0, 0.0), start=T0, duration=8.0, sample_rate=256.0, f_low=F_LOW)
+    with pytest.raises(ValueError, match=r"overlaps the data \["):
+        cs.project(inj, FixedResponse("o", 1.0, 0.0), start=T0 + shift, duration=8.0, sample_rate=256.0,
+                   f_low=F_LOW)
