@@ -9,7 +9,15 @@ efficiency, sensitive volume, volume-time and range (:mod:`chirpsift.inject.sens
 This workflow uses only chirpsift's numpy API, never the compiled core.
 """
 
-from .campaign import MATCH_WINDOW, analysed_mask, found_missed, found_missed_dtype, match_injections
+from .campaign import (
+    MATCH_WINDOW,
+    CampaignResult,
+    analysed_mask,
+    found_missed,
+    found_missed_dtype,
+    match_injections,
+    run_campaign,
+)
 from .population import (
     DISTANCE_DISTRIBUTIONS,
     INJECTION_COLUMNS,
@@ -43,6 +51,8 @@ from .sensitivity import (
 __all__ = [
     "APPROXIMANTS",
     "MATCH_WINDOW",
+    "CampaignResult",
+    "run_campaign",
     "analysed_mask",
     "found_missed",
     "found_missed_dtype",

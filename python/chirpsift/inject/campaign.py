@@ -27,7 +27,7 @@ import numpy as np
 from .._validate import nonnegative_scalar, real_array
 from .population import INJECTION_DTYPE, injection_table
 
-__all__ = ["MATCH_WINDOW", "CampaignResult", "analysed_mask", "common_time", "found_missed", "found_missed_dtype",
+__all__ = ["MATCH_WINDOW", "CampaignResult", "analysed_mask", "found_missed", "found_missed_dtype",
            "match_injections", "run_campaign"]
 
 #: Default half-width (s) of the window around an injection's geocentric coalescence time
@@ -179,25 +179,6 @@ def found_missed(injections, candidates, *, optimal_snr, analysed=None, window=M
     return out
 
 
-def common_time(analysed) -> float:
-    """Seconds covered by every site's analysed intervals at once (the coincident live time)."""
-    spans = None
-    for name, intervals in analysed.items():
-        iv = real_array(f"analysed[{name!r}]", intervals, ndim=2, allow_empty=True).reshape(-1, 2)
-        iv = iv[np.argsort(iv[:, 0])]
-        if spans is None:
-            spans = [tuple(r) for r in iv]
-            continue
-        out = []
-        for a, b in spans:
-            for c, d in iv:
-                lo, hi = max(a, c), min(b, d)
-                if hi > lo:
-                    out.append((lo, hi))
-        spans = out
-    return float(sum(b - a for a, b in spans or []))
-
-
 @dataclass(frozen=True)
 class CampaignResult:
     """What :func:`run_campaign` found.
@@ -208,13 +189,14 @@ class CampaignResult:
         One row per injection (module notes).
     candidates, background : ndarray
         The network stage's zero-lag candidates and time-slide background over the data
-        with injections (:func:`chirpsift.coincidences`).
+        with injections (:func:`chirpsift.coincidences`); the candidates' ``far`` and
+        ``ifar`` are against the analysis's background when one was given.
     triggers : dict of ndarray
         Each site's trigger table.
     analysed : dict of list of (float, float)
         Each site's analysed intervals (s).
     analysed_time : float
-        Seconds analysed by every site at once.
+        Seconds analysed by every site at once (the network stage's live time).
     """
 
     found_missed: np.ndarray
@@ -238,8 +220,8 @@ def _site_mapping(sites) -> dict:
 
 
 def run_campaign(strain, sites, injections, bank, *, sample_rate, t0, f_low, psd=None, settings=None, n_slides=0,
-                 slide_step=None, coincidence_window=None, match_window=MATCH_WINDOW, ifar_threshold=None,
-                 progress=False) -> CampaignResult:
+                 slide_step=None, coincidence_window=None, background=None, match_window=MATCH_WINDOW,
+                 ifar_threshold=None, progress=False) -> CampaignResult:
     """Search data with injections added at every site and tabulate found and missed signals.
 
     Parameters
@@ -263,7 +245,13 @@ def run_campaign(strain, sites, injections, bank, *, sample_rate, t0, f_low, psd
         The analysis's search settings (``f_low`` here wins).
     n_slides, slide_step, coincidence_window
         Passed to :func:`chirpsift.coincidences` (time slides for the background, and
-        the coincidence window).
+        its timing allowance ``window``); the search's ``peak_window`` goes with them.
+    background : (array_like, float), optional
+        ``(statistic, background_time)`` of the analysis's own time-slide background
+        (without injections; ``background_time`` in seconds): the candidates' false-alarm
+        rates are then measured against it (:func:`chirpsift.network.far.false_alarm_rate`)
+        instead of against the slides of the data with injections, and ``n_slides`` may
+        be 0.
     match_window : float, optional
         Seconds around each geocentric coalescence time searched for its candidate.
     ifar_threshold : float, optional
@@ -278,13 +266,16 @@ def run_campaign(strain, sites, injections, bank, *, sample_rate, t0, f_low, psd
 
     Notes
     -----
-    The candidates' false-alarm rates come from time slides of the data with
-    injections, as the analysis's would with signals in the data; with many loud
-    injections the background grows a little (an injection coincident with noise at a
-    shifted site), which makes the measured false-alarm rates conservative. An injection
-    counts as analysed when its geocentric time lies inside every site's analysed time.
+    Without ``background`` the candidates' false-alarm rates come from time slides of the
+    data with injections, as the analysis's would with signals in the data: an injection
+    at one site slid against noise (or another injection) at the others adds loud
+    background, which makes the rates conservative, the more so the more and the louder
+    the injections. With ``background`` they are measured against the analysis's
+    background, where injections cannot add to it. An injection counts as analysed when
+    its geocentric time lies inside every site's analysed time.
     """
     from ..network import coincidences
+    from ..network.far import false_alarm_rate
     from ..pipeline import SearchSettings, search
     from ..spectrum import welch
     from .project import injection_snr, project
@@ -310,8 +301,7 @@ def run_campaign(strain, sites, injections, bank, *, sample_rate, t0, f_low, psd
     for name, data in strain.items():
         x = np.asarray(data, dtype=np.float64)
         site = site_map[name]
-        added = project(inj, site, start=t0, duration=x.size / fs, sample_rate=fs, f_low=f_low,
-                        require_overlap=False)
+        added = project(inj, site, start=t0, duration=x.size / fs, sample_rate=fs, f_low=f_low)
         trig, info = search(x + added, fs, bank, t0=t0, psd=psd, progress=progress, full_output=True,
                             **chosen.as_dict())
         triggers[name], analysed[name] = trig, [tuple(map(float, iv)) for iv in info["analysed"]]
@@ -322,8 +312,15 @@ def run_campaign(strain, sites, injections, bank, *, sample_rate, t0, f_low, psd
             site_psd = psd
         snrs[name] = injection_snr(inj, site, site_psd, f_low=f_low, f_high=fs / 2)
     used = {name: site_map[name] for name in strain}
-    candidates, background = coincidences(triggers, used, analysed={k: np.asarray(v) for k, v in analysed.items()},
-                                          n_slides=n_slides, slide_step=slide_step, window=coincidence_window)
+    candidates, slid, info = coincidences(
+        triggers, used, analysed={k: np.asarray(v) for k, v in analysed.items()}, n_slides=n_slides,
+        slide_step=slide_step, window=coincidence_window, peak_window=chosen.peak_window, full_output=True)
+    if background is not None:
+        bg_stat, bg_time = background
+        far, _ = false_alarm_rate(candidates["statistic"], real_array("background statistic", bg_stat, ndim=1,
+                                                                        allow_empty=True), float(bg_time))
+        candidates = candidates.copy()
+        candidates["far"], candidates["ifar"] = far, 1.0 / far
     table = found_missed(inj, candidates, optimal_snr=snrs, analysed=analysed, window=match_window,
                          ifar_threshold=ifar_threshold)
-    return CampaignResult(table, candidates, background, triggers, analysed, common_time(analysed))
+    return CampaignResult(table, candidates, slid, triggers, analysed, float(info["live_time"]))

@@ -112,7 +112,7 @@ def _strain_map(pairs, flag="--strain") -> dict[str, str]:
 
 
 def _site_set(path) -> dict:
-    from .. import load_sites
+    from ..network import load_sites
 
     sites = load_sites(path)
     if isinstance(sites, dict):
