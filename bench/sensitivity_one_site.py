@@ -37,7 +37,9 @@ NOISE_GAIN = 1.0436
 
 def invented_site():
     """An invented L-shaped site (not a real observatory)."""
-    return cs.Site(name="Kestrel Flats", latitude=37.3, longitude=-104.7, elevation=1500.0, x_azimuth=28.0,
+    from chirpsift.network import Site
+
+    return Site(name="Wrenfield", latitude=37.3, longitude=-104.7, elevation=1500.0, x_azimuth=28.0,
                    y_azimuth=118.0)
 
 
