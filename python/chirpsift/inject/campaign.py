@@ -131,6 +131,17 @@ def found_missed(injections, candidates, *, optimal_snr, analysed=None, window=M
     ndarray of :func:`found_missed_dtype`
         One row per injection (module notes). With neither threshold, every matched
         injection counts as found.
+
+    Examples
+    --------
+    >>> import numpy as np, chirpsift
+    >>> from chirpsift.inject import found_missed
+    >>> inj = chirpsift.draw_injections(2, m1=1.4, m2=1.4, distance=(10, 20), start=0, end=100, f_low=40.0)
+    >>> cands = np.zeros(1, dtype=[("time", "f8"), ("template", "i4"), ("statistic", "f8"), ("ifar", "f8")])
+    >>> cands[0] = (inj["time"][1] + 0.01, 3, 15.0, 20.0)
+    >>> t = found_missed(inj, cands, optimal_snr={"A": [9.0, 14.0]}, ifar_threshold=1.0)
+    >>> t["found"].tolist(), t["template"].tolist()
+    ([False, True], [-1, 3])
     """
     inj = injection_table(injections)
     if not isinstance(candidates, np.ndarray) or candidates.dtype.names is None:

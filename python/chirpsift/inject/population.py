@@ -145,6 +145,13 @@ def draw_injections(n, *, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), distance, di
     slots. A signal starts up to :func:`longest_signal` before its coalescence time:
     put ``start`` at least that far (plus the search's padding) into the data.
 
+    References
+    ----------
+    .. [1] L. S. Finn and D. F. Chernoff, Phys. Rev. D 47, 2198 (1993), gr-qc/9301003
+       (isotropic sky and orientation).
+    .. [2] V. Tiwari, Class. Quantum Grav. 35, 145009 (2018), arXiv:1712.00482 (volume
+       estimates re-weighted by the density injections were drawn from).
+
     Examples
     --------
     >>> import chirpsift
