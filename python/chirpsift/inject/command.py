@@ -360,6 +360,8 @@ def _add_search_flags(group) -> None:
         if option.kind == "switch":
             group.add_argument(flag, dest=option.name, action=argparse.BooleanOptionalAction, default=None,
                                help=option.help + unit)
+        elif option.kind == "choice":
+            group.add_argument(flag, dest=option.name, choices=option.choices, default=None, help=option.help)
         else:
             group.add_argument(flag, dest=option.name, type=kinds[option.kind], metavar=option.unit.upper() or "X",
                                default=None, help=option.help + unit)

@@ -13,7 +13,7 @@ import math
 import numpy as np
 
 from .._validate import positive_int, positive_scalar, real_scalar
-from ..pipeline.single_site import DURATION_MARGIN
+from ..segments import DURATION_MARGIN
 from ..waveform import chirp_duration, isco_frequency
 
 __all__ = ["INJECTION_DTYPE", "INJECTION_COLUMNS", "DISTANCE_DISTRIBUTIONS", "draw_injections",

@@ -31,7 +31,7 @@ import numpy as np
 
 from .._validate import positive_scalar, psd_array, real_array, real_scalar
 from ..filter import sigma
-from ..pipeline.single_site import DURATION_MARGIN
+from ..segments import DURATION_MARGIN
 from ..spectrum import design_psd, psd_to_grid
 from ..waveform import chirp_duration, isco_frequency, taylorf2
 from .population import injection_table
