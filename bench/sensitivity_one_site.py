@@ -36,7 +36,7 @@ NOISE_GAIN = 1.0436
 
 
 def invented_site():
-    """An invented L-shaped site (not a real observatory)."""
+    """Return an invented L-shaped site (not a real observatory)."""
     from chirpsift.network import Site
 
     return Site(name="Wrenfield", latitude=37.3, longitude=-104.7, elevation=1500.0, x_azimuth=28.0,
@@ -119,6 +119,7 @@ def run(site, *, count=2000, sample_rate=1024.0, f_low=30.0, curve="gen2-early",
 
 
 def main(argv=None) -> int:
+    """Run from the command line; exit status 1 if a check fails."""
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     p.add_argument("--count", type=int, default=2000, help="injections (default %(default)s)")
     p.add_argument("--sample-rate", type=float, default=1024.0, help="Hz (default %(default)s)")

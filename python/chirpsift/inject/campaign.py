@@ -1,5 +1,6 @@
-"""Injection campaigns: search data with simulated signals added, with the analysis's
-own settings, and say which signals were found, how loud, and how significant.
+"""Injection campaigns: which simulated signals a search finds, how loud, how significant.
+
+The data are searched with the signals added and with the analysis's own settings.
 
 The found/missed table (:func:`found_missed`) has one row per injection: the injection's
 parameters (:data:`chirpsift.inject.INJECTION_DTYPE`), then
@@ -40,7 +41,7 @@ MATCH_WINDOW = 0.1
 
 
 def found_missed_dtype(site_names) -> np.dtype:
-    """dtype of the found/missed table for the given site names (module notes)."""
+    """Give the dtype of the found/missed table for the given site names (module notes)."""
     fields = list(INJECTION_DTYPE.descr) + [("analysed", "?")]
     fields += [(f"{name}_optimal_snr", "f8") for name in site_names]
     fields += [("network_optimal_snr", "f8"), ("found", "?"), ("statistic", "f8"), ("far", "f8"), ("ifar", "f8"),

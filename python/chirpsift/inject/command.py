@@ -151,8 +151,11 @@ def _write_strain_npz(path: Path, data, sample_rate: float, t0: float) -> None:
 
 
 def read_injections(path):
-    """Read an injection set written by ``chirpsift inject`` (or any Parquet file with the
-    fields of :data:`chirpsift.inject.INJECTION_DTYPE`); returns ``(table, metadata)``."""
+    """Read an injection set written by ``chirpsift inject``.
+
+    Any Parquet file with the fields of :data:`chirpsift.inject.INJECTION_DTYPE` will do;
+    returns ``(table, metadata)``.
+    """
     from ..io import read_triggers
     from .population import INJECTION_DTYPE, injection_table
 
@@ -170,7 +173,7 @@ def read_injections(path):
 # chirpsift inject
 # ---------------------------------------------------------------------------
 def add_inject_arguments(parser: argparse.ArgumentParser) -> None:
-    """Flags of ``chirpsift inject``."""
+    """Add the flags of ``chirpsift inject`` to ``parser``."""
     from .population import DISTANCE_DISTRIBUTIONS
 
     parser.description = (
@@ -271,7 +274,7 @@ def run_inject(args) -> int:
 # chirpsift sensitivity
 # ---------------------------------------------------------------------------
 def add_sensitivity_arguments(parser: argparse.ArgumentParser) -> None:
-    """Flags of ``chirpsift sensitivity``."""
+    """Add the flags of ``chirpsift sensitivity`` to ``parser``."""
     parser.description = (
         "Efficiency against distance, sensitive volume, volume-time and range from a found/missed table "
         "(written by chirpsift campaign). Only injections inside the analysed time count."
@@ -368,7 +371,7 @@ def _add_search_flags(group) -> None:
 
 
 def add_campaign_arguments(parser: argparse.ArgumentParser) -> None:
-    """Flags of ``chirpsift campaign``."""
+    """Add the flags of ``chirpsift campaign`` to ``parser``."""
     parser.description = (
         "Add an injection set to each site's strain, search it with the analysis's settings, find coincidences "
         "with a time-slide background, and write the found/missed table. Flags override the --config file's "

@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 
-from .._validate import positive_int, positive_scalar, real_scalar
+from .._validate import integer, positive_scalar, real_scalar
 from ..segments import DURATION_MARGIN
 from ..waveform import chirp_duration, isco_frequency
 
@@ -51,7 +51,7 @@ SPACING_MARGIN = 8.0
 
 def _range(name: str, value, *, positive: bool = False, lower_zero_ok: bool = False,
            bound: float | None = None) -> tuple[float, float]:
-    """A fixed value ``x`` (-> (x, x)) or an interval ``(lo, hi)`` with ``lo <= hi``."""
+    """Check a fixed value ``x`` (-> (x, x)) or an interval ``(lo, hi)`` with ``lo <= hi``."""
     if np.ndim(value) == 0:
         lo = hi = real_scalar(name, value)
     else:
@@ -69,9 +69,11 @@ def _range(name: str, value, *, positive: bool = False, lower_zero_ok: bool = Fa
 
 
 def longest_signal(m1, m2, f_low) -> float:
-    """Longest time (s) in band from ``f_low`` to coalescence of binaries with masses
-    in the given ranges: the lightest pair's 3.5PN chirp duration times the search's
-    safety factor for aligned spins."""
+    """Longest time (s) in band from ``f_low`` to coalescence of binaries in the mass ranges.
+
+    The lightest pair's 3.5PN chirp duration times the search's safety factor for
+    aligned spins (:data:`chirpsift.segments.DURATION_MARGIN`).
+    """
     (a, _), (b, _) = _range("m1", m1, positive=True), _range("m2", m2, positive=True)
     return float(chirp_duration(a, b, f_low)) * DURATION_MARGIN
 
@@ -160,7 +162,7 @@ def draw_injections(n, *, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), distance, di
     >>> inj.shape, bool(inj["time"][1] - inj["time"][0] >= 33)
     ((4,), True)
     """
-    count = positive_int("n", n)
+    count = integer("n", n)
     m1r = _range("m1", m1, positive=True)
     m2r = _range("m2", m2, positive=True)
     c1r = _range("chi1", chi1, bound=1.0)
@@ -214,9 +216,11 @@ def draw_injections(n, *, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), distance, di
 
 
 def injection_table(injections, name: str = "injections") -> np.ndarray:
-    """Check an injection table: a 1-D structured array with every field of
-    :data:`INJECTION_DTYPE` (extra fields allowed), finite values, positive masses and
-    distances, ``|spin| < 1``. Returns it unchanged."""
+    """Check an injection table and return it unchanged.
+
+    It must be a 1-D structured array with every field of :data:`INJECTION_DTYPE`
+    (extra fields allowed), finite values, positive masses and distances, ``|spin| < 1``.
+    """
     if not isinstance(injections, np.ndarray) or injections.dtype.names is None:
         raise TypeError(f"{name} must be a structured array with the fields of INJECTION_DTYPE, "
                         f"got {type(injections).__name__}")

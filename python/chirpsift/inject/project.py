@@ -1,5 +1,4 @@
-"""Projection of simulated sources onto a site: the strain each one adds there, its
-optimal SNR and its effective distance.
+"""Projection of simulated sources onto a site: their strain, optimal SNR and effective distance.
 
 A site is any object with the two methods of :class:`chirpsift.Site` used here:
 ``antenna_pattern(ra, dec, psi, gps_time) -> (F_plus, F_cross)`` and
@@ -120,9 +119,12 @@ def effective_distance(injections, site) -> np.ndarray:
 
 
 def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd") -> np.ndarray:
-    """One-sided PSD (1/Hz) at ``k * df``, ``k < n_freq``, from a design-curve name, a
-    callable of frequency (Hz) or a sampled ``(freqs, values)`` pair
-    (:func:`chirpsift.psd_to_grid`: linear interpolation, ``inf`` outside the samples)."""
+    """One-sided PSD (1/Hz) at ``k * df``, ``k < n_freq``.
+
+    From a design-curve name, a callable of frequency (Hz) or a sampled
+    ``(freqs, values)`` pair (:func:`chirpsift.psd_to_grid`: linear interpolation,
+    ``inf`` outside the samples).
+    """
     freqs = np.arange(n_freq) * df
     if isinstance(psd, str):
         return design_psd(freqs, psd)

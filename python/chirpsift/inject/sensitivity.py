@@ -1,5 +1,6 @@
-"""Measured sensitivity: detection efficiency against distance, sensitive volume by
-Monte-Carlo integration over the injections, volume-time and sensitive range.
+"""Measured sensitivity: efficiency against distance, sensitive volume, volume-time and range.
+
+The volume is a Monte-Carlo integral over the injections.
 
 Every figure here describes one population in one noise model. The sensitive volume
 of a search depends on the masses, spins and orientations injected, on the noise the
@@ -17,7 +18,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from .._validate import nonnegative_scalar, positive_int, positive_scalar, real_array
+from .._validate import integer, nonnegative_scalar, positive_scalar, real_array
 from .population import injection_table
 from .project import SNR_DF, optimal_sigma
 
@@ -128,7 +129,7 @@ def efficiency(distance, found, *, bins=10, confidence=0.6827) -> np.ndarray:
     if conf >= 1:
         raise ValueError(f"confidence must be below 1, got {conf}")
     if np.ndim(bins) == 0:
-        nb = positive_int("bins", bins)
+        nb = integer("bins", bins)
         lo, hi = float(d.min()), float(d.max())
         edges = np.linspace(lo, hi if hi > lo else lo + 1.0, nb + 1)
     else:
