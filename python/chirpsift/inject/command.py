@@ -22,7 +22,6 @@ from __future__ import annotations
 import argparse
 import math
 import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -137,17 +136,12 @@ def _check_output(path: Path, what: str) -> None:
 
 
 def _write_strain_npz(path: Path, data, sample_rate: float, t0: float) -> None:
-    """``np.savez`` to a temporary file beside ``path``, renamed into place when complete."""
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".partial.npz", dir=path.parent or ".")
-    os.close(fd)
-    try:
-        np.savez(tmp, strain=np.asarray(data, dtype=np.float64), sample_rate=np.float64(sample_rate),
+    """``np.savez`` the strain as ``read_strain`` reads it, atomically."""
+    from ..io import atomic_path
+
+    with atomic_path(path) as tmp, open(tmp, "wb") as fh:  # a file object: savez adds no suffix
+        np.savez(fh, strain=np.asarray(data, dtype=np.float64), sample_rate=np.float64(sample_rate),
                  t0=np.float64(t0))
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
 
 
 def read_injections(path):

@@ -11,13 +11,12 @@ detection threshold; quote them together.
 from __future__ import annotations
 
 import math
-import os
 import statistics
-import tempfile
 from dataclasses import asdict, dataclass
 
 import numpy as np
 
+from ..io import atomic_path
 from .._validate import integer, nonnegative_scalar, positive_scalar, real_array
 from .population import injection_table
 from .project import SNR_DF, optimal_sigma
@@ -352,16 +351,5 @@ def plot_efficiency(table, path, *, title=None, xlabel="distance (Mpc)", sensiti
     fig.text(0.01, 0.01, "Sensitivity depends on the injected population and the noise model.", fontsize=7,
              color="0.4")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
-    final = os.fspath(path)
-    folder = os.path.dirname(final) or "."
-    if not os.path.isdir(folder):
-        raise FileNotFoundError(f"output folder does not exist: {folder} (for {final})")
-    fd, tmp = tempfile.mkstemp(prefix=f".{os.path.basename(final)}.", suffix=".partial", dir=folder)
-    os.close(fd)
-    try:
+    with atomic_path(path) as tmp:
         fig.savefig(tmp, format="png", dpi=dpi)
-        os.replace(tmp, final)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
