@@ -51,6 +51,9 @@ COMMANDS: tuple[Command, ...] = (
     Command("demo", "chirpsift.cli.demo"),
     Command("bench", "chirpsift.cli.bench"),
     Command("network", "chirpsift.network.command"),
+    Command("inject", "chirpsift.inject.inject_command"),
+    Command("campaign", "chirpsift.inject.campaign_command"),
+    Command("sensitivity", "chirpsift.inject.sensitivity_command"),
 )
 
 
