@@ -209,7 +209,9 @@ class Sensitivity:
     volume, volume_error : float
         Sensitive volume (Mpc^3) and its Monte-Carlo standard error.
     range, range_error : float
-        Sensitive range ``(3 V / (4 pi))^(1/3)`` (Mpc) and its error ``range * dV / (3 V)``.
+        Sensitive range ``(3 V / (4 pi))^(1/3)`` (Mpc) and its error ``range * dV / (3 V)``
+        (infinite when nothing was found: the estimate is then only the bound of the
+        drawn range).
     analysed_time : float or None
         Seconds of data searched (None if not given).
     volume_time, volume_time_error : float or None
