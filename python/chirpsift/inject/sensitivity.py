@@ -210,8 +210,8 @@ class Sensitivity:
         Sensitive volume (Mpc^3) and its Monte-Carlo standard error.
     range, range_error : float
         Sensitive range ``(3 V / (4 pi))^(1/3)`` (Mpc) and its error ``range * dV / (3 V)``
-        (infinite when nothing was found: the estimate is then only the bound of the
-        drawn range).
+        (infinite when nothing was found; the volume and its Monte-Carlo error are then
+        both 0, which says only that none of these injections was found).
     analysed_time : float or None
         Seconds of data searched (None if not given).
     volume_time, volume_time_error : float or None
