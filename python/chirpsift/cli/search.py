@@ -53,7 +53,8 @@ def _help(entry) -> str:
     return text.replace("%", "%%")
 
 
-def _add_flag(group, entry) -> None:
+def add_option_flag(group, entry) -> None:
+    """Add the flag of one configuration key or search option (``entry``) to an argument group."""
     flag = f"--{entry.key}"
     if entry.kind == "switch":
         group.add_argument(flag, dest=entry.name, action=argparse.BooleanOptionalAction, default=None,
@@ -78,7 +79,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     for table, keys in TABLES.items():
         group = parser.add_argument_group(_GROUP_TITLES[table])
         for entry in keys:
-            _add_flag(group, entry)
+            add_option_flag(group, entry)
         if table == "input":
             group.add_argument("--config", action=Once, what="config file", metavar="FILE.toml",
                                help="TOML file with [input], [search] and [run] tables (keys as the flags)")
@@ -86,6 +87,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def _given(args, keys) -> dict:
     return {entry.name: getattr(args, entry.name) for entry in keys}
+
+
+def search_settings(from_file: dict, args):
+    """Settle a command's search settings: the --config file's ``[search]`` values, overridden by flags."""
+    return _settings(merge_settings(from_file, _given(args, pipeline.SEARCH_OPTIONS)))
 
 
 def _settings(values: dict):
@@ -160,7 +166,7 @@ def run(args) -> int:
     for key in ("strain", "bank"):
         if not inputs.get(key):
             raise UsageError(f"--{key} is required (or set {key} in the [input] table of the --config file)")
-    settings = _settings(merge_settings(config.search, _given(args, pipeline.SEARCH_OPTIONS)))
+    settings = search_settings(config.search, args)
 
     # every output is checked before anything is read or computed
     sources = {"strain file (--strain)": inputs["strain"], "bank file (--bank)": inputs["bank"],

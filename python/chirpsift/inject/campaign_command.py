@@ -6,32 +6,14 @@ import argparse
 import os
 
 from ..cli._paths import check_output
-from ..cli._types import finite_float, nonnegative_float, nonnegative_int, positive_float, positive_int
+from ..cli._types import nonnegative_float, nonnegative_int, positive_float, positive_int
+from ..cli.search import add_option_flag, search_settings
+from ..pipeline.settings import SEARCH_OPTIONS
 from .command import CAUTION, pick_sites, read_injections, site_file, site_set, strain_files
 
 __all__ = ["HELP", "add_arguments", "run"]
 
 HELP = "search strain with injections added and tabulate found and missed signals"
-
-
-def _add_search_flags(group) -> None:
-    """One flag per search option, from the options' own table."""
-    from ..pipeline.settings import SEARCH_OPTIONS
-
-    kinds = {"positive": positive_float, "nonnegative": nonnegative_float, "count": positive_int,
-             "order": nonnegative_int, "real": finite_float}
-    for option in SEARCH_OPTIONS:
-        flag = f"--{option.key}"
-        unit = f" ({option.unit})" if option.unit else ""
-        if option.kind == "switch":
-            group.add_argument(flag, dest=option.name, action=argparse.BooleanOptionalAction, default=None,
-                               help=(option.help + unit).replace("%", "%%"))
-        elif option.kind == "choice":
-            group.add_argument(flag, dest=option.name, choices=option.choices, default=None,
-                               help=option.help.replace("%", "%%"))
-        else:
-            group.add_argument(flag, dest=option.name, type=kinds[option.kind], metavar=option.unit.upper() or "X",
-                               default=None, help=(option.help + unit).replace("%", "%%"))
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -50,7 +32,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     g.add_argument("--config", metavar="FILE.toml", help="TOML file whose [search] table holds the analysis settings")
     g.add_argument("--psd", metavar="CURVE", help="known PSD, a design-curve name (default: estimated from the data)")
     g = parser.add_argument_group("search settings (as in the analysis)")
-    _add_search_flags(g)
+    for option in SEARCH_OPTIONS:
+        add_option_flag(g, option)
     g = parser.add_argument_group("coincidence and matching")
     g.add_argument("--slides", type=nonnegative_int, default=0, metavar="N",
                    help="time slides for the background (default 0)")
@@ -73,9 +56,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     """Run ``chirpsift campaign``; return the exit status."""
     from ..bank import Bank
-    from ..config import load_config, merge_settings
+    from ..config import load_config
     from ..io import read_strain, write_json_atomic, write_triggers
-    from ..pipeline.settings import SEARCH_OPTIONS, SearchSettings
     from ..threads import set_threads
     from .campaign import MATCH_WINDOW, run_campaign
 
@@ -92,11 +74,7 @@ def run(args) -> int:
     sites = pick_sites(site_set(args.sites), strains, args.sites)
     if len(sites) < 2:
         raise ValueError(f"a campaign needs strain from at least two sites for coincidences, got {len(sites)}")
-    from_file = load_config(args.config).search if args.config else {}
-    merged = merge_settings(from_file, {o.name: getattr(args, o.name) for o in SEARCH_OPTIONS})
-    if merged.get("f_low") is None:
-        raise ValueError("--f-low is required (or set f-low in the [search] table of the --config file)")
-    settings = SearchSettings(**merged)
+    settings = search_settings(load_config(args.config).search if args.config else {}, args)
     inj, _ = read_injections(args.injections)
     data = {name: read_strain(path) for name, path in strains.items()}
     first = next(iter(data.values()))
