@@ -6,6 +6,7 @@ eta = m1 m2 / M^2), numpy's structured arrays and pyarrow's Parquet reader.
 """
 
 import itertools
+import re
 
 import numpy as np
 import pytest
@@ -247,3 +248,18 @@ def test_records_round_trip_property(rows):
     b = Bank.from_any(arr)
     assert Bank.from_any(b.to_records()) == b
     assert np.all(b.eta <= 0.25 + 1e-15) and np.all(b.mchirp <= b.mtotal)
+
+
+@pytest.mark.parametrize("suffix", [".npz", ".parquet"])
+@pytest.mark.parametrize("cut", [0, 10, 0.5])
+def test_damaged_bank_file_is_a_value_error_naming_the_file(tmp_path, suffix, cut):
+    # An empty or truncated bank file must be reported as bad input (exit 2 on the command
+    # line), naming the file, not leak the parser's own exception.
+    good = tmp_path / f"good{suffix}"
+    Bank.mass_grid(1.0, 2.0, 3).save(good)
+    data = good.read_bytes()
+    keep = int(len(data) * cut) if isinstance(cut, float) else cut
+    bad = tmp_path / f"bad{suffix}"
+    bad.write_bytes(data[:keep])
+    with pytest.raises(ValueError, match=re.escape(str(bad))):
+        Bank.load(bad)

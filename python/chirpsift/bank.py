@@ -26,6 +26,8 @@ from pathlib import Path
 
 import numpy as np
 
+from .io.readers import load_npz, read_parquet
+
 __all__ = ["Bank", "BANK_FORMAT", "BANK_VERSION"]
 
 BANK_FORMAT = "chirpsift-bank"
@@ -328,26 +330,15 @@ class Bank:
             raise FileNotFoundError(f"bank file not found: {path}")
         ext = path.suffix.lower()
         if ext == ".npz":
-            try:
-                npz = np.load(path, allow_pickle=False)
-            except ValueError as exc:
-                raise ValueError(f"{path}: cannot read as a .npz bank ({exc})") from None
-            with npz:
-                names = list(npz.files)
-                fmt = str(npz["format"]) if "format" in names else None
-                version = npz["version"].item() if "version" in names else None
-                cols = {k: npz[k] for k in _FIELDS if k in names}
+            names, arrays = load_npz(path, (*_FIELDS, "format", "version"), what="bank archive")
+            fmt = str(arrays["format"]) if "format" in arrays else None
+            version = arrays["version"].item() if "version" in arrays else None
+            cols = {k: arrays[k] for k in _FIELDS if k in arrays}
         elif ext == ".parquet":
-            import pyarrow as pa
-            import pyarrow.parquet as pq
-
-            try:
-                table = pq.read_table(path)
-            except (pa.ArrowInvalid, OSError) as exc:
-                raise ValueError(f"{path}: cannot read as a Parquet bank ({exc})") from None
+            table = read_parquet(path, what="bank")
             meta = table.schema.metadata or {}
-            fmt = meta[b"format"].decode() if b"format" in meta else None
-            version = meta[b"version"].decode() if b"version" in meta else None
+            fmt = meta[b"format"].decode(errors="replace") if b"format" in meta else None
+            version = meta[b"version"].decode(errors="replace") if b"version" in meta else None
             names = table.column_names
             cols = {k: table.column(k).to_numpy() for k in _FIELDS if k in names}
         else:
@@ -393,7 +384,10 @@ class Bank:
         -----
         This is a demonstration and benchmarking bank. It is not a covering bank: its
         spacing is not chosen from a match metric, so it neither guarantees a minimal
-        match nor avoids redundant templates. Metric-based placement is future work.
+        match nor avoids redundant templates. Between its points a source can lose most
+        of its SNR: for 16 random sources in the 1.3-1.5 Msun range of the Example's
+        grid, the best template kept 14-59% of the optimal SNR (median 27%), because
+        the chirp mass, which the phase depends on most, is sampled far too coarsely.
 
         Examples
         --------
