@@ -9,10 +9,10 @@ RUST_REPEATS = 10
 
 def rust_ifft(n):
     """``(callable, transforms per call)`` timing rustfft's complex64 inverse FFT."""
-    from chirpsift import _core
+    from chirpsift._timing import inverse_fft_seconds
 
-    _core.bench_inverse_fft(n, 1)
-    return (lambda: _core.bench_inverse_fft(n, RUST_REPEATS)), RUST_REPEATS
+    inverse_fft_seconds(n, repeats=1)
+    return (lambda: inverse_fft_seconds(n, repeats=RUST_REPEATS)), RUST_REPEATS
 
 
 def self_timed(fn, seconds):

@@ -13,7 +13,7 @@ import pytest
 
 import chirpsift
 import chirpsift.reference as ref
-from chirpsift.reference.segment import filter_segment as ref_filter_segment
+from chirpsift.reference import filter_segment as ref_filter_segment
 
 from _helpers import fftw_ifft, reference_subset, rust_ifft, scipy_ifft, self_timed
 

@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 import chirpsift as cs
-from chirpsift.reference import segment as ref_segment
+from chirpsift.reference import fused as ref_fused
 
 FS = 1024.0
 T = 128.0
@@ -38,7 +38,7 @@ def test_fused_kernel_equals_numpy_twin():
     m2 = np.array([7.0, 7.0, 7.5, 6.0])
     kw = dict(f_low=F_LOW, min_snr=4.5, cluster_samples=256, chi2_bands=8, valid=(int(20 * FS), int(120 * FS)))
     a = cs.filter_segment(data, PSD, DF, m1, m2, **kw)
-    b = ref_segment.filter_segment(data, PSD, DF, m1, m2, **kw)
+    b = ref_fused.filter_segment(data, PSD, DF, m1, m2, **kw)
     assert len(a["snr"]) > 4  # loud injection plus noise peaks in every template
     np.testing.assert_array_equal(a["template"], b["template"])
     np.testing.assert_array_equal(a["index"], b["index"])
@@ -196,7 +196,7 @@ def test_decimated_search_matches_full_rate_series(m1, m2):
     data = noise + h * np.exp(-2j * np.pi * f * t_c) * (15.0 / sig)
     kw = dict(f_low=f_low, min_snr=8.0, cluster_samples=int(fs), chi2_bands=8, valid=(int(30 * fs), int(62 * fs)))
     a = cs.filter_segment(data, psd, 1 / t, m1, m2, **kw)
-    b = ref_segment.filter_segment(data, psd, 1 / t, m1, m2, **kw)
+    b = ref_fused.filter_segment(data, psd, 1 / t, m1, m2, **kw)
     assert len(a["snr"]) == len(b["snr"]) == 1
     assert a["index"][0] == b["index"][0]
     assert abs(a["snr"][0] / b["snr"][0] - 1) < 5e-3
@@ -231,7 +231,7 @@ def test_folded_decimation_matches_full_rate_series():
     data = noise + h * np.exp(-2j * np.pi * f * 28.0) * (20.0 / cs.sigma(h, psd, 1 / t, 30.0))
     kw = dict(f_low=30.0, min_snr=10.0, cluster_samples=int(fs), chi2_bands=8, valid=(int(20 * fs), int(31 * fs)))
     a = cs.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
-    b = ref_segment.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
+    b = ref_fused.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
     assert len(a["snr"]) == len(b["snr"]) == 1
     assert a["index"][0] == b["index"][0]
     assert abs(a["snr"][0] / b["snr"][0] - 1) < 5e-3

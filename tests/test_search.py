@@ -114,7 +114,7 @@ def test_search_on_one_segment_matches_numpy_twin():
     # series by numpy's FFT, direct TaylorF2) must give the same triggers; float32
     # transforms in the kernel allow ~1e-5 relative differences.
     from chirpsift import reference as ref
-    from chirpsift.reference import segment as ref_segment
+    from chirpsift.reference import fused as ref_fused
 
     x = _data(4, duration=64.0)
     bank = cs.Bank.from_any({"m1": [8.0, 10.0], "m2": [6.0, 8.0]})
@@ -122,7 +122,7 @@ def test_search_on_one_segment_matches_numpy_twin():
     psd = ref.truncate_inverse_psd(ref.psd_to_grid(*ref.welch(x, FS, 4.0), 1 / 64.0, x.size // 2 + 1), FS, 4.0, 30.0)
     longest = max(ref.chirp_duration(m1, m2, 30.0) for m1, m2 in zip(bank.m1, bank.m2))
     pad_start, pad_end = _documented_pads(longest, 4.0, FS)
-    direct = ref_segment.filter_segment(np.fft.rfft(x) / FS, psd, 1 / 64.0, bank.m1, bank.m2, f_low=30.0,
+    direct = ref_fused.filter_segment(np.fft.rfft(x) / FS, psd, 1 / 64.0, bank.m1, bank.m2, f_low=30.0,
                                         min_snr=4.0, cluster_samples=512, valid=(pad_start, x.size - pad_end))
     assert len(trig) == len(direct["snr"]) > 0
     order = np.argsort(direct["position"], kind="stable")

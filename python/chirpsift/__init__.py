@@ -7,7 +7,7 @@ holds a pure-numpy twin of every kernel.
 from .filter import correlate, sigma, snr_series
 from .bank import Bank
 from .clustering import cluster_in_time
-from .fused import filter_segment
+from .fused import PEAK_COLUMNS, PreparedBank, filter_segment, prepare_bank
 from .triggers import TRIGGER_COLUMNS, TRIGGER_DTYPE
 from .gating import GatingWarning
 from .pipeline import AnalysedFractionWarning, ExcludedDataWarning, SearchSettings, search
@@ -19,7 +19,7 @@ from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
 from .network import Site, coincidences, light_travel_time, load_sites
 from .inject import draw_injections, efficiency, horizon_distance, injection_snr, project, sensitive_volume, sensitivity
 
-__version__ = "0.1.0"
+from ._core import __version__
 
 __all__ = [
     "AnalysedFractionWarning",
@@ -28,6 +28,9 @@ __all__ = [
     "GatingWarning",
     "SearchSettings",
     "TRIGGER_COLUMNS",
+    "PEAK_COLUMNS",
+    "PreparedBank",
+    "prepare_bank",
     "TRIGGER_DTYPE",
     "cluster_in_time",
     "plan_segments",

@@ -112,7 +112,7 @@ def snr_series(data_fd, templates, psd, df, f_low, f_high=None, dtype=np.complex
     _, h2 = _templates(templates, d.shape[0])
     fl, fh = _band(p, dfv, f_low, f_high)
     dt = dtype_choice("dtype", dtype, (np.complex64, np.complex128))
-    out = _core.snr_series(d, h2, p, dfv, fl, fh, dt == np.complex128)
+    out = _core.snr_series(d, h2, p, dfv, fl, fh, dt.name)
     return finite_output(out, "data_fd, templates or psd", f" (the SNR does not fit in {dt.name}; try dtype=complex128)")
 
 

@@ -1,7 +1,9 @@
-"""The fused matched-filter kernel over one data segment (numpy API).
+"""The fused matched-filter kernel over one data segment (numpy API over the core's
+``fused`` module).
 
 Templates are generated on the fly inside the kernel; only clustered, refined
-peaks come back, so memory does not grow with the bank size.
+peaks come back, so memory does not grow with the bank size. A bank is checked and
+built once (:func:`prepare_bank`) and reused for every segment.
 """
 
 from __future__ import annotations
@@ -9,13 +11,81 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import broadcast, complex_array, integer, positive_scalar, psd_array, real_array
-from .waveform import _masses, _phase_order, _spins
+from ._validate import complex_array, integer, positive_scalar, psd_array
+from .waveform._params import phase_order as _order
+from .waveform._params import template_arrays
 
-__all__ = ["filter_segment", "PEAK_COLUMNS"]
+__all__ = ["filter_segment", "prepare_bank", "PreparedBank", "PEAK_COLUMNS"]
 
-#: Columns returned by :func:`filter_segment` (shared names mean the same as in the trigger table).
+#: Columns returned by :func:`filter_segment`, one entry per peak. The names shared
+#: with the trigger table (``template``, ``snr``, ``phase``, ``sigma``, ``chi2``,
+#: ``chi2_dof``) mean the same there.
 PEAK_COLUMNS = ("template", "index", "position", "snr", "phase", "sigma", "chi2", "chi2_dof")
+
+
+class PreparedBank:
+    """TaylorF2 templates checked and built once for :func:`filter_segment`.
+
+    Make one with :func:`prepare_bank`. ``len(bank)`` is the number of templates;
+    ``f_low`` (Hz), ``f_high`` (Hz, per template) and ``durations`` (seconds from
+    ``f_low`` to coalescence per template, non-spinning 3.5PN TaylorT2) describe it.
+    """
+
+    __slots__ = ("_core",)
+
+    def __init__(self, core_bank):
+        self._core = core_bank
+
+    def __len__(self):
+        return len(self._core)
+
+    @property
+    def f_low(self) -> float:
+        """Lower frequency cutoff of every template (Hz)."""
+        return self._core.f_low
+
+    @property
+    def f_high(self) -> np.ndarray:
+        """Upper frequency (Hz, exclusive) of each template."""
+        return self._core.f_high
+
+    @property
+    def durations(self) -> np.ndarray:
+        """Seconds from ``f_low`` to coalescence of each template."""
+        return self._core.durations
+
+    def __repr__(self):
+        return f"PreparedBank({len(self)} templates, f_low={self.f_low} Hz)"
+
+
+def prepare_bank(m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_high=None, phase_order=7):
+    """Check and build a bank of TaylorF2 templates once, for many segments.
+
+    Parameters
+    ----------
+    m1, m2, chi1, chi2 : float or array_like
+        Template parameters (solar masses, aligned spins ``|chi| < 1``), broadcast to ``K``.
+    f_low : float
+        Lower frequency cutoff (Hz).
+    f_high : float or array_like, optional
+        Upper cutoffs (Hz, exclusive); default each template's ISCO frequency.
+    phase_order : int, optional
+        PN order of the phase (twice the PN order, 7 = 3.5PN).
+
+    Returns
+    -------
+    PreparedBank
+
+    Examples
+    --------
+    >>> import chirpsift
+    >>> bank = chirpsift.prepare_bank([1.4, 1.6], 1.3, f_low=20.0)
+    >>> len(bank), bank.f_low
+    (2, 20.0)
+    """
+    fl = positive_scalar("f_low", f_low)
+    m1v, m2v, c1v, c2v, fh = template_arrays(m1, m2, chi1, chi2, f_low=fl, f_high=f_high)
+    return PreparedBank(_core.PreparedBank(m1v, m2v, c1v, c2v, fh, fl, _order(phase_order)))
 
 
 def _valid_range(valid, n):
@@ -43,13 +113,14 @@ def filter_segment(
     data_fd,
     psd,
     df,
-    m1,
-    m2,
+    m1=None,
+    m2=None,
     chi1=0.0,
     chi2=0.0,
     *,
-    f_low,
+    f_low=None,
     f_high=None,
+    bank=None,
     min_snr=5.5,
     cluster_samples=0,
     chi2_bands=16,
@@ -67,12 +138,16 @@ def filter_segment(
         output of :func:`chirpsift.truncate_inverse_psd`).
     df : float
         Frequency spacing (Hz); the segment has ``N = 2 (n_freq - 1)`` samples.
-    m1, m2, chi1, chi2 : array_like
-        Template parameters (solar masses, aligned spins), broadcast to ``K``.
+    m1, m2, chi1, chi2 : array_like, optional
+        Template parameters (solar masses, aligned spins), broadcast to ``K``; or
+        give ``bank`` instead.
     f_low : float
-        Lower frequency cutoff (Hz).
+        Lower frequency cutoff (Hz); taken from ``bank`` when one is given.
     f_high : float or array_like, optional
         Upper cutoffs (Hz, exclusive); default each template's ISCO frequency.
+    bank : PreparedBank, optional
+        Templates from :func:`prepare_bank`, checked and built once; then ``m1``,
+        ``m2``, ``chi1``, ``chi2``, ``f_high`` and ``phase_order`` are not given.
     min_snr : float, optional
         Samples with ``|z|`` at or above this are peak candidates.
     cluster_samples : int, optional
@@ -94,6 +169,10 @@ def filter_segment(
         ``snr`` and ``phase`` (``|z|`` and ``arg z`` evaluated exactly at
         ``position``), ``sigma`` (norm of the template at 1 Mpc), ``chi2`` and
         ``chi2_dof`` (``2 p - 2``).
+
+    See Also
+    --------
+    chirpsift.reference.filter_segment : the pure-numpy twin (full SNR series).
 
     Notes
     -----
@@ -118,32 +197,34 @@ def filter_segment(
     if p.shape != d.shape:
         raise ValueError(f"psd must have {d.shape[0]} bins to match data_fd, got {p.shape[0]}")
     dfv = positive_scalar("df", df)
-    a, b = _masses(m1, m2)
-    c1, c2 = _spins(chi1, chi2)
-    m1v, m2v, c1v, c2v = (
-        np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in broadcast(("m1", "m2", "chi1", "chi2"), (a, b, c1, c2))
-    )
-    fl = positive_scalar("f_low", f_low)
     n = 2 * (d.shape[0] - 1)
     nyquist = (d.shape[0] - 1) * dfv
-    if fl >= nyquist:
-        raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {nyquist} Hz")
-    if f_high is None:
-        fh = _core.isco_frequency(np.ascontiguousarray(m1v + m2v))
+    if bank is None:
+        if m1 is None or m2 is None:
+            raise TypeError("filter_segment needs the templates: m1 and m2, or bank=prepare_bank(...)")
+        fl = positive_scalar("f_low", f_low)
+        if fl >= nyquist:
+            raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {nyquist} Hz")
+        bank = prepare_bank(m1, m2, chi1, chi2, f_low=fl, f_high=f_high, phase_order=phase_order)
     else:
-        fh = real_array("f_high", f_high, ndim=range(0, 2))
-        try:
-            fh = np.ascontiguousarray(np.broadcast_to(fh, m1v.shape), dtype=np.float64)
-        except ValueError:
-            raise ValueError(f"f_high must be a scalar or hold one value per template ({m1v.shape[0]}), got shape {fh.shape}") from None
-    if not np.all(fh > fl):
-        raise ValueError(f"f_high must exceed f_low={fl} Hz for every template, got min {fh.min()} Hz")
+        if not isinstance(bank, PreparedBank):
+            raise TypeError(f"bank must come from chirpsift.prepare_bank, got {type(bank).__name__}")
+        given = [name for name, v in (("m1", m1), ("m2", m2), ("f_high", f_high)) if v is not None]
+        given += [name for name, v, default in (("chi1", chi1, 0.0), ("chi2", chi2, 0.0), ("phase_order", phase_order, 7))
+                  if not (isinstance(v, (int, float)) and v == default)]
+        if given:
+            raise TypeError(f"give either bank or template parameters, not both (got bank and {', '.join(given)})")
+        fl = bank.f_low
+        if f_low is not None and positive_scalar("f_low", f_low) != fl:
+            raise ValueError(f"f_low={f_low} Hz differs from the bank's f_low={fl} Hz")
+        if fl >= nyquist:
+            raise ValueError(f"the bank's f_low={fl} Hz must be below the Nyquist frequency {nyquist} Hz")
     thr = positive_scalar("min_snr", min_snr)
-    # A window longer than the segment clusters the whole segment, as n does.
+    # A window longer than the segment keeps one peak per segment, as a window of n does.
     cl = min(integer("cluster_samples", cluster_samples, minimum=0), n)
     k_low = int(np.ceil(fl / dfv))
     bins = integer("chi2_bands", chi2_bands, minimum=2, maximum=max(2, d.shape[0] - k_low))
     start, stop = _valid_range(valid, n)
     if not np.isfinite(p[int(np.ceil(fl / dfv)):]).any():
         raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")
-    return _core.search_segment(d, p, dfv, m1v, m2v, c1v, c2v, fh, _phase_order(phase_order), fl, thr, cl, bins, start, stop)
+    return _core.filter_segment(d, p, dfv, bank._core, thr, cl, bins, start, stop)

@@ -11,7 +11,7 @@ from ._validate import check_allocation, choice, finite_output, nonnegative_scal
 __all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "truncate_inverse_psd", "whiten"]
 
 #: Names accepted by :func:`design_psd`.
-DESIGN_CURVES = ("gen1-4km", "gen1-3km", "gen1-600m", "gen1-300m", "gen2-early", "gen2-zero-detuned")
+DESIGN_CURVES = tuple(_core.DESIGN_CURVES)
 
 
 def _welch_window(window, nperseg: int) -> np.ndarray:
@@ -102,7 +102,7 @@ def welch(x, sample_rate, segment_duration=4.0, overlap=0.5, average="median", w
     if step < 1:
         raise ValueError(f"overlap={ov} leaves no step between segments of {nperseg} samples")
     w = _welch_window(window, nperseg)
-    psd = finite_output(_core.welch(np.atleast_2d(a), fs, step, w, detrend, average == "median"), "x",
+    psd = finite_output(_core.welch(np.atleast_2d(a), fs, step, w, detrend, average), "x",
                         " (values too large for a float64 PSD)")
     freqs = np.arange(nperseg // 2 + 1) * (fs / nperseg)
     return freqs, (psd[0] if a.ndim == 1 else psd)
@@ -233,8 +233,7 @@ def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
     max_len = int(round(t_spec * fs))
     if max_len < 2 or max_len > n:
         raise ValueError(f"max_duration={t_spec} s must span 2..{n} samples of the {n / fs:g} s segment, got {max_len}")
-    rows = [_core.truncate_inverse_psd(np.ascontiguousarray(r), max_len, fs / n, fl) for r in np.atleast_2d(p)]
-    out = np.stack(rows)
+    out = _core.truncate_inverse_psd(np.atleast_2d(p), max_len, fs / n, fl)
     return out[0] if p.ndim == 1 else out
 
 

@@ -19,7 +19,7 @@ def set_threads(n):
         thread count: work is split per template or channel and reduced in a fixed
         order.
     """
-    _core.set_threads(integer("n", n, maximum=4096))
+    _core.set_threads(integer("n", n, maximum=_core.MAX_THREADS))
 
 
 def get_threads():

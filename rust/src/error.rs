@@ -1,15 +1,19 @@
-//! The one error type every kernel returns; the bindings map it to `ValueError`.
+//! The one error type every kernel returns; the bindings map it to a Python
+//! `ValueError` subclass.
 
 use std::fmt;
 
 /// A kernel refused its input. `argument` names the offending parameter.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Error {
+    /// The parameter at fault, as the Python API names it.
     pub argument: &'static str,
+    /// What is wrong with it.
     pub message: String,
 }
 
 impl Error {
+    /// An error blaming `argument`.
     pub fn invalid(argument: &'static str, message: impl Into<String>) -> Self {
         Error {
             argument,
@@ -26,6 +30,7 @@ impl fmt::Display for Error {
 
 impl std::error::Error for Error {}
 
+/// Result of every fallible kernel.
 pub type Result<T> = std::result::Result<T, Error>;
 
 /// Fail with `argument` unless `condition` holds.

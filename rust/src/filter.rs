@@ -7,12 +7,13 @@
 
 use crate::error::{ensure, Result};
 use crate::fft::{self, Planned, RealScratch};
-use crate::spectrum::bin_at_or_above;
+use crate::grid::{band, inverse_psd};
 use num_complex::{Complex, Complex32, Complex64};
 use rayon::prelude::*;
 
 /// Complex sample types templates may be stored in.
 pub trait AsComplex64: Copy + Send + Sync {
+    /// The value as complex128.
     fn c64(self) -> Complex64;
 }
 impl AsComplex64 for Complex32 {
@@ -28,29 +29,10 @@ impl AsComplex64 for Complex64 {
     }
 }
 
-/// Bins `k_lo <= k < k_hi` with `f_low <= k df < f_high`, clipped to `n_freq`.
-pub fn band(f_low: f64, f_high: Option<f64>, df: f64, n_freq: usize) -> (usize, usize) {
-    let k_lo = bin_at_or_above(f_low, df).min(n_freq);
-    let k_hi = f_high.map_or(n_freq, |f| bin_at_or_above(f, df).min(n_freq));
-    (k_lo, k_hi.max(k_lo))
-}
-
-/// `1/S` of one bin, zero where `S` is infinite (an excluded bin).
-#[inline]
-pub fn inverse_psd_bin(s: f64) -> f64 {
-    if s.is_finite() && s > 0.0 {
-        1.0 / s
-    } else {
-        0.0
-    }
-}
-
-/// `1/S` per bin, zero where `S` is infinite.
-pub fn inverse_psd(psd: &[f64]) -> Vec<f64> {
-    psd.iter().map(|&s| inverse_psd_bin(s)).collect()
-}
-
 /// `sigma^2 = 4 df sum_{band} |h~_k|^2 / S_k`.
+///
+/// # Panics
+/// If `k_hi` exceeds `h.len()` or `inv_psd.len()`.
 pub fn sigma_sq<H: AsComplex64>(
     h: &[H],
     inv_psd: &[f64],
@@ -78,6 +60,36 @@ pub fn sigma<H: AsComplex64>(
         .par_chunks(n_freq)
         .map(|h| sigma_sq(h, inv_psd, k_lo, k_hi, df).sqrt())
         .collect()
+}
+
+/// [`sigma`] over the band `f_low <= k df < f_high` with the PSD given as `S`
+/// (`inf` excludes a bin): the whole computation behind `chirpsift.sigma`.
+pub fn sigma_in_band<H: AsComplex64>(
+    templates: &[H],
+    n_freq: usize,
+    psd: &[f64],
+    df: f64,
+    f_low: f64,
+    f_high: Option<f64>,
+) -> Vec<f64> {
+    let (lo, hi) = band(f_low, f_high, df, n_freq);
+    sigma(templates, n_freq, &inverse_psd(psd), lo, hi, df)
+}
+
+/// [`snr_series`] over the band `f_low <= k df < f_high` with the PSD given as `S`.
+///
+/// # Errors
+/// As [`snr_series`].
+pub fn snr_series_in_band<T: Planned, H: AsComplex64>(
+    data: &[Complex64],
+    templates: &[H],
+    psd: &[f64],
+    df: f64,
+    f_low: f64,
+    f_high: Option<f64>,
+) -> Result<Vec<Complex<T>>> {
+    let (lo, hi) = band(f_low, f_high, df, data.len());
+    snr_series(data, templates, &inverse_psd(psd), lo, hi, df)
 }
 
 /// Complex SNR series `(K, N)`, `N = 2 (n_freq - 1)`, of `data` (`x~ = rfft(x) dt`)
@@ -129,12 +141,19 @@ pub fn snr_series<T: Planned, H: AsComplex64>(
 /// Output layout of a cross-correlation, as `scipy.signal.correlate` defines it.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Mode {
+    /// Every lag with any overlap, `n + m - 1` values.
     Full,
+    /// The middle `n` values of `Full`.
     Same,
+    /// Lags with full overlap only, `n - m + 1` values.
     Valid,
 }
 
 impl Mode {
+    /// The mode named `"full"`, `"same"` or `"valid"`.
+    ///
+    /// # Errors
+    /// Names `mode` for any other name.
     pub fn from_name(name: &str) -> Result<Self> {
         match name {
             "full" => Ok(Mode::Full),
@@ -148,6 +167,9 @@ impl Mode {
     }
 
     /// (offset into the full correlation, output length) for data `n`, kernel `m`.
+    ///
+    /// # Errors
+    /// Names `templates` when `Valid` and `m > n`.
     pub fn window(self, n: usize, m: usize) -> Result<(usize, usize)> {
         let full = n + m - 1;
         Ok(match self {
@@ -164,8 +186,17 @@ impl Mode {
 }
 
 /// `out[i][j] = sum_t data[t + j + offset - (m - 1)] * templates[i][t]` by FFT, the
-/// cross-correlation of `scipy.signal.correlate(data, templates[i], mode)`.
-pub fn correlate(data: &[f64], templates: &[f64], m: usize, mode: Mode) -> Result<Vec<f64>> {
+/// cross-correlation of `scipy.signal.correlate(data, templates[i], mode)`, as
+/// `(rows, row length, values row-major)`.
+///
+/// # Errors
+/// Names `templates` when `mode` is `Valid` and a template is longer than `data`.
+pub fn correlate(
+    data: &[f64],
+    templates: &[f64],
+    m: usize,
+    mode: Mode,
+) -> Result<(usize, usize, Vec<f64>)> {
     let n = data.len();
     let (offset, len) = mode.window(n, m)?;
     let nfft = fft::fast_length(n + m - 1);
@@ -197,7 +228,7 @@ pub fn correlate(data: &[f64], templates: &[f64], m: usize, mode: Mode) -> Resul
                 }
             },
         );
-    Ok(out)
+    Ok((k_count, len, out))
 }
 
 #[cfg(test)]
@@ -224,15 +255,15 @@ mod tests {
         let t: Vec<f64> = (0..2 * 8)
             .map(|i| ((i * 5 % 7) as f64 - 3.0) * 0.5)
             .collect();
-        let full = correlate(&data, &t, 8, Mode::Full).unwrap();
+        let (_, _, full) = correlate(&data, &t, 8, Mode::Full).unwrap();
         for (row, tt) in full.chunks(44).zip(t.chunks(8)) {
             for (a, b) in row.iter().zip(direct_full(&data, tt)) {
                 assert!((a - b).abs() < 1e-12);
             }
         }
-        let valid = correlate(&data, &t[..8], 8, Mode::Valid).unwrap();
+        let (_, _, valid) = correlate(&data, &t[..8], 8, Mode::Valid).unwrap();
         assert_eq!(valid.len(), 30);
-        let same = correlate(&data, &t[..8], 8, Mode::Same).unwrap();
+        let (_, _, same) = correlate(&data, &t[..8], 8, Mode::Same).unwrap();
         let df = direct_full(&data, &t[..8]);
         assert!((valid[0] - df[7]).abs() < 1e-12);
         assert!((same[0] - df[3]).abs() < 1e-12);

@@ -6,14 +6,33 @@
 
 use crate::error::{ensure, Error, Result};
 use crate::fft::RealScratch;
+use crate::grid::bin_at_or_above;
 use rayon::prelude::*;
 
 /// How periodograms of the Welch segments are combined.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Average {
+    /// Mean over segments.
     Mean,
     /// Median divided by its bias for exponentially distributed bins.
     Median,
+}
+
+impl Average {
+    /// `"mean"` or `"median"`.
+    ///
+    /// # Errors
+    /// Names `average` for any other name.
+    pub fn from_name(name: &str) -> Result<Self> {
+        match name {
+            "mean" => Ok(Average::Mean),
+            "median" => Ok(Average::Median),
+            _ => Err(Error::invalid(
+                "average",
+                format!("must be 'median' or 'mean', got {name:?}"),
+            )),
+        }
+    }
 }
 
 /// Expected median of `n` unit-mean exponential variables, as used by scipy:
@@ -138,6 +157,7 @@ pub enum DesignCurve {
 }
 
 impl DesignCurve {
+    /// The names [`DesignCurve::from_name`] accepts, in declaration order.
     pub const NAMES: [&'static str; 6] = [
         "gen1-4km",
         "gen1-3km",
@@ -147,6 +167,10 @@ impl DesignCurve {
         "gen2-zero-detuned",
     ];
 
+    /// The curve called `name`.
+    ///
+    /// # Errors
+    /// Names `curve` for an unknown name.
     pub fn from_name(name: &str) -> Result<Self> {
         Ok(match name {
             "gen1-4km" => DesignCurve::Gen1FourKm,
@@ -232,8 +256,20 @@ impl DesignCurve {
     }
 }
 
+/// The design curve called `curve` at each of `freqs` (Hz).
+///
+/// # Errors
+/// Names `curve` for an unknown name.
+pub fn design_psd(curve: &str, freqs: &[f64]) -> Result<Vec<f64>> {
+    let c = DesignCurve::from_name(curve)?;
+    Ok(freqs.iter().map(|&f| c.psd(f)).collect())
+}
+
 /// Linear interpolation of `(freqs, psd)` onto `k * df`, `k < n_freq`; `inf` outside
 /// the input range or next to an `inf` sample. `freqs` must increase strictly.
+///
+/// # Panics
+/// If `freqs` is empty or shorter than `psd`.
 pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f64> {
     let mut out = vec![f64::INFINITY; n_freq];
     let mut i = 0usize;
@@ -257,18 +293,6 @@ pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f6
         }
     }
     out
-}
-
-/// First bin index at or above `f` on a grid of spacing `df`.
-pub fn bin_at_or_above(f: f64, df: f64) -> usize {
-    let k = (f / df).ceil();
-    // Guard against round-off putting an exact multiple one bin high.
-    let k = if k > 0.0 && ((k - 1.0) * df) >= f {
-        k - 1.0
-    } else {
-        k
-    };
-    k.max(0.0) as usize
 }
 
 /// Inverse spectrum truncation (Allen et al. 2012, arXiv:gr-qc/0509116): limit the
@@ -311,6 +335,21 @@ pub fn truncate_inverse_psd(psd: &[f64], max_len: usize, df: f64, f_low: f64) ->
             }
         })
         .collect()
+}
+
+/// [`truncate_inverse_psd`] of each row of `psd` (`n_freq` bins a row), rows in parallel.
+pub fn truncate_inverse_psd_rows(
+    psd: &[f64],
+    n_freq: usize,
+    max_len: usize,
+    df: f64,
+    f_low: f64,
+) -> Vec<f64> {
+    let rows: Vec<Vec<f64>> = psd
+        .par_chunks(n_freq.max(1))
+        .map(|row| truncate_inverse_psd(row, max_len, df, f_low))
+        .collect();
+    rows.concat()
 }
 
 /// Whiten one channel: `irfft(rfft(x) * sqrt(2 / (S fs)))`, zero at DC, below

@@ -38,12 +38,18 @@ fn default_threads() -> usize {
         })
 }
 
+/// Largest thread count [`set_threads`] accepts.
+pub const MAX_THREADS: usize = 4096;
+
 /// Set the number of worker threads used by every kernel from now on.
+///
+/// # Errors
+/// Names `n` unless `1 <= n <= MAX_THREADS`.
 pub fn set_threads(n: usize) -> Result<()> {
-    if n == 0 || n > 4096 {
+    if n == 0 || n > MAX_THREADS {
         return Err(Error::invalid(
             "n",
-            format!("thread count must be in 1..=4096, got {n}"),
+            format!("thread count must be in 1..={MAX_THREADS}, got {n}"),
         ));
     }
     pools().lock().unwrap_or_else(|e| e.into_inner()).current = n;

@@ -72,17 +72,16 @@ def best_time(fn, repeats: int) -> float:
 
 def _inverse_fft_probe(n: int, repeats: int) -> float:
     """Seconds per complex64 inverse FFT of length ``n`` (rustfft, planned once, one thread)."""
-    from .. import _core
+    from .._timing import inverse_fft_seconds
 
-    return float(_core.bench_inverse_fft(int(n), int(repeats)))
+    return inverse_fft_seconds(int(n), repeats=int(repeats))
 
 
 def _generation_probe(bank: Bank, f_low: float, df: float, n_freq: int, repeats: int) -> float:
     """Seconds per template to generate ``bank`` into one reused buffer, as the fused kernel does."""
-    from .. import _core
+    from .._timing import generation_seconds
 
-    m1, m2 = np.ascontiguousarray(bank.m1), np.ascontiguousarray(bank.m2)
-    return float(_core.bench_template_generation(m1, m2, f_low, df, n_freq, int(repeats)))
+    return generation_seconds(bank.m1, bank.m2, f_low=f_low, df=df, n_freq=n_freq, repeats=int(repeats))
 
 
 def yardstick(n: int, repeats: int = 20) -> tuple[float, str]:
@@ -126,7 +125,7 @@ def fused_bank(w: Workload, bank: Bank, *, repeats: int):
 
 def reference_bank(w: Workload, bank: Bank, *, repeats: int) -> float:
     """Best time (s) of the numpy reference of the fused kernel over ``bank``."""
-    from ..reference.segment import filter_segment as ref_filter_segment
+    from ..reference import filter_segment as ref_filter_segment
 
     d, psd = w.segment()
     kw = w.filter_kwargs()

@@ -8,6 +8,7 @@ kernel. It depends on numpy only.
 
 from .constants import AU_SI, C_SI, GM_SUN_SI, MPC, T_SUN
 from .filter import correlate, sigma, snr_series
+from .fused import filter_segment
 from .spectrum import (
     DESIGN_CURVES,
     design_psd,
@@ -33,4 +34,5 @@ __all__ = [
     "taylorf2", "taylorf2_phase", "taylorf2_coefficients",
     "time_to_coalescence", "chirp_duration", "isco_frequency",
     "sigma", "snr_series", "correlate",
+    "filter_segment",
 ]

@@ -1,11 +1,13 @@
-"""TaylorF2 inspiral templates and the time-frequency facts used to place them."""
+"""TaylorF2 inspiral templates and the time-frequency facts used to place them
+(numpy API over the core's ``waveform`` module)."""
 
 from __future__ import annotations
 
 import numpy as np
 
-from . import _core
-from ._validate import broadcast, check_allocation, dtype_choice, finite_output, integer, positive_scalar, real_array
+from .. import _core
+from .._validate import broadcast, check_allocation, dtype_choice, finite_output, integer, positive_scalar
+from ._params import masses, phase_order as _order, template_arrays
 
 __all__ = ["taylorf2", "chirp_duration", "isco_frequency", "T_SUN", "MPC", "C_SI"]
 
@@ -15,34 +17,6 @@ T_SUN = _core.T_SUN
 MPC = _core.MPC
 #: Speed of light in m/s.
 C_SI = _core.C_SI
-
-
-def _masses(m1, m2):
-    a = real_array("m1", m1, ndim=range(0, 2), finite=False)
-    b = real_array("m2", m2, ndim=range(0, 2), finite=False)
-    for name, v in (("m1", a), ("m2", b)):
-        bad = ~(np.isfinite(v) & (v > 0))
-        if bad.any():
-            raise ValueError(f"{name} must be positive and finite (solar masses), got {v.reshape(-1)[np.argmax(bad.reshape(-1))]}")
-    return a, b
-
-
-def _spins(chi1, chi2):
-    out = []
-    for name, c in (("chi1", chi1), ("chi2", chi2)):
-        v = real_array(name, c, ndim=range(0, 2), finite=False)
-        bad = ~(np.abs(v) < 1)
-        if bad.any():
-            raise ValueError(f"{name} must satisfy |{name}| < 1, got {v.reshape(-1)[np.argmax(bad.reshape(-1))]}")
-        out.append(v)
-    return out
-
-
-def _phase_order(phase_order) -> int:
-    p = integer("phase_order", phase_order, minimum=0)
-    if p > 7:
-        raise ValueError(f"phase_order must be 0..7 (twice the PN order), got {p}")
-    return p
 
 
 def isco_frequency(m1, m2):
@@ -59,7 +33,7 @@ def isco_frequency(m1, m2):
         ``f_ISCO = 1 / (6^(3/2) pi M T_sun)`` in Hz, twice the orbital frequency at
         ``r = 6 G M / c^2`` (about 4400 Hz / (M / Msun)).
     """
-    a, b = _masses(m1, m2)
+    a, b = masses(m1, m2)
     m = broadcast(("m1", "m2"), (a, b))
     total = np.ascontiguousarray((m[0] + m[1]).reshape(-1))
     out = _core.isco_frequency(total).reshape(m[0].shape)
@@ -96,7 +70,7 @@ def chirp_duration(m1, m2, f_low, phase_order=7):
     >>> round(chirpsift.chirp_duration(1.4, 1.4, 40.0, phase_order=4), 2)
     25.43
     """
-    a, b = _masses(m1, m2)
+    a, b = masses(m1, m2)
     fl = positive_scalar("f_low", f_low)
     m = broadcast(("m1", "m2"), (a, b))
     m1v, m2v = (np.ascontiguousarray(x.reshape(-1)) for x in m)
@@ -104,7 +78,7 @@ def chirp_duration(m1, m2, f_low, phase_order=7):
     if above.any():
         i = int(np.argmax(above))
         raise ValueError(f"f_low={fl} Hz is at or above the ISCO frequency of m1={m1v[i]}, m2={m2v[i]}: no inspiral from there")
-    out = _core.chirp_duration(m1v, m2v, fl, _phase_order(phase_order)).reshape(m[0].shape)
+    out = _core.chirp_duration(m1v, m2v, fl, _order(phase_order)).reshape(m[0].shape)
     finite_output(out, "m1, m2 or f_low", " (parameters too extreme for the post-Newtonian series)")
     return float(out) if out.ndim == 0 else out
 
@@ -177,30 +151,16 @@ def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None, dist
     >>> h.shape, h.dtype
     ((2, 65537), dtype('complex64'))
     """
-    a, b = _masses(m1, m2)
-    c1, c2 = _spins(chi1, chi2)
-    arrays = broadcast(("m1", "m2", "chi1", "chi2"), (a, b, c1, c2))
-    m1v, m2v, c1v, c2v = (np.ascontiguousarray(x.reshape(-1), dtype=np.float64) for x in arrays)
     fl = positive_scalar("f_low", f_low)
+    m1v, m2v, c1v, c2v, fh = template_arrays(m1, m2, chi1, chi2, f_low=fl, f_high=f_high)
     dfv = positive_scalar("df", df)
     nf = integer("n_freq", n_freq)
     dist = positive_scalar("distance", distance)
-    order = _phase_order(phase_order)
+    order = _order(phase_order)
     dt = dtype_choice("dtype", dtype, (np.complex64, np.complex128))
     check_allocation("n_freq", m1v.shape[0] * nf, dt.itemsize)
     f_top = (nf - 1) * dfv
     if fl >= f_top:
         raise ValueError(f"f_low={fl} Hz must be below the highest bin frequency (n_freq - 1) * df = {f_top} Hz")
-    if f_high is None:
-        fh = 1.0 / (6.0**1.5 * np.pi * (m1v + m2v) * T_SUN)
-    else:
-        fh = real_array("f_high", f_high, ndim=range(0, 2))
-        try:
-            fh = np.broadcast_to(fh, m1v.shape).astype(np.float64)
-        except ValueError as exc:
-            raise ValueError(f"f_high must broadcast to {m1v.shape[0]} templates, got shape {fh.shape}") from exc
-    bad = ~(fh > fl)
-    if bad.any():
-        raise ValueError(f"f_high must exceed f_low={fl} Hz, got {fh[np.argmax(bad)]} Hz (template {int(np.argmax(bad))})")
-    out = _core.taylorf2(m1v, m2v, c1v, c2v, fl, dfv, nf, np.ascontiguousarray(fh), dist, order, dt == np.complex128)
+    out = _core.taylorf2(m1v, m2v, c1v, c2v, fl, dfv, nf, fh, dist, order, dt.name)
     return finite_output(out, "m1, m2, distance or df", f" (template values do not fit in {dt.name})")

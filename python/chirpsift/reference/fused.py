@@ -49,6 +49,7 @@ def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_hig
     f = np.arange(n_freq) * df
     inv = np.where(np.isfinite(s), 1.0 / s, 0.0)
     p = int(chi2_bands)
+    # The kernel's per-peak columns (chirpsift.PEAK_COLUMNS; a test checks they match).
     columns = {c: [] for c in ("template", "index", "position", "snr", "phase", "sigma", "chi2", "chi2_dof")}
     for i in range(m1.shape[0]):
         h = taylorf2(m1[i], m2[i], chi1[i], chi2[i], f_low=f_low, df=df, n_freq=n_freq, f_high=fh[i],

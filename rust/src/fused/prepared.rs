@@ -1,0 +1,221 @@
+//! One segment made ready for every template: the weighted data `q = 4 df d~ / S`
+//! and the inverse PSD in rescaled float32, plus the spectral moments that choose
+//! each template's decimation.
+
+use crate::error::{ensure, Result};
+use crate::grid::inverse_psd_bin;
+use crate::waveform::{Model, WeightShape};
+use num_complex::{Complex32, Complex64};
+use rayon::prelude::*;
+use std::f64::consts::PI;
+
+/// Bins per chunk of the spectral-moment sums. The weight is taken at the chunk
+/// centre (one cube root per chunk); across a chunk `f^(-7/3)` changes by
+/// `(7/3) 64 df / f`, 3% at 20 Hz for df = 1/256 Hz and less above, and the moments
+/// only choose the decimation, whose loss bound has a factor-4 step between choices.
+pub(crate) const MOMENT_CHUNK: usize = 64;
+
+/// Largest decimation of the coarse SNR series.
+pub const MAX_DECIMATION: usize = 64;
+
+/// Largest fractional SNR loss between coarse samples that decimation may cause.
+///
+/// For a template whose weight `|h~|^2 / S` has frequency variance `sigma_f^2`, the
+/// normalised SNR of a matching signal a time `dt` off its peak is at least
+/// `1 - (2 pi sigma_f dt)^2 / 2` (since `cos x >= 1 - x^2 / 2`), and a coarse sample
+/// is at most `D / 2` samples off. The coarse threshold is lowered by twice that.
+pub const MAX_DECIMATION_LOSS: f64 = 0.02;
+
+/// One segment, prepared once and shared by every template.
+pub struct Prepared {
+    /// `4 df d~_k / S_k / q_scale` (complex float32).
+    weighted_data: Vec<Complex32>,
+    /// `(1 / S_k) / w_scale`, zero where `S` is infinite.
+    inv_psd: Vec<f32>,
+    q_scale: f64,
+    w_scale: f64,
+    df: f64,
+    n: usize,
+    moments: MomentTable,
+}
+
+impl Prepared {
+    /// `data` is `d~ = rfft(d) dt` on `n_freq` bins, `psd` the (truncated) PSD on
+    /// the same grid with `inf` for excluded bins.
+    ///
+    /// # Errors
+    /// Names `psd` if its length differs from `data`'s, if there are fewer than 2
+    /// bins, or if it is `inf` at every frequency.
+    pub fn new(data: &[Complex64], psd: &[f64], df: f64) -> Result<Self> {
+        let n_freq = data.len();
+        ensure(n_freq >= 2 && psd.len() == n_freq, "psd", || {
+            format!("needs {n_freq} bins, got {}", psd.len())
+        })?;
+        // Parallel per-bin passes; the maxima are order-independent, so the result
+        // does not depend on the thread count.
+        let inv = |k: usize| inverse_psd_bin(psd[k]);
+        let (q_max, w_max) = (0..n_freq)
+            .into_par_iter()
+            .map(|k| {
+                let i = inv(k);
+                ((data[k] * (4.0 * df * i)).norm(), i)
+            })
+            .reduce(|| (0.0, 0.0), |a, b| (a.0.max(b.0), a.1.max(b.1)));
+        ensure(w_max > 0.0, "psd", || "is inf at every frequency".into())?;
+        let q_scale = if q_max > 0.0 { q_max } else { 1.0 };
+        let (weighted_data, inv_psd): (Vec<Complex32>, Vec<f32>) = (0..n_freq)
+            .into_par_iter()
+            .map(|k| {
+                let i = inv(k);
+                let c = data[k] * (4.0 * df * i / q_scale);
+                (Complex32::new(c.re as f32, c.im as f32), (i / w_max) as f32)
+            })
+            .unzip();
+        let moments = MomentTable::new(&inv_psd, df);
+        Ok(Prepared {
+            weighted_data,
+            inv_psd,
+            q_scale,
+            w_scale: w_max,
+            df,
+            n: 2 * (n_freq - 1),
+            moments,
+        })
+    }
+
+    /// Frequency bins `n_freq = N / 2 + 1`.
+    pub fn n_freq(&self) -> usize {
+        self.weighted_data.len()
+    }
+    /// Samples `N` of the segment.
+    pub fn n(&self) -> usize {
+        self.n
+    }
+    /// Bin spacing, Hz.
+    pub fn df(&self) -> f64 {
+        self.df
+    }
+    /// `q_k / q_scale`.
+    pub fn weighted_data(&self) -> &[Complex32] {
+        &self.weighted_data
+    }
+    /// `(1 / S_k) / w_scale`.
+    pub fn inv_psd(&self) -> &[f32] {
+        &self.inv_psd
+    }
+    /// The factor taking [`Self::weighted_data`] back to `4 df d~ / S`.
+    pub fn q_scale(&self) -> f64 {
+        self.q_scale
+    }
+    /// The factor taking [`Self::inv_psd`] back to `1 / S`.
+    pub fn w_scale(&self) -> f64 {
+        self.w_scale
+    }
+
+    /// Variance (Hz^2) of frequency under `model`'s weight `|h~|^2 / S` over
+    /// `[k_lo, k_hi)` (band edges rounded to whole moment chunks).
+    pub fn frequency_variance(&self, model: &Model, k_lo: usize, k_hi: usize) -> f64 {
+        let m = self.moments.sums(model, k_lo, k_hi, self.df);
+        if m[0] > 0.0 {
+            (m[2] / m[0] - (m[1] / m[0]).powi(2)).max(0.0)
+        } else {
+            0.0
+        }
+    }
+
+    /// Largest power-of-two decimation `D` (dividing N) whose worst-case loss
+    /// `(pi sigma_f D / fs)^2 / 2` stays below [`MAX_DECIMATION_LOSS`], and that loss.
+    pub fn decimation(&self, model: &Model, k_lo: usize, k_hi: usize) -> (usize, f64) {
+        let fs = self.n as f64 * self.df;
+        let sigma_f = self.frequency_variance(model, k_lo, k_hi).sqrt();
+        let loss = |d: usize| 0.5 * (PI * sigma_f * d as f64 / fs).powi(2);
+        let mut d = 1usize;
+        while d < MAX_DECIMATION
+            && self.n % (2 * d) == 0
+            && self.n / (2 * d) >= 64
+            && loss(2 * d) <= MAX_DECIMATION_LOSS
+        {
+            d *= 2;
+        }
+        (d, loss(d))
+    }
+}
+
+/// Per-chunk sums `sum w_k f_k^m`, m = 0, 1, 2, of the inverse PSD, and their prefix
+/// sums weighted by `f^(-7/3)` at each chunk centre (the Newtonian weight shape).
+struct MomentTable {
+    n_freq: usize,
+    /// `[sum w, sum w f, sum w f^2]` per chunk of `MOMENT_CHUNK` bins (DC excluded).
+    chunks: Vec<[f64; 3]>,
+    /// Prefix sums over chunks of `fc^(-7/3) * chunks[c]`.
+    newtonian: [Vec<f64>; 3],
+}
+
+impl MomentTable {
+    fn new(w: &[f32], df: f64) -> Self {
+        let n_freq = w.len();
+        let count = n_freq.div_ceil(MOMENT_CHUNK);
+        let chunks: Vec<[f64; 3]> = (0..count)
+            .into_par_iter()
+            .map(|c| {
+                let (lo, hi) = (c * MOMENT_CHUNK, ((c + 1) * MOMENT_CHUNK).min(n_freq));
+                let mut m = [0.0; 3];
+                for (k, &wk) in w.iter().enumerate().take(hi).skip(lo.max(1)) {
+                    let f = k as f64 * df;
+                    let b = wk as f64;
+                    m[0] += b;
+                    m[1] += b * f;
+                    m[2] += b * f * f;
+                }
+                m
+            })
+            .collect();
+        let mut newtonian = [
+            vec![0.0; count + 1],
+            vec![0.0; count + 1],
+            vec![0.0; count + 1],
+        ];
+        for (c, m) in chunks.iter().enumerate() {
+            let fc = chunk_centre(c, n_freq, df);
+            let scale = if fc > 0.0 {
+                1.0 / (fc * fc * fc.cbrt())
+            } else {
+                0.0
+            };
+            for i in 0..3 {
+                newtonian[i][c + 1] = newtonian[i][c] + m[i] * scale;
+            }
+        }
+        MomentTable {
+            n_freq,
+            chunks,
+            newtonian,
+        }
+    }
+
+    /// `[sum W, sum W f, sum W f^2]` over the chunks covering `[k_lo, k_hi)`, with
+    /// `W_k = |h~(f_c)|^2 w_k` up to a constant factor, `f_c` the chunk centre.
+    fn sums(&self, model: &Model, k_lo: usize, k_hi: usize, df: f64) -> [f64; 3] {
+        let (c_lo, c_hi) = (k_lo / MOMENT_CHUNK, k_hi.div_ceil(MOMENT_CHUNK));
+        match model.weight_shape() {
+            WeightShape::Newtonian => self.newtonian.each_ref().map(|p| p[c_hi] - p[c_lo]),
+            WeightShape::General => {
+                let mut m = [0.0; 3];
+                for c in c_lo..c_hi {
+                    let fc = chunk_centre(c, self.n_freq, df);
+                    let a = if fc > 0.0 { model.amplitude(fc) } else { 0.0 };
+                    for i in 0..3 {
+                        m[i] += a * a * self.chunks[c][i];
+                    }
+                }
+                m
+            }
+        }
+    }
+}
+
+/// Centre frequency of chunk `c` (Hz).
+fn chunk_centre(c: usize, n_freq: usize, df: f64) -> f64 {
+    let (lo, hi) = (c * MOMENT_CHUNK, ((c + 1) * MOMENT_CHUNK).min(n_freq));
+    0.5 * (lo + hi - 1) as f64 * df
+}
