@@ -5,9 +5,48 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import choice, complex_array, dtype_choice, finite_output, nonnegative_scalar, positive_scalar, psd_array, real_array
+from ._validate import (
+    choice, complex_array, dtype_choice, finite_output, nonnegative_scalar, integer, positive_scalar, psd_array, real_array,
+)
 
-__all__ = ["sigma", "snr_series", "correlate"]
+__all__ = ["band", "sigma", "snr_series", "correlate"]
+
+
+def band(f_low, f_high, df, n_freq):
+    """The frequency bins of a band: ``k_lo <= k < k_hi`` with ``f_low <= k df < f_high``.
+
+    Parameters
+    ----------
+    f_low : float
+        Lower edge (Hz), included.
+    f_high : float or None
+        Upper edge (Hz), excluded; ``None`` runs to the last bin.
+    df : float
+        Bin spacing (Hz).
+    n_freq : int
+        Number of bins; the result is clipped to ``[0, n_freq]``.
+
+    Returns
+    -------
+    (int, int)
+        ``(k_lo, k_hi)`` with ``k_hi >= k_lo``. A frequency within one part in
+        ``1e9`` below a bin counts as on it, so an edge that is an exact multiple of
+        ``df`` (``0.1`` Hz at ``df = 1/70`` Hz) starts on that bin (bin 7) even though
+        ``0.1 / (1/70)`` rounds above 7. Every kernel uses this one rule.
+
+    See Also
+    --------
+    chirpsift.reference.band : the pure-numpy twin.
+
+    Examples
+    --------
+    >>> from chirpsift.filter import band
+    >>> band(0.1, None, 1 / 70, 100)
+    (7, 100)
+    """
+    fl = nonnegative_scalar("f_low", f_low)
+    fh = None if f_high is None else positive_scalar("f_high", f_high)
+    return tuple(int(k) for k in _core.band(fl, fh, positive_scalar("df", df), integer("n_freq", n_freq)))
 
 
 def _band(psd: np.ndarray, df: float, f_low, f_high):
@@ -21,8 +60,7 @@ def _band(psd: np.ndarray, df: float, f_low, f_high):
         fh = positive_scalar("f_high", f_high)
         if fh <= fl:
             raise ValueError(f"f_high={fh} Hz must exceed f_low={fl} Hz")
-    k_lo = int(np.ceil(fl / df - 1e-9))
-    k_hi = n_freq if fh is None else min(n_freq, int(np.ceil(fh / df - 1e-9)))
+    k_lo, k_hi = _core.band(fl, fh, df, n_freq)
     if k_hi <= k_lo:
         raise ValueError(f"no frequency bins between f_low={fl} Hz and f_high={fh} Hz at df={df} Hz")
     if not np.isfinite(psd[k_lo:k_hi]).any():

@@ -222,9 +222,9 @@ def filter_segment(
     thr = positive_scalar("min_snr", min_snr)
     # A window longer than the segment keeps one peak per segment, as a window of n does.
     cl = min(integer("cluster_samples", cluster_samples, minimum=0), n)
-    k_low = int(np.ceil(fl / dfv))
+    k_low, _ = _core.band(fl, None, dfv, d.shape[0])
     bins = integer("chi2_bands", chi2_bands, minimum=2, maximum=max(2, d.shape[0] - k_low))
     start, stop = _valid_range(valid, n)
-    if not np.isfinite(p[int(np.ceil(fl / dfv)):]).any():
+    if not np.isfinite(p[k_low:]).any():
         raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")
     return _core.filter_segment(d, p, dfv, bank._core, thr, cl, bins, start, stop)

@@ -4,16 +4,26 @@
 //! One rule decides the first bin at or above a frequency, so the filter, the
 //! fused kernel, the spectrum chain and the Python checks never disagree by a bin.
 
-/// First bin index `k` with `k df >= f` on a grid of spacing `df` (0 for `f <= 0`).
+/// Relative tolerance under which a frequency counts as lying on a bin: `f` within
+/// `BIN_TOLERANCE * f` below `k df` selects bin `k`. Far below any physical
+/// resolution, far above double-precision round-off of `f / df`.
+pub const BIN_TOLERANCE: f64 = 1e-9;
+
+/// First bin index `k` with `k df >= f` on a grid of spacing `df` (0 for `f <= 0`),
+/// where `f` a hair below a bin (relative [`BIN_TOLERANCE`]) selects that bin.
+///
+/// `ceil(f / df)` alone puts exact multiples one bin high whenever the division
+/// rounds up (`f = 0.1`, `df = 1/70`: `7 df = f` exactly, yet `ceil` gives 8), and
+/// so does comparing the rounded `k df` with `f`; the tolerance makes the rule
+/// agree with exact rational arithmetic on the values the user typed.
 pub fn bin_at_or_above(f: f64, df: f64) -> usize {
-    let k = (f / df).ceil();
-    // Guard against round-off putting an exact multiple one bin high.
-    let k = if k > 0.0 && ((k - 1.0) * df) >= f {
-        k - 1.0
+    let x = f / df;
+    let k = (x - BIN_TOLERANCE * x.abs().max(1.0)).ceil();
+    if k > 0.0 {
+        k as usize
     } else {
-        k
-    };
-    k.max(0.0) as usize
+        0
+    }
 }
 
 /// Bins `k_lo <= k < k_hi` with `f_low <= k df < f_high` (`f_high = None`: to the
@@ -42,6 +52,19 @@ pub fn inverse_psd(psd: &[f64]) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn first_bin_agrees_with_exact_rational_arithmetic() {
+        // f = a / 10 and df = 1 / d exactly in rationals: the first k with
+        // k / d >= a / 10 is ceil(a d / 10), computed in integers.
+        for a in 1..400u64 {
+            for d in 1..300u64 {
+                let exact = (a * d).div_ceil(10) as usize;
+                let got = bin_at_or_above(a as f64 / 10.0, 1.0 / d as f64);
+                assert_eq!(got, exact, "f_low={} df=1/{d}", a as f64 / 10.0);
+            }
+        }
+    }
 
     #[test]
     fn band_is_clipped_and_never_inverted() {

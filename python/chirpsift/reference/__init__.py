@@ -7,7 +7,7 @@ kernel. It depends on numpy only.
 """
 
 from .constants import AU_SI, C_SI, GM_SUN_SI, MPC, T_SUN
-from .filter import correlate, sigma, snr_series
+from .filter import band, correlate, sigma, snr_series
 from .fused import filter_segment
 from .spectrum import (
     DESIGN_CURVES,
@@ -33,6 +33,6 @@ __all__ = [
     "truncate_inverse_psd", "whiten",
     "taylorf2", "taylorf2_phase", "taylorf2_coefficients",
     "time_to_coalescence", "chirp_duration", "isco_frequency",
-    "sigma", "snr_series", "correlate",
+    "band", "sigma", "snr_series", "correlate",
     "filter_segment",
 ]

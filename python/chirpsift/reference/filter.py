@@ -7,15 +7,13 @@ Fourier conventions: ``x~ = rfft(x) * dt``; inner product
 
 import numpy as np
 
-__all__ = ["sigma", "snr_series", "correlate"]
+from .grid import band, in_band
+
+__all__ = ["band", "sigma", "snr_series", "correlate"]
 
 
 def _band(n_freq, df, f_low, f_high):
-    f = np.arange(n_freq) * float(df)
-    band = f >= f_low
-    if f_high is not None:
-        band &= f < f_high
-    return band
+    return in_band(n_freq, df, f_low, f_high)
 
 
 def _inverse_psd(psd, band):

@@ -4,6 +4,7 @@ peak finding, clustering, refinement and Allen's chi-squared, written for clarit
 import numpy as np
 
 from .filter import snr_series
+from .grid import in_band
 from .waveform import isco_frequency, taylorf2
 
 __all__ = ["filter_segment", "find_peaks", "cluster_peaks"]
@@ -54,7 +55,7 @@ def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_hig
     for i in range(m1.shape[0]):
         h = taylorf2(m1[i], m2[i], chi1[i], chi2[i], f_low=f_low, df=df, n_freq=n_freq, f_high=fh[i],
                      phase_order=phase_order, dtype=np.complex128)[0]
-        band = (f >= f_low) & (f < fh[i])
+        band = in_band(n_freq, df, f_low, fh[i])
         weight = np.abs(h) ** 2 * inv * band
         sigma2 = 4 * df * weight.sum()
         if not sigma2 > 0:

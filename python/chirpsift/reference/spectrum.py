@@ -8,6 +8,8 @@ transforms ``x~ = rfft(x) * dt``.
 
 import numpy as np
 
+from .grid import in_band
+
 __all__ = [
     "median_bias",
     "welch",
@@ -340,8 +342,7 @@ def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
     s = np.asarray(psd, dtype=np.float64)
     n = 2 * (s.size - 1)
     df = float(sample_rate) / n
-    f = np.arange(s.size) * df
-    usable = (f >= f_low) & np.isfinite(s)
+    usable = in_band(s.size, df, f_low) & np.isfinite(s)
     r = np.zeros(s.size)
     r[usable] = 1.0 / np.sqrt(s[usable])
     q = np.fft.irfft(r, n)
@@ -350,7 +351,7 @@ def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
     r2 = np.fft.rfft(q)
     with np.errstate(divide="ignore"):
         out = 1.0 / (r2.real**2 + r2.imag**2)
-    out[f < f_low] = np.inf
+    out[~in_band(s.size, df, f_low)] = np.inf
     return out
 
 
@@ -389,7 +390,7 @@ def whiten(x, psd, sample_rate, f_low=None):
     f = np.arange(n // 2 + 1) * (fs / n)
     keep = np.isfinite(s) & (f > 0)
     if f_low is not None:
-        keep &= f >= f_low
+        keep &= in_band(n // 2 + 1, fs / n, f_low)
     scale = np.zeros(np.broadcast_shapes(s.shape, keep.shape))
     scale[keep] = np.sqrt(2.0 / (np.broadcast_to(s, keep.shape)[keep] * fs))
     return np.fft.irfft(np.fft.rfft(x, axis=-1) * scale, n, axis=-1)

@@ -8,6 +8,7 @@ angular momentum (aligned spins).
 import numpy as np
 
 from .constants import C_SI, MPC, T_SUN
+from .grid import in_band
 
 __all__ = [
     "isco_frequency",
@@ -262,7 +263,7 @@ def taylorf2(m1, m2, chi1=0.0, chi2=0.0, *, f_low, df, n_freq, f_high=None,
         raise ValueError("template parameters must be scalars or 1-D")
     m, eta, _ = _mass_parameters(m1, m2)
     f = np.arange(int(n_freq)) * float(df)
-    band = (f[None, :] >= f_low[:, None]) & (f[None, :] < f_high[:, None]) & (f[None, :] > 0)
+    band = in_band(int(n_freq), df, f_low, f_high) & (f[None, :] > 0)
     fs = np.where(band, f[None, :], 1.0)
     psi = taylorf2_phase(m1[:, None], m2[:, None], chi1[:, None], chi2[:, None],
                          fs, phase_order)
