@@ -380,3 +380,6 @@ fn triggers_at(
         })
         .collect()
 }
+
+#[cfg(test)]
+mod tests;

@@ -13,6 +13,9 @@ use std::f64::consts::PI;
 /// centre (one cube root per chunk); across a chunk `f^(-7/3)` changes by
 /// `(7/3) 64 df / f`, 3% at 20 Hz for df = 1/256 Hz and less above, and the moments
 /// only choose the decimation, whose loss bound has a factor-4 step between choices.
+/// Band edges round to whole chunks, so this assumes `64 df` is small against the
+/// band (segments of tens of seconds): at df = 0.5 Hz a chunk spans 32 Hz and a band
+/// from 20 Hz would borrow weight from below it.
 pub(crate) const MOMENT_CHUNK: usize = 64;
 
 /// Largest decimation of the coarse SNR series.
@@ -36,7 +39,7 @@ pub struct Prepared {
     w_scale: f64,
     df: f64,
     n: usize,
-    moments: MomentTable,
+    pub(super) moments: MomentTable,
 }
 
 impl Prepared {
@@ -141,14 +144,19 @@ impl Prepared {
     }
 }
 
-/// Per-chunk sums `sum w_k f_k^m`, m = 0, 1, 2, of the inverse PSD, and their prefix
-/// sums weighted by `f^(-7/3)` at each chunk centre (the Newtonian weight shape).
-struct MomentTable {
+/// Per-chunk sums `sum w_k f_k^m`, m = 0, 1, 2, of the inverse PSD, and the
+/// Newtonian weight `f^(-7/3)` at each chunk centre.
+///
+/// A template's moments are summed over its band's chunks directly rather than
+/// from prefix sums: a prefix sum would carry the weight of every chunk below the
+/// band, and where `1/S` is large near DC the band's share can fall below the
+/// prefix's round-off.
+pub(super) struct MomentTable {
     n_freq: usize,
     /// `[sum w, sum w f, sum w f^2]` per chunk of `MOMENT_CHUNK` bins (DC excluded).
     chunks: Vec<[f64; 3]>,
-    /// Prefix sums over chunks of `fc^(-7/3) * chunks[c]`.
-    newtonian: [Vec<f64>; 3],
+    /// `fc^(-7/3)` at each chunk centre `fc` (zero at `fc = 0`).
+    newtonian: Vec<f64>,
 }
 
 impl MomentTable {
@@ -170,22 +178,16 @@ impl MomentTable {
                 m
             })
             .collect();
-        let mut newtonian = [
-            vec![0.0; count + 1],
-            vec![0.0; count + 1],
-            vec![0.0; count + 1],
-        ];
-        for (c, m) in chunks.iter().enumerate() {
-            let fc = chunk_centre(c, n_freq, df);
-            let scale = if fc > 0.0 {
-                1.0 / (fc * fc * fc.cbrt())
-            } else {
-                0.0
-            };
-            for i in 0..3 {
-                newtonian[i][c + 1] = newtonian[i][c] + m[i] * scale;
-            }
-        }
+        let newtonian = (0..count)
+            .map(|c| {
+                let fc = chunk_centre(c, n_freq, df);
+                if fc > 0.0 {
+                    1.0 / (fc * fc * fc.cbrt())
+                } else {
+                    0.0
+                }
+            })
+            .collect();
         MomentTable {
             n_freq,
             chunks,
@@ -196,21 +198,34 @@ impl MomentTable {
     /// `[sum W, sum W f, sum W f^2]` over the chunks covering `[k_lo, k_hi)`, with
     /// `W_k = |h~(f_c)|^2 w_k` up to a constant factor, `f_c` the chunk centre.
     fn sums(&self, model: &Model, k_lo: usize, k_hi: usize, df: f64) -> [f64; 3] {
+        self.sums_as(model.weight_shape(), model, k_lo, k_hi, df)
+    }
+
+    /// [`Self::sums`] with the weight taken as `shape` whatever the model says.
+    pub(super) fn sums_as(
+        &self,
+        shape: WeightShape,
+        model: &Model,
+        k_lo: usize,
+        k_hi: usize,
+        df: f64,
+    ) -> [f64; 3] {
         let (c_lo, c_hi) = (k_lo / MOMENT_CHUNK, k_hi.div_ceil(MOMENT_CHUNK));
-        match model.weight_shape() {
-            WeightShape::Newtonian => self.newtonian.each_ref().map(|p| p[c_hi] - p[c_lo]),
-            WeightShape::General => {
-                let mut m = [0.0; 3];
-                for c in c_lo..c_hi {
+        let mut m = [0.0; 3];
+        for c in c_lo..c_hi {
+            let weight = match shape {
+                WeightShape::Newtonian => self.newtonian[c],
+                WeightShape::General => {
                     let fc = chunk_centre(c, self.n_freq, df);
                     let a = if fc > 0.0 { model.amplitude(fc) } else { 0.0 };
-                    for i in 0..3 {
-                        m[i] += a * a * self.chunks[c][i];
-                    }
+                    a * a
                 }
-                m
+            };
+            for i in 0..3 {
+                m[i] += weight * self.chunks[c][i];
             }
         }
+        m
     }
 }
 
