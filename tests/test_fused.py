@@ -5,6 +5,7 @@ import numpy as np
 import pytest
 
 import chirpsift as cs
+import chirpsift.reference as ref
 from chirpsift.reference import fused as ref_fused
 
 FS = 1024.0
@@ -24,10 +25,27 @@ def gaussian_noise_fd(rng):
     return (rng.normal(size=NF) + 1j * rng.normal(size=NF)) * np.sqrt(T * s / 4)
 
 
-def injection(m1, m2, snr, t_c, phase=0.0, chi1=0.0, chi2=0.0):
-    h = cs.taylorf2(m1, m2, chi1, chi2, f_low=F_LOW, df=DF, n_freq=NF, dtype=np.complex128)[0]
-    sig = cs.sigma(h, PSD, DF, F_LOW)
-    return h * np.exp(-2j * np.pi * FREQS * t_c) * np.exp(1j * phase) * (snr / sig)
+def injection(m1, m2, snr, t_c, phase=0.0, chi1=0.0, chi2=0.0, psd=PSD, f_low=F_LOW, df=DF):
+    """A TaylorF2 signal of optimal SNR ``snr`` coalescing at ``t_c``, built by the
+    pure-numpy twin (direct phase formula, direct norm sum), not by the kernels
+    under test."""
+    nf = psd.shape[0]
+    f = np.arange(nf) * df
+    h = ref.taylorf2(m1, m2, chi1, chi2, f_low=f_low, df=df, n_freq=nf, dtype=np.complex128)[0]
+    sig = float(np.ravel(ref.sigma(h, psd, df, f_low))[0])
+    return h * np.exp(-2j * np.pi * f * t_c) * np.exp(1j * phase) * (snr / sig)
+
+
+def newtonian_weight(m1, m2, psd, f_low, df):
+    """Normalised weight |h~|^2 / S of a TaylorF2 template: f^(-7/3) / S on
+    [f_low, f_ISCO), analytic (Cutler & Flanagan 1994 amplitude; ISCO frequency
+    1 / (6^(3/2) pi M T_sun), REFERENCES item 4)."""
+    f = np.arange(psd.shape[0]) * df
+    f_isco = 1.0 / (6**1.5 * np.pi * (m1 + m2) * ref.T_SUN)
+    inside = (f >= f_low) & (f < f_isco) & np.isfinite(psd)
+    w = np.zeros(f.shape)
+    w[inside] = f[inside] ** (-7 / 3) / psd[inside]
+    return f, w / w.sum()
 
 
 def test_fused_kernel_equals_numpy_twin():
@@ -74,9 +92,7 @@ def test_noise_peak_rate_follows_rice_formula():
     # angular frequency under the normalised spectrum |h~|^2 / S. At u = 4 each
     # excursion holds one peak, so peaks above threshold count the up-crossings.
     m1, m2, u = 10.0, 8.0, 4.0
-    h = cs.taylorf2(m1, m2, f_low=F_LOW, df=DF, n_freq=NF, dtype=np.complex128)[0]
-    w = np.abs(h) ** 2 * np.where(np.isfinite(PSD), 1 / PSD, 0.0)
-    w /= w.sum()
+    _, w = newtonian_weight(m1, m2, PSD, F_LOW, DF)
     omega = 2 * np.pi * FREQS
     delta = (w * omega**2).sum() - (w * omega).sum() ** 2
     valid = (int(10 * FS), int(120 * FS))
@@ -190,10 +206,8 @@ def test_decimated_search_matches_full_rate_series(m1, m2):
     rng = np.random.default_rng(int(m1 * 10))
     noise = (rng.normal(size=nf) + 1j * rng.normal(size=nf)) * np.sqrt(t * np.where(np.isfinite(psd), psd, 0) / 4)
     f_low = 30.0
-    h = cs.taylorf2(m1, m2, f_low=f_low, df=1 / t, n_freq=nf, dtype=np.complex128)[0]
-    sig = cs.sigma(h, psd, 1 / t, f_low)
     t_c = 50.0 + 0.31 / fs
-    data = noise + h * np.exp(-2j * np.pi * f * t_c) * (15.0 / sig)
+    data = noise + injection(m1, m2, 15.0, t_c, psd=psd, f_low=f_low, df=1 / t)
     kw = dict(f_low=f_low, min_snr=8.0, cluster_samples=int(fs), chi2_bands=8, valid=(int(30 * fs), int(62 * fs)))
     a = cs.filter_segment(data, psd, 1 / t, m1, m2, **kw)
     b = ref_fused.filter_segment(data, psd, 1 / t, m1, m2, **kw)
@@ -203,8 +217,7 @@ def test_decimated_search_matches_full_rate_series(m1, m2):
     assert abs(a["position"][0] - b["position"][0]) < 0.1
     # Against the true time: noise moves the peak by ~ 1 / (2 pi sigma_f rho), the
     # timing accuracy of a matched filter (Cramer-Rao bound; common practice); 4 sigma.
-    w = np.abs(h) ** 2 * np.where(np.isfinite(psd), 1 / psd, 0.0)
-    w /= w.sum()
+    _, w = newtonian_weight(m1, m2, psd, f_low, 1 / t)
     sigma_f = np.sqrt((w * f**2).sum() - (w * f).sum() ** 2)
     assert abs(a["position"][0] / fs - t_c) < 4 / (2 * np.pi * sigma_f * 15.0)
 
@@ -222,13 +235,11 @@ def test_folded_decimation_matches_full_rate_series():
     psd = cs.design_psd(f) * np.maximum(f / 40.0, 1.0) ** 8
     rng = np.random.default_rng(8)
     noise = (rng.normal(size=nf) + 1j * rng.normal(size=nf)) * np.sqrt(t * np.where(np.isfinite(psd), psd, 0) / 4)
-    h = cs.taylorf2(2.0, 1.5, f_low=30.0, df=1 / t, n_freq=nf, dtype=np.complex128)[0]
-    w = np.abs(h) ** 2 * np.where(np.isfinite(psd), 1 / psd, 0.0)
-    w /= w.sum()
+    _, w = newtonian_weight(2.0, 1.5, psd, 30.0, 1 / t)
     sigma_f = np.sqrt((w * f**2).sum() - (w * f).sum() ** 2)
-    band = np.count_nonzero(h)
+    band = np.count_nonzero(w)
     assert band > n / 16 and 0.5 * (np.pi * sigma_f * 16 / fs) ** 2 < 0.02  # folds at D >= 16
-    data = noise + h * np.exp(-2j * np.pi * f * 28.0) * (20.0 / cs.sigma(h, psd, 1 / t, 30.0))
+    data = noise + injection(2.0, 1.5, 20.0, 28.0, psd=psd, f_low=30.0, df=1 / t)
     kw = dict(f_low=30.0, min_snr=10.0, cluster_samples=int(fs), chi2_bands=8, valid=(int(20 * fs), int(31 * fs)))
     a = cs.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
     b = ref_fused.filter_segment(data, psd, 1 / t, 2.0, 1.5, **kw)
@@ -237,3 +248,29 @@ def test_folded_decimation_matches_full_rate_series():
     assert abs(a["snr"][0] / b["snr"][0] - 1) < 5e-3
     assert abs(a["position"][0] - b["position"][0]) < 0.1
     assert abs(a["chi2"][0] - b["chi2"][0]) < 1e-3 * max(1.0, b["chi2"][0])
+
+
+def test_prepared_bank_gives_the_same_peaks_as_parameter_arrays():
+    # Consistency (same kernel both ways): a bank built once and reused equals the
+    # per-call parameters; the outside checks above cover the values themselves.
+    rng = np.random.default_rng(5)
+    data = gaussian_noise_fd(rng) + injection(9.0, 7.0, 12.0, 70.0)
+    m1, m2 = np.array([9.0, 8.0]), np.array([7.0, 7.5])
+    kw = dict(min_snr=5.0, cluster_samples=256, valid=(int(20 * FS), int(120 * FS)))
+    bank = cs.prepare_bank(m1, m2, f_low=F_LOW)
+    assert len(bank) == 2 and bank.f_low == F_LOW
+    np.testing.assert_allclose(bank.f_high, ref.isco_frequency(m1, m2), rtol=1e-12)
+    np.testing.assert_allclose(bank.durations, ref.chirp_duration(m1, m2, F_LOW), rtol=1e-12)
+    a = cs.filter_segment(data, PSD, DF, bank=bank, **kw)
+    b = cs.filter_segment(data, PSD, DF, m1, m2, f_low=F_LOW, **kw)
+    for key in cs.PEAK_COLUMNS:
+        np.testing.assert_array_equal(a[key], b[key])
+    with pytest.raises(TypeError, match="bank"):
+        cs.filter_segment(data, PSD, DF, m1, m2, bank=bank, **kw)
+    with pytest.raises(ValueError, match="f_low"):
+        cs.filter_segment(data, PSD, DF, bank=bank, f_low=25.0, **kw)
+
+
+def test_peak_columns_match_the_twin():
+    out = ref_fused.filter_segment(np.zeros(NF, complex), PSD, DF, 9.0, 7.0, f_low=F_LOW)
+    assert tuple(out) == cs.PEAK_COLUMNS
