@@ -7,13 +7,13 @@ holds a pure-numpy twin of every kernel.
 from .filter import correlate, sigma, snr_series
 from .bank import Bank
 from .clustering import cluster_in_time
-from .fused import PEAK_COLUMNS, PreparedBank, filter_segment, prepare_bank
+from .fused import PEAK_COLUMNS, PreparedBank, PreparedSegment, filter_segment, prepare_bank, prepare_segments
 from .triggers import TRIGGER_COLUMNS, TRIGGER_DTYPE
 from .gating import GatingWarning
 from .pipeline import AnalysedFractionWarning, ExcludedDataWarning, SearchSettings, search
 from .ranking import reweighted_snr
 from .segments import plan_segments
-from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, truncate_inverse_psd, welch, whiten
+from .spectrum import DESIGN_CURVES, design_psd, psd_to_grid, segment_psds, truncate_inverse_psd, welch, whiten
 from .threads import get_threads, set_threads
 from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
 from .network import Site, coincidences, light_travel_time, load_sites
@@ -31,6 +31,9 @@ __all__ = [
     "PEAK_COLUMNS",
     "PreparedBank",
     "prepare_bank",
+    "PreparedSegment",
+    "prepare_segments",
+    "segment_psds",
     "TRIGGER_DTYPE",
     "cluster_in_time",
     "plan_segments",

@@ -11,11 +11,11 @@ from __future__ import annotations
 import numpy as np
 
 from . import _core
-from ._validate import complex_array, integer, positive_scalar, psd_array
+from ._validate import complex_array, integer, positive_scalar, psd_array, real_array
 from .waveform._params import phase_order as _order
 from .waveform._params import template_arrays
 
-__all__ = ["filter_segment", "prepare_bank", "PreparedBank", "PEAK_COLUMNS"]
+__all__ = ["filter_segment", "prepare_bank", "PreparedBank", "prepare_segments", "PreparedSegment", "PEAK_COLUMNS"]
 
 #: Columns returned by :func:`filter_segment`, one entry per peak. The names shared
 #: with the trigger table (``template``, ``snr``, ``phase``, ``sigma``, ``chi2``,
@@ -88,6 +88,82 @@ def prepare_bank(m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_high=None, phase_order=
     return PreparedBank(_core.PreparedBank(m1v, m2v, c1v, c2v, fh, fl, _order(phase_order)))
 
 
+class PreparedSegment:
+    """One segment made ready for every template: ``4 df d~ / S`` and ``1/S`` in
+    rescaled float32 and the bandwidth moments. Make them with
+    :func:`prepare_segments`; pass one to :func:`filter_segment` as ``data_fd``.
+    ``n`` is the segment's sample count and ``df`` its bin spacing (Hz)."""
+
+    __slots__ = ("_core",)
+
+    def __init__(self, core_segment):
+        self._core = core_segment
+
+    @property
+    def n(self) -> int:
+        """Samples of the segment."""
+        return self._core.n
+
+    @property
+    def df(self) -> float:
+        """Bin spacing (Hz)."""
+        return self._core.df
+
+    def __repr__(self):
+        return f"PreparedSegment({self.n} samples, df={self.df} Hz)"
+
+
+def prepare_segments(strain, sample_rate, starts, segment_samples, psd):
+    """Transform and prepare many segments of strain in one call, in parallel.
+
+    Parameters
+    ----------
+    strain : array_like, shape (n,)
+        Strain (dimensionless), finite.
+    sample_rate : float
+        Hz.
+    starts : array_like of int, shape (segments,)
+        First sample of each segment.
+    segment_samples : int
+        Samples ``N`` per segment (even).
+    psd : array_like, shape (N // 2 + 1,) or (segments, N // 2 + 1)
+        One-sided PSD (1/Hz) of each segment on its rfft grid (one row serves all),
+        ``inf`` for excluded bins, e.g. from :func:`chirpsift.segment_psds`.
+
+    Returns
+    -------
+    list of PreparedSegment
+        Segment ``i`` holds ``d~ = rfft(strain[s_i : s_i + N]) / sample_rate`` (a real
+        FFT in the core) weighted by its PSD.
+
+    Examples
+    --------
+    >>> import numpy as np, chirpsift
+    >>> x = np.random.default_rng(1).normal(size=4096) * 1e-21
+    >>> psd = chirpsift.design_psd(np.arange(1025) * 0.5)
+    >>> [s.n for s in chirpsift.prepare_segments(x, 1024.0, [0, 2048], 2048, psd)]
+    [2048, 2048]
+    """
+    x = real_array("strain", strain, ndim=1)
+    fs = positive_scalar("sample_rate", sample_rate)
+    s = real_array("starts", starts, ndim=1, dtype=None, allow_empty=True)
+    if s.dtype.kind not in "iu":
+        raise TypeError(f"starts must hold integers, got dtype {s.dtype}")
+    n = integer("segment_samples", segment_samples, minimum=4)
+    if n % 2:
+        raise ValueError(f"segment_samples must be even, got {n}")
+    if s.size and (s.min() < 0 or s.max() + n > x.shape[0]):
+        raise ValueError(f"starts must keep every segment of {n} samples inside the {x.shape[0]} samples of strain, "
+                         f"got starts from {s.min()} to {s.max()}")
+    p = np.atleast_2d(psd_array("psd", psd, ndim=(1, 2)))
+    if p.shape[1] != n // 2 + 1 or p.shape[0] not in (1, s.size):
+        raise ValueError(f"psd must have shape ({n // 2 + 1},) or ({s.size}, {n // 2 + 1}), got {np.shape(psd)}")
+    if not np.isfinite(p).any(axis=1).all():
+        raise ValueError("psd is inf at every frequency of some segment")
+    segments = _core.prepare_segments(x, np.ascontiguousarray(s, dtype=np.uint64), n, np.ascontiguousarray(p), fs)
+    return [PreparedSegment(c) for c in segments]
+
+
 def _valid_range(valid, n):
     """``(start, stop)`` integers with ``1 <= start < stop <= n - 1``."""
     if valid is None:
@@ -111,8 +187,8 @@ def _valid_range(valid, n):
 
 def filter_segment(
     data_fd,
-    psd,
-    df,
+    psd=None,
+    df=None,
     m1=None,
     m2=None,
     chi1=0.0,
@@ -131,8 +207,9 @@ def filter_segment(
 
     Parameters
     ----------
-    data_fd : array_like, complex, shape (n_freq,)
-        Segment in the frequency domain, ``d~ = rfft(d) / sample_rate``.
+    data_fd : array_like, complex, shape (n_freq,), or PreparedSegment
+        Segment in the frequency domain, ``d~ = rfft(d) / sample_rate``; or a segment
+        from :func:`prepare_segments` (then ``psd`` and ``df`` are None).
     psd : array_like, shape (n_freq,)
         One-sided PSD (1/Hz) on the same grid, ``inf`` for excluded bins (usually the
         output of :func:`chirpsift.truncate_inverse_psd`).
@@ -190,15 +267,23 @@ def filter_segment(
        detection", Phys. Rev. D 71, 062001 (2005), gr-qc/0405045.
     .. [2] B. Allen et al., Phys. Rev. D 85, 122006 (2012), arXiv:gr-qc/0509116.
     """
-    d = complex_array("data_fd", data_fd, ndim=1, dtype=np.complex128)
-    if d.shape[0] < 3:
-        raise ValueError(f"data_fd must have at least 3 frequency bins, got {d.shape[0]}")
-    p = psd_array("psd", psd, ndim=1)
-    if p.shape != d.shape:
-        raise ValueError(f"psd must have {d.shape[0]} bins to match data_fd, got {p.shape[0]}")
-    dfv = positive_scalar("df", df)
-    n = 2 * (d.shape[0] - 1)
-    nyquist = (d.shape[0] - 1) * dfv
+    if isinstance(data_fd, PreparedSegment):
+        if psd is not None or df is not None:
+            raise TypeError("a PreparedSegment carries its PSD and df: pass psd=None, df=None")
+        segment, p = data_fd, None
+        n, dfv = segment.n, segment.df
+    else:
+        d = complex_array("data_fd", data_fd, ndim=1, dtype=np.complex128)
+        if d.shape[0] < 3:
+            raise ValueError(f"data_fd must have at least 3 frequency bins, got {d.shape[0]}")
+        p = psd_array("psd", psd, ndim=1)
+        if p.shape != d.shape:
+            raise ValueError(f"psd must have {d.shape[0]} bins to match data_fd, got {p.shape[0]}")
+        dfv = positive_scalar("df", df)
+        n = 2 * (d.shape[0] - 1)
+        segment = None
+    n_freq = n // 2 + 1
+    nyquist = (n_freq - 1) * dfv
     if bank is None:
         if m1 is None or m2 is None:
             raise TypeError("filter_segment needs the templates: m1 and m2, or bank=prepare_bank(...)")
@@ -222,9 +307,11 @@ def filter_segment(
     thr = positive_scalar("min_snr", min_snr)
     # A window longer than the segment keeps one peak per segment, as a window of n does.
     cl = min(integer("cluster_samples", cluster_samples, minimum=0), n)
-    k_low, _ = _core.band(fl, None, dfv, d.shape[0])
-    bins = integer("chi2_bands", chi2_bands, minimum=2, maximum=max(2, d.shape[0] - k_low))
+    k_low, _ = _core.band(fl, None, dfv, n_freq)
+    bins = integer("chi2_bands", chi2_bands, minimum=2, maximum=max(2, n_freq - k_low))
     start, stop = _valid_range(valid, n)
-    if not np.isfinite(p[k_low:]).any():
-        raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")
-    return _core.filter_segment(d, p, dfv, bank._core, thr, cl, bins, start, stop)
+    if segment is None:
+        if not np.isfinite(p[k_low:]).any():
+            raise ValueError(f"psd is inf at every frequency above f_low={fl} Hz")
+        segment = PreparedSegment(_core.prepare_segment(d, p, dfv))
+    return _core.filter_segment(segment._core, bank._core, thr, cl, bins, start, stop)

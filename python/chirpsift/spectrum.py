@@ -8,7 +8,7 @@ import numpy as np
 from . import _core
 from ._validate import check_allocation, choice, finite_output, nonnegative_scalar, integer, positive_scalar, psd_array, real_array
 
-__all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "truncate_inverse_psd", "whiten"]
+__all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "truncate_inverse_psd", "segment_psds", "whiten"]
 
 #: Names accepted by :func:`design_psd`.
 DESIGN_CURVES = tuple(_core.DESIGN_CURVES)
@@ -235,6 +235,73 @@ def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
         raise ValueError(f"max_duration={t_spec} s must span 2..{n} samples of the {n / fs:g} s segment, got {max_len}")
     out = _core.truncate_inverse_psd(np.atleast_2d(p), max_len, fs / n, fl)
     return out[0] if p.ndim == 1 else out
+
+
+def segment_psds(x, sample_rate, starts, block_samples, n_freq, *, welch_duration=4.0, f_low):
+    """The PSD chain of many analysis segments in one call, blocks in parallel.
+
+    For each block ``x[s : s + block_samples]``: :func:`welch` (median average, Hann
+    window, 50% overlap, Welch segments of ``welch_duration``), :func:`psd_to_grid`
+    onto the analysis grid of ``n_freq`` bins, then :func:`truncate_inverse_psd` to
+    ``welch_duration``. The result equals those three calls row by row, bit for bit.
+
+    Parameters
+    ----------
+    x : array_like, shape (n,)
+        Strain (dimensionless), finite.
+    sample_rate : float
+        Hz.
+    starts : array_like of int, shape (segments,)
+        First sample of each block.
+    block_samples : int
+        Samples per block (at least ``welch_duration * sample_rate``).
+    n_freq : int
+        Bins of the analysis segment's grid, ``N // 2 + 1`` for ``N`` samples
+        (spacing ``sample_rate / N``).
+    welch_duration : float, optional
+        Welch segment length and kept impulse response of the inverse PSD (s).
+    f_low : float
+        Bins below this frequency (Hz) are excluded (``inf``).
+
+    Returns
+    -------
+    ndarray of float64, shape (segments, n_freq)
+        One-sided PSDs (1/Hz), ``inf`` where excluded.
+
+    Examples
+    --------
+    >>> import numpy as np, chirpsift
+    >>> x = np.random.default_rng(1).normal(size=4096 * 8) * 1e-21
+    >>> chirpsift.segment_psds(x, 1024.0, [0, 4096 * 4], 4096 * 4, 8193, welch_duration=1.0, f_low=20.0).shape
+    (2, 8193)
+    """
+    a = real_array("x", x, ndim=1)
+    fs = positive_scalar("sample_rate", sample_rate)
+    s = real_array("starts", starts, ndim=1, dtype=None, allow_empty=True)
+    if s.dtype.kind not in "iu":
+        raise TypeError(f"starts must hold integers, got dtype {s.dtype}")
+    block = integer("block_samples", block_samples)
+    nf = integer("n_freq", n_freq, minimum=2)
+    t_spec = positive_scalar("welch_duration", welch_duration)
+    fl = nonnegative_scalar("f_low", f_low)
+    if s.size and (s.min() < 0 or s.max() + block > a.shape[0]):
+        raise ValueError(f"starts must keep every block of {block} samples inside the {a.shape[0]} samples of x, "
+                         f"got starts from {s.min()} to {s.max()}")
+    nperseg = int(round(t_spec * fs))
+    if nperseg < 2 or nperseg > block:
+        raise ValueError(f"welch_duration={t_spec} s gives {nperseg} samples; need 2..block_samples={block}")
+    n = 2 * (nf - 1)
+    if nperseg > n:
+        raise ValueError(f"welch_duration={t_spec} s is longer than the {n / fs:g} s analysis segment")
+    if fl >= fs / 2:
+        raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz")
+    check_allocation("n_freq", s.size * nf, 8)
+    step = nperseg - int(round(0.5 * nperseg))
+    out = _core.segment_psds(a, np.ascontiguousarray(s, dtype=np.uint64), block, fs, step,
+                             _welch_window("hann", nperseg), nf, nperseg, fl)
+    if np.isnan(out).any():
+        raise ValueError("x: the PSD is undefined (values too large for float64)")
+    return out
 
 
 def whiten(x, psd, sample_rate, f_low=None):

@@ -352,6 +352,60 @@ pub fn truncate_inverse_psd_rows(
     rows.concat()
 }
 
+/// The spectrum chain of analysis segments, from strain to the PSD the filters
+/// use: Welch (median average) of each data block, linear resampling onto the
+/// segment's grid, inverse spectrum truncation.
+#[derive(Clone, Debug)]
+pub struct SegmentChain<'a> {
+    /// Sampling rate, Hz.
+    pub sample_rate: f64,
+    /// Welch taper, one value per sample of a Welch segment.
+    pub window: &'a [f64],
+    /// Samples between Welch segments.
+    pub step: usize,
+    /// Bins of the analysis segment's grid, `N / 2 + 1`.
+    pub n_freq: usize,
+    /// Samples kept of the inverse PSD's impulse response.
+    pub max_len: usize,
+    /// Bins below this frequency (Hz) are excluded.
+    pub f_low: f64,
+}
+
+impl SegmentChain<'_> {
+    /// The truncated PSD (`n_freq` bins, `inf` where excluded) of one block.
+    ///
+    /// # Errors
+    /// As [`welch`] for a block shorter than the window.
+    pub fn psd(&self, block: &[f64]) -> Result<Vec<f64>> {
+        let nperseg = self.window.len();
+        let estimate = welch(block, self.sample_rate, self.step, self.window, false, Average::Median)?;
+        let spacing = self.sample_rate / nperseg as f64;
+        let freqs: Vec<f64> = (0..estimate.len()).map(|k| k as f64 * spacing).collect();
+        let df = self.sample_rate / (2 * (self.n_freq - 1)) as f64;
+        let grid = psd_to_grid(&freqs, &estimate, df, self.n_freq);
+        Ok(truncate_inverse_psd(&grid, self.max_len, df, self.f_low))
+    }
+
+    /// [`Self::psd`] of the blocks `x[s..s + block_len]` for each `s` in `starts`,
+    /// blocks in parallel, rows concatenated.
+    ///
+    /// # Errors
+    /// Names `starts` if a block runs past the end of `x`; otherwise as [`Self::psd`].
+    pub fn psds(&self, x: &[f64], starts: &[usize], block_len: usize) -> Result<Vec<f64>> {
+        if let Some(&s) = starts.iter().find(|&&s| s + block_len > x.len()) {
+            return Err(Error::invalid(
+                "starts",
+                format!("block [{s}, {}) runs past the {} samples", s + block_len, x.len()),
+            ));
+        }
+        let rows: Result<Vec<Vec<f64>>> = starts
+            .par_iter()
+            .map(|&s| self.psd(&x[s..s + block_len]))
+            .collect();
+        Ok(rows?.concat())
+    }
+}
+
 /// Whiten one channel: `irfft(rfft(x) * sqrt(2 / (S fs)))`, zero at DC, below
 /// `f_low` and where `S` is `inf`. Gaussian noise of PSD `S` comes out with unit variance.
 pub fn whiten_into(

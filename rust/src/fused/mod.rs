@@ -13,7 +13,7 @@
 //! factors held in f64, so the float32 transform never sees values near underflow.
 
 mod prepared;
-mod product;
+pub mod product;
 
 pub use prepared::{Prepared, MAX_DECIMATION, MAX_DECIMATION_LOSS};
 

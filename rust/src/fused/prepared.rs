@@ -86,6 +86,61 @@ impl Prepared {
         })
     }
 
+    /// A segment of strain `x` (even length `N`) sampled at `sample_rate`, with its
+    /// PSD on the segment's grid: `d~ = rfft(x) / sample_rate` by a real FFT, then
+    /// [`Prepared::new`].
+    ///
+    /// # Errors
+    /// Names `x` for an odd or too short length; otherwise as [`Prepared::new`].
+    pub fn from_strain(x: &[f64], psd: &[f64], sample_rate: f64) -> Result<Self> {
+        let n = x.len();
+        ensure(n >= 4 && n % 2 == 0, "x", || {
+            format!("a segment needs an even number of samples (at least 4), got {n}")
+        })?;
+        let mut fft = crate::fft::RealScratch::<f64>::new(n);
+        fft.time.copy_from_slice(x);
+        fft.rfft();
+        let data: Vec<Complex64> = fft.spectrum.iter().map(|&c| c / sample_rate).collect();
+        Prepared::new(&data, psd, sample_rate / n as f64)
+    }
+
+    /// [`Prepared::from_strain`] of the segments `x[s..s + len]` for each `s` in
+    /// `starts`, with PSD row `i` of `psds` (`len / 2 + 1` bins a row; a single
+    /// row serves every segment), segments in parallel.
+    ///
+    /// # Errors
+    /// Names `starts` if a segment runs past the end of `x`, `psds` if it holds
+    /// neither one row nor one per segment.
+    pub fn from_strain_segments(
+        x: &[f64],
+        starts: &[usize],
+        len: usize,
+        psds: &[f64],
+        sample_rate: f64,
+    ) -> Result<Vec<Self>> {
+        let n_freq = len / 2 + 1;
+        let rows = psds.len() / n_freq.max(1);
+        ensure(
+            psds.len() % n_freq.max(1) == 0 && (rows == 1 || rows == starts.len()),
+            "psds",
+            || format!("needs 1 or {} rows of {n_freq} bins, got {} values", starts.len(), psds.len()),
+        )?;
+        if let Some(&s) = starts.iter().find(|&&s| s + len > x.len()) {
+            return Err(crate::Error::invalid(
+                "starts",
+                format!("segment [{s}, {}) runs past the {} samples", s + len, x.len()),
+            ));
+        }
+        starts
+            .par_iter()
+            .enumerate()
+            .map(|(i, &s)| {
+                let row = if rows == 1 { 0 } else { i };
+                Prepared::from_strain(&x[s..s + len], &psds[row * n_freq..(row + 1) * n_freq], sample_rate)
+            })
+            .collect()
+    }
+
     /// Frequency bins `n_freq = N / 2 + 1`.
     pub fn n_freq(&self) -> usize {
         self.weighted_data.len()

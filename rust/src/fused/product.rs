@@ -17,9 +17,13 @@ enum Fill {
     Accumulate,
 }
 
-/// Fill `buf` (length `M`) with the folded product of `model` over `[k_lo, k_hi)`
-/// and return the template norm `sum |h~_k / h_ref|^2 w_k`.
-pub(super) fn fill_product(
+/// Fill `buf` (length `M`, a divisor of the segment length) with the folded
+/// product of `model` over `[k_lo, k_hi)`, the template scaled by `inv_h`, and
+/// return the template norm `sum |h~_k / h_ref|^2 w_k`.
+///
+/// # Panics
+/// If `k_hi` exceeds the segment's bins, `k_lo > k_hi`, or `buf` is empty.
+pub fn fill_product(
     seg: &Prepared,
     model: &Model,
     k_lo: usize,

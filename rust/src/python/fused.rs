@@ -3,7 +3,7 @@
 use super::run;
 use crate::fused::{self, Bank, Prepared, Settings, Trigger};
 use num_complex::Complex64;
-use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1};
+use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 
@@ -64,6 +64,60 @@ impl PreparedBank {
     }
 }
 
+/// One segment made ready for every template (`crate::fused::Prepared`).
+#[pyclass(module = "chirpsift._core", frozen)]
+pub(super) struct PreparedSegment {
+    prepared: Prepared,
+}
+
+#[pymethods]
+impl PreparedSegment {
+    /// Samples `N` of the segment.
+    #[getter]
+    fn n(&self) -> usize {
+        self.prepared.n()
+    }
+
+    /// Bin spacing (Hz).
+    #[getter]
+    fn df(&self) -> f64 {
+        self.prepared.df()
+    }
+}
+
+/// A segment given in the frequency domain, `d~` and its PSD on the same grid.
+#[pyfunction]
+fn prepare_segment(
+    py: Python<'_>,
+    data: PyReadonlyArray1<'_, Complex64>,
+    psd: PyReadonlyArray1<'_, f64>,
+    df: f64,
+) -> PyResult<PreparedSegment> {
+    let (d, p) = (data.as_slice()?, psd.as_slice()?);
+    let prepared = run(py, || Prepared::new(d, p, df))?;
+    Ok(PreparedSegment { prepared })
+}
+
+/// Segments `x[s..s + len]` of strain, transformed in the core, with PSD rows
+/// `psds` (one row, or one per segment); segments in parallel.
+#[pyfunction]
+fn prepare_segments(
+    py: Python<'_>,
+    x: PyReadonlyArray1<'_, f64>,
+    starts: PyReadonlyArray1<'_, u64>,
+    len: usize,
+    psds: PyReadonlyArray2<'_, f64>,
+    sample_rate: f64,
+) -> PyResult<Vec<PreparedSegment>> {
+    let (xs, p) = (x.as_slice()?, psds.as_slice()?);
+    let starts: Vec<usize> = starts.as_slice()?.iter().map(|&s| s as usize).collect();
+    let prepared = run(py, || Prepared::from_strain_segments(xs, &starts, len, p, sample_rate))?;
+    Ok(prepared
+        .into_iter()
+        .map(|prepared| PreparedSegment { prepared })
+        .collect())
+}
+
 /// The per-peak columns as a dict of arrays.
 fn columns<'py>(py: Python<'py>, triggers: &[Trigger]) -> PyResult<Bound<'py, PyDict>> {
     let out = PyDict::new(py);
@@ -85,9 +139,7 @@ fn columns<'py>(py: Python<'py>, triggers: &[Trigger]) -> PyResult<Bound<'py, Py
 #[allow(clippy::too_many_arguments)]
 fn filter_segment<'py>(
     py: Python<'py>,
-    data: PyReadonlyArray1<'py, Complex64>,
-    psd: PyReadonlyArray1<'py, f64>,
-    df: f64,
+    segment: &PreparedSegment,
     bank: &PreparedBank,
     min_snr: f64,
     cluster_samples: usize,
@@ -95,7 +147,6 @@ fn filter_segment<'py>(
     valid_start: usize,
     valid_stop: usize,
 ) -> PyResult<Bound<'py, PyDict>> {
-    let (d, p) = (data.as_slice()?, psd.as_slice()?);
     let settings = Settings {
         min_snr,
         cluster_samples,
@@ -103,15 +154,16 @@ fn filter_segment<'py>(
         valid_start,
         valid_stop,
     };
-    let b = &bank.bank;
-    let triggers = run(py, || {
-        fused::filter_segment(&Prepared::new(d, p, df)?, b, &settings)
-    })?;
+    let (seg, b) = (&segment.prepared, &bank.bank);
+    let triggers = run(py, || fused::filter_segment(seg, b, &settings))?;
     columns(py, &triggers)
 }
 
 pub(super) fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<PreparedBank>()?;
+    m.add_class::<PreparedSegment>()?;
+    m.add_function(wrap_pyfunction!(prepare_segment, m)?)?;
+    m.add_function(wrap_pyfunction!(prepare_segments, m)?)?;
     m.add_function(wrap_pyfunction!(filter_segment, m)?)?;
     Ok(())
 }

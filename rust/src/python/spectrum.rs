@@ -2,7 +2,7 @@
 //! whitening.
 
 use super::{run, to_2d};
-use crate::spectrum::{self, Average, DesignCurve};
+use crate::spectrum::{self, Average, DesignCurve, SegmentChain};
 use numpy::{IntoPyArray, PyArray1, PyArray2, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods};
 use pyo3::prelude::*;
 
@@ -82,6 +82,35 @@ fn whiten<'py>(
     to_2d(py, channels, n, out)
 }
 
+/// The truncated PSD of each block `x[s..s + block_len]` (blocks in parallel).
+#[pyfunction]
+#[allow(clippy::too_many_arguments)]
+fn segment_psds<'py>(
+    py: Python<'py>,
+    x: PyReadonlyArray1<'py, f64>,
+    starts: PyReadonlyArray1<'py, u64>,
+    block_len: usize,
+    sample_rate: f64,
+    step: usize,
+    window: PyReadonlyArray1<'py, f64>,
+    n_freq: usize,
+    max_len: usize,
+    f_low: f64,
+) -> PyResult<Bound<'py, PyArray2<f64>>> {
+    let (xs, w) = (x.as_slice()?, window.as_slice()?);
+    let starts: Vec<usize> = starts.as_slice()?.iter().map(|&s| s as usize).collect();
+    let chain = SegmentChain {
+        sample_rate,
+        window: w,
+        step,
+        n_freq,
+        max_len,
+        f_low,
+    };
+    let out = run(py, || chain.psds(xs, &starts, block_len))?;
+    to_2d(py, starts.len(), n_freq, out)
+}
+
 pub(super) fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add("DESIGN_CURVES", DesignCurve::NAMES)?;
     m.add_function(wrap_pyfunction!(welch, m)?)?;
@@ -89,5 +118,6 @@ pub(super) fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(psd_to_grid, m)?)?;
     m.add_function(wrap_pyfunction!(truncate_inverse_psd, m)?)?;
     m.add_function(wrap_pyfunction!(whiten, m)?)?;
+    m.add_function(wrap_pyfunction!(segment_psds, m)?)?;
     Ok(())
 }
