@@ -6,13 +6,14 @@ Usage::
     python bench/ratios.py out.json [--stat median]
 
 Every benchmark of ``bench/test_kernels.py`` records its ``role`` (``rust``,
-``reference``, ``bare``), the units of work ``per`` call (templates or transforms) and
-a ``label``; the compiled yardstick also records the time per transform it measured
-itself (``self_timed``, buffer set-up excluded), which is used in its place. For each
-group this prints the time per unit, that time over the bare inverse FFT of the same
-length (rustfft when timed, else the first bare entry) and over the group's first
-``rust`` entry (so a reference row shows how many times slower than the compiled path
-it is).
+``reference``, ``bare``), the units of work ``per`` call (templates or transforms), a
+``label`` and the ``transform`` it performs (length and real/complex); the compiled
+yardstick also records the time per transform it measured itself (``self_timed``,
+buffer set-up excluded), which is used in its place. For each group this prints the
+time per unit, that time over the bare transform the group's kernel performs (from the
+``bare transforms`` group: rustfft when timed, else the first bare entry of that
+transform) and over the group's first ``rust`` entry (so a reference row shows how
+many times slower than the compiled path it is).
 """
 
 from __future__ import annotations
@@ -62,21 +63,31 @@ def ratios(groups, stat="min"):
         ``vs_rust`` (``per_unit`` over the group's bare and first compiled entry;
         ``None`` where the group has none).
     """
-    out = {}
-    for name, benches in groups.items():
-        rows = []
-        for b in benches:
-            info = b.get("extra_info", {})
-            per = max(1, int(info.get("per", 1)))
-            own = info.get("self_timed")
-            # the compiled yardstick times itself per transform; prefer that figure
-            per_unit = float(own[stat]) if own else float(b["stats"][stat]) / per
-            rows.append({"label": info.get("label", b.get("name")), "role": info.get("role", "?"),
-                         "per_unit": per_unit})
-        bare = [r for r in rows if r["role"] == "bare"]
-        bare = next((r for r in bare if "rustfft" in r["label"]), bare[0] if bare else None)
-        rust = next((r for r in rows if r["role"] == "rust"), None)
+    def row(b):
+        info = b.get("extra_info", {})
+        per = max(1, int(info.get("per", 1)))
+        own = info.get("self_timed")
+        # the compiled yardstick times itself per transform; prefer that figure
+        per_unit = float(own[stat]) if own else float(b["stats"][stat]) / per
+        t = info.get("transform")
+        return {"label": info.get("label", b.get("name")), "role": info.get("role", "?"), "per_unit": per_unit,
+                "transform": None if t is None else (int(t["n"]), bool(t["real"]))}
+
+    all_rows = {name: [row(b) for b in benches] for name, benches in groups.items()}
+    bares: dict = {}
+    for rows in all_rows.values():
         for r in rows:
+            if r["role"] == "bare" and r["transform"] is not None:
+                bares.setdefault(r["transform"], []).append(r)
+    out = {}
+    for name, rows in all_rows.items():
+        rust = next((r for r in rows if r["role"] == "rust"), None)
+        key = next((r["transform"] for r in rows if r["role"] != "bare" and r["transform"]), None)
+        for r in rows:
+            # a kernel against the transform it performs; a bare transform against
+            # the core's transform of the same length and kind
+            candidates = bares.get(r["transform"] if r["role"] == "bare" else key, [])
+            bare = next((c for c in candidates if "rustfft" in c["label"]), candidates[0] if candidates else None)
             r["vs_bare"] = r["per_unit"] / bare["per_unit"] if bare else None
             r["vs_rust"] = r["per_unit"] / rust["per_unit"] if rust else None
             r["bare_label"] = bare["label"] if bare else None
@@ -110,13 +121,12 @@ def main(argv=None) -> int:
         print("no benchmarks in the file", file=sys.stderr)
         return 1
     for name, rows in table.items():
-        base = rows[0]["bare_label"] if rows else None
-        print(f"\n### {name}  (per unit, {ns.stat}; bare = {base or 'none'})")
-        print("| entry | role | per unit (ms) | / bare ifft | / rust |")
-        print("| --- | --- | --- | --- | --- |")
+        print(f"\n### {name}  (per unit, {ns.stat})")
+        print("| entry | role | per unit (ms) | / bare transform | bare transform | / rust |")
+        print("| --- | --- | --- | --- | --- | --- |")
         for r in rows:
             print(f"| {r['label']} | {r['role']} | {r['per_unit'] * 1e3:.4g} | {_fmt(r['vs_bare'], '.3g')} | "
-                  f"{_fmt(r['vs_rust'], '.3g')} |")
+                  f"{r['bare_label'] or '-'} | {_fmt(r['vs_rust'], '.3g')} |")
     return 0
 
 
