@@ -19,7 +19,7 @@ from .waveform import C_SI, MPC, T_SUN, chirp_duration, isco_frequency, taylorf2
 from .network import Site, coincidences, light_travel_time, load_sites
 from .inject import draw_injections, efficiency, horizon_distance, injection_snr, project, sensitive_volume, sensitivity
 
-from ._core import __version__
+from ._core import __version__ as __version__
 
 __all__ = [
     "AnalysedFractionWarning",

@@ -13,7 +13,7 @@ __all__ = ["band", "sigma", "snr_series", "correlate"]
 
 
 def band(f_low, f_high, df, n_freq):
-    """The frequency bins of a band: ``k_lo <= k < k_hi`` with ``f_low <= k df < f_high``.
+    """Return the frequency bins ``k_lo <= k < k_hi`` of the band ``f_low <= k df < f_high``.
 
     Parameters
     ----------

@@ -1,5 +1,4 @@
-"""The fused matched-filter kernel over one data segment (numpy API over the core's
-``fused`` module).
+"""The fused matched-filter kernel over one data segment (numpy API over ``fused``).
 
 Templates are generated on the fly inside the kernel; only clustered, refined
 peaks come back, so memory does not grow with the bank size. A bank is checked and
@@ -89,10 +88,12 @@ def prepare_bank(m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_high=None, phase_order=
 
 
 class PreparedSegment:
-    """One segment made ready for every template: ``4 df d~ / S`` and ``1/S`` in
-    rescaled float32 and the bandwidth moments. Make them with
-    :func:`prepare_segments`; pass one to :func:`filter_segment` as ``data_fd``.
-    ``n`` is the segment's sample count and ``df`` its bin spacing (Hz)."""
+    """One segment made ready for every template.
+
+    Holds ``4 df d~ / S`` and ``1/S`` in rescaled float32 and the bandwidth moments.
+    Make them with :func:`prepare_segments`; pass one to :func:`filter_segment` as
+    ``data_fd``. ``n`` is the segment's sample count and ``df`` its bin spacing (Hz).
+    """
 
     __slots__ = ("_core",)
 

@@ -1,5 +1,8 @@
-"""Pure-numpy twin of :func:`chirpsift.filter_segment`: full SNR series per template,
-peak finding, clustering, refinement and Allen's chi-squared, written for clarity."""
+"""Pure-numpy twin of :func:`chirpsift.filter_segment`.
+
+Full SNR series per template, peak finding, clustering, refinement and Allen's
+chi-squared, written for clarity.
+"""
 
 import numpy as np
 
@@ -11,8 +14,10 @@ __all__ = ["filter_segment", "find_peaks", "cluster_peaks"]
 
 
 def find_peaks(snr, start, stop, threshold):
-    """Indices ``j`` in ``[start, stop)`` with ``snr[j] >= threshold``,
-    ``snr[j] > snr[j-1]`` and ``snr[j] >= snr[j+1]``."""
+    """Return indices ``j`` in ``[start, stop)`` of local maxima above ``threshold``.
+
+    A peak has ``snr[j] >= threshold``, ``snr[j] > snr[j-1]`` and ``snr[j] >= snr[j+1]``.
+    """
     j = np.arange(start, stop)
     s = snr[j]
     keep = (s >= threshold) & (s > snr[j - 1]) & (s >= snr[j + 1])
@@ -33,7 +38,7 @@ def cluster_peaks(index, value, window):
 
 def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_high=None, min_snr=5.5,
                    cluster_samples=0, chi2_bands=16, valid=None, phase_order=7):
-    """Same contract as :func:`chirpsift.filter_segment` (see its docstring).
+    """Filter one segment as :func:`chirpsift.filter_segment` does (see its docstring).
 
     References
     ----------
@@ -47,7 +52,6 @@ def filter_segment(data_fd, psd, df, m1, m2, chi1=0.0, chi2=0.0, *, f_low, f_hig
     m1, m2, chi1, chi2 = (np.ravel(x).astype(float) for x in np.broadcast_arrays(m1, m2, chi1, chi2))
     fh = isco_frequency(m1, m2) if f_high is None else np.broadcast_to(np.asarray(f_high, float), m1.shape)
     start, stop = (1, n - 1) if valid is None else valid
-    f = np.arange(n_freq) * df
     inv = np.where(np.isfinite(s), 1.0 / s, 0.0)
     p = int(chi2_bands)
     # The kernel's per-peak columns (chirpsift.PEAK_COLUMNS; a test checks they match).

@@ -21,16 +21,20 @@ def first_bin(f, df):
 
 
 def band(f_low, f_high, df, n_freq):
-    """``(k_lo, k_hi)``: bins ``k_lo <= k < k_hi`` of ``f_low <= k df < f_high``,
-    clipped to ``n_freq`` (``f_high`` None: to the last bin), ``k_hi >= k_lo``."""
+    """Return ``(k_lo, k_hi)``, the bins ``k_lo <= k < k_hi`` of ``f_low <= k df < f_high``.
+
+    Clipped to ``n_freq`` (``f_high`` None: to the last bin), ``k_hi >= k_lo``.
+    """
     k_lo = min(int(first_bin(f_low, df)), int(n_freq))
     k_hi = int(n_freq) if f_high is None else min(int(first_bin(f_high, df)), int(n_freq))
     return k_lo, max(k_hi, k_lo)
 
 
 def in_band(n_freq, df, f_low, f_high=None):
-    """Boolean mask of the bins in the band; ``f_low``/``f_high`` may be arrays of
-    shape ``(K,)``, giving a mask of shape ``(K, n_freq)``."""
+    """Return the boolean mask of the bins in the band.
+
+    ``f_low``/``f_high`` may be arrays of shape ``(K,)``, giving a mask ``(K, n_freq)``.
+    """
     k = np.arange(int(n_freq))
     lo = first_bin(f_low, df)
     mask = k >= lo[..., None] if lo.ndim else k >= lo

@@ -1,5 +1,7 @@
-"""TaylorF2 inspiral templates and the time-frequency facts used to place them
-(numpy API over the core's ``waveform`` module)."""
+"""TaylorF2 inspiral templates and the time-frequency facts used to place them.
+
+A numpy API over the core's ``waveform`` module.
+"""
 
 from __future__ import annotations
 

@@ -1,6 +1,8 @@
-"""Template parameters as every kernel takes them: one rule for masses, spins, the
-PN order and the upper frequency, shared by :func:`chirpsift.taylorf2` and the fused
-kernel's :func:`chirpsift.prepare_bank`."""
+"""Template parameters as every kernel takes them.
+
+One rule for masses, spins, the PN order and the upper frequency, shared by
+:func:`chirpsift.taylorf2` and the fused kernel's :func:`chirpsift.prepare_bank`.
+"""
 
 from __future__ import annotations
 
@@ -19,7 +21,8 @@ def masses(m1, m2):
     for name, v in (("m1", a), ("m2", b)):
         bad = ~(np.isfinite(v) & (v > 0))
         if bad.any():
-            raise ValueError(f"{name} must be positive and finite (solar masses), got {v.reshape(-1)[np.argmax(bad.reshape(-1))]}")
+            first = v.reshape(-1)[np.argmax(bad.reshape(-1))]
+            raise ValueError(f"{name} must be positive and finite (solar masses), got {first}")
     return a, b
 
 
@@ -36,7 +39,7 @@ def spins(chi1, chi2):
 
 
 def phase_order(order) -> int:
-    """The PN order of the phase as twice the PN order, 0..7."""
+    """Return the PN order of the phase as twice the PN order, 0..7."""
     p = integer("phase_order", order, minimum=0)
     if p > 7:
         raise ValueError(f"phase_order must be 0..7 (twice the PN order), got {p}")
