@@ -238,7 +238,7 @@ def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
 
 
 def segment_psds(x, sample_rate, starts, block_samples, n_freq, *, welch_duration=4.0, f_low):
-    """The PSD chain of many analysis segments in one call, blocks in parallel.
+    """Run the PSD chain of many analysis segments in one call, blocks in parallel.
 
     For each block ``x[s : s + block_samples]``: :func:`welch` (median average, Hann
     window, 50% overlap, Welch segments of ``welch_duration``), :func:`psd_to_grid`
@@ -267,6 +267,12 @@ def segment_psds(x, sample_rate, starts, block_samples, n_freq, *, welch_duratio
     -------
     ndarray of float64, shape (segments, n_freq)
         One-sided PSDs (1/Hz), ``inf`` where excluded.
+
+    Raises
+    ------
+    ValueError
+        Naming ``x`` when a block's median estimate is zero at some frequency (more
+        than half its Welch segments are zero, as in gated or blank data).
 
     Examples
     --------

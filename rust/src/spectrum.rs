@@ -375,10 +375,16 @@ impl SegmentChain<'_> {
     /// The truncated PSD (`n_freq` bins, `inf` where excluded) of one block.
     ///
     /// # Errors
-    /// As [`welch`] for a block shorter than the window.
+    /// As [`welch`] for a block shorter than the window; names `x` when the median
+    /// estimate is not positive at every frequency (more than half the block's
+    /// Welch segments are zero, e.g. gated or blank data), where truncation would
+    /// divide by zero.
     pub fn psd(&self, block: &[f64]) -> Result<Vec<f64>> {
         let nperseg = self.window.len();
         let estimate = welch(block, self.sample_rate, self.step, self.window, false, Average::Median)?;
+        ensure(estimate.iter().all(|&p| p > 0.0), "x", || {
+            "the median PSD estimate is zero at some frequency (more than half the Welch segments are zero)".into()
+        })?;
         let spacing = self.sample_rate / nperseg as f64;
         let freqs: Vec<f64> = (0..estimate.len()).map(|k| k as f64 * spacing).collect();
         let df = self.sample_rate / (2 * (self.n_freq - 1)) as f64;

@@ -30,11 +30,11 @@ from .._validate import positive_scalar, psd_array, real_array, real_scalar
 from ..bank import Bank
 from ..clustering import cluster_in_time
 from ..condition import check_strain, find_nonfinite_runs, stretches_between, subtract_intervals
-from ..fused import filter_segment
+from ..fused import filter_segment, prepare_bank, prepare_segments
 from ..gating import GatingWarning, apply_gates, find_gates
 from ..ranking import reweighted_snr
 from ..segments import DURATION_MARGIN, SegmentPlan, default_length, padding, plan_segments
-from ..spectrum import design_psd, psd_to_grid, truncate_inverse_psd, welch
+from ..spectrum import design_psd, psd_to_grid, segment_psds, truncate_inverse_psd
 from ..triggers import trigger_table
 from ..waveform import chirp_duration, isco_frequency
 from .settings import SearchSettings
@@ -328,18 +328,6 @@ def _given_psd(psd, n_freq, df):
     return psd
 
 
-class _NoNoise(ValueError):
-    """A block of data too empty (zeros) for a median PSD estimate."""
-
-
-def _estimated_psd(block, sample_rate, n_freq, welch_duration):
-    """Median Welch estimate from ``block``, resampled onto an ``n_freq``-bin rfft grid."""
-    freqs, est = welch(block, sample_rate, welch_duration, average="median")
-    if not np.all(est > 0):  # more than half the Welch segments are zero (gated or blank data)
-        raise _NoNoise("median PSD estimate is zero")
-    return psd_to_grid(freqs, est, sample_rate / (2 * (n_freq - 1)), n_freq)
-
-
 def _no_noise_message(block_start, block, t_first, plan, sample_rate, settings, gates):
     fs, lo, hi = sample_rate, block_start, block_start + block.shape[0]
     msg = (f"cannot estimate the PSD of the segment starting at t={t_first + plan.start / fs:.6g} s: its "
@@ -357,14 +345,14 @@ def _filter_segments(x, sample_rate, plans, bank, settings, psd_of, cluster_samp
 
     ``psd_of(plan)`` gives the truncated PSD of a segment on its rfft grid.
     """
+    templates = prepare_bank(bank.m1, bank.m2, bank.chi1, bank.chi2, f_low=settings.f_low,
+                             phase_order=settings.phase_order)  # checked and built once, not per segment
     for plan in plans:
         segment = x[plan.start:plan.start + plan.length]
-        data_fd = np.fft.rfft(segment) / sample_rate
+        (prepared,) = prepare_segments(segment, sample_rate, [0], plan.length, psd_of(plan))  # data FFT in the core
         peaks = filter_segment(
-            data_fd, psd_of(plan), sample_rate / plan.length, bank.m1, bank.m2, bank.chi1, bank.chi2,
-            f_low=settings.f_low, min_snr=settings.min_snr, cluster_samples=cluster_samples,
+            prepared, bank=templates, min_snr=settings.min_snr, cluster_samples=cluster_samples,
             chi2_bands=settings.chi2_bands, valid=(plan.valid_start, plan.valid_stop),
-            phase_order=settings.phase_order,
         )
         yield plan, peaks
 
@@ -407,11 +395,12 @@ def search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_ca
             return psd_cache[length]
         lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, m - psd_len))
         block = x[lo:lo + psd_len]
-        try:
-            grid = _estimated_psd(block, fs, n_freq, t_spec)
-        except _NoNoise:
+        try:  # Welch, resampling and truncation in one core call
+            return segment_psds(block, fs, [0], block.shape[0], n_freq, welch_duration=t_spec, f_low=fl)[0]
+        except ValueError as exc:
+            if "median PSD estimate is zero" not in str(exc):
+                raise
             raise ValueError(_no_noise_message(lo, block, t_first, plan, fs, settings, gates)) from None
-        return truncate_inverse_psd(grid, fs, t_spec, fl)
 
     cluster_samples = int(round(min(settings.peak_window, m / fs) * fs))
     columns: dict[str, list[np.ndarray]] = {}
