@@ -156,11 +156,12 @@ def prepare_segments(strain, sample_rate, starts, segment_samples, psd):
     if s.size and (s.min() < 0 or s.max() + n > x.shape[0]):
         raise ValueError(f"starts must keep every segment of {n} samples inside the {x.shape[0]} samples of strain, "
                          f"got starts from {s.min()} to {s.max()}")
-    p = np.atleast_2d(psd_array("psd", psd, ndim=(1, 2)))
+    p = real_array("psd", psd, ndim=(1, 2), finite=False)
+    if not (p > 0).all():  # one pass for the usual case; psd_array names the fault
+        psd_array("psd", p, ndim=(1, 2))
+    p = np.atleast_2d(p)
     if p.shape[1] != n // 2 + 1 or p.shape[0] not in (1, s.size):
         raise ValueError(f"psd must have shape ({n // 2 + 1},) or ({s.size}, {n // 2 + 1}), got {np.shape(psd)}")
-    if not np.isfinite(p).any(axis=1).all():
-        raise ValueError("psd is inf at every frequency of some segment")
     segments = _core.prepare_segments(x, np.ascontiguousarray(s, dtype=np.uint64), n, np.ascontiguousarray(p), fs)
     return [PreparedSegment(c) for c in segments]
 

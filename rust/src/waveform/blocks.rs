@@ -10,13 +10,17 @@ use num_complex::Complex64;
 /// Largest phase error of the block interpolation, radians (a mismatch of order
 /// 1e-12, far below any bank's minimal-match loss).
 pub const PHASE_TOLERANCE: f64 = 1e-6;
-/// Longest block (bins); the stack buffer holds one block.
+/// Longest block (bins); the stack buffer holds one block. With it, generating
+/// 1.4+1.4 Msun from 20 Hz to ISCO at df = 1/256 Hz (390,000 bins) took 1.93 ms,
+/// 4.9 ns per bin (`cargo bench --features bench -- "block generation"`, one thread
+/// of a shared 2-core AMD EPYC under load; other lengths not yet compared).
 pub const MAX_BLOCK: usize = 2048;
 /// Shorter blocks are evaluated directly: four node evaluations plus set-up cost
 /// more than direct evaluation below about this many bins.
 const MIN_BLOCK: usize = 16;
 /// Independent recurrence chains per block, so consecutive complex multiplies do not
-/// wait on each other.
+/// wait on each other. Measured on the block-generation bench above: 1 lane 13.4 ms,
+/// 2 lanes 2.9 ms, 4 lanes 1.93 ms (the one-lane loop does not vectorise).
 const LANES: usize = 4;
 
 /// A model the block generator can step: exact phase and amplitude at a frequency,
