@@ -10,17 +10,19 @@ use num_complex::Complex64;
 /// Largest phase error of the block interpolation, radians (a mismatch of order
 /// 1e-12, far below any bank's minimal-match loss).
 pub const PHASE_TOLERANCE: f64 = 1e-6;
-/// Longest block (bins); the stack buffer holds one block. With it, generating
-/// 1.4+1.4 Msun from 20 Hz to ISCO at df = 1/256 Hz (390,000 bins) took 1.93 ms,
-/// 4.9 ns per bin (`cargo bench --features bench -- "block generation"`, one thread
-/// of a shared 2-core AMD EPYC under load; other lengths not yet compared).
+/// Longest block (bins); the stack buffer holds one block. Generating 1.4+1.4 Msun
+/// from 20 Hz to ISCO at df = 1/256 Hz (390,000 bins) on one thread
+/// (`cargo bench --features bench -- "block generation"`, one run of a shared 2-core
+/// AMD EPYC): 512 bins 1.22 ms, 2048 bins 0.94 ms, 8192 bins 0.83 ms. Longer blocks
+/// keep gaining a little alone, but inside the fused kernel the block competes for
+/// cache with the data it multiplies; 8192 has not been compared there yet.
 pub const MAX_BLOCK: usize = 2048;
-/// Shorter blocks are evaluated directly: four node evaluations plus set-up cost
-/// more than direct evaluation below about this many bins.
+/// Blocks shorter than this are evaluated bin by bin with the exact formula (the
+/// cubic would need four exact evaluations for a handful of bins).
 const MIN_BLOCK: usize = 16;
 /// Independent recurrence chains per block, so consecutive complex multiplies do not
-/// wait on each other. Measured on the block-generation bench above: 1 lane 13.4 ms,
-/// 2 lanes 2.9 ms, 4 lanes 1.93 ms (the one-lane loop does not vectorise).
+/// wait on each other. On the same bench under heavier load (separate runs): 1 lane
+/// 13.4 ms, 2 lanes 2.9 ms, 4 lanes 1.93 ms.
 const LANES: usize = 4;
 
 /// A model the block generator can step: exact phase and amplitude at a frequency,
