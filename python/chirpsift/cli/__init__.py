@@ -54,6 +54,8 @@ COMMANDS: tuple[Command, ...] = (
     Command("inject", "chirpsift.inject.inject_command"),
     Command("campaign", "chirpsift.inject.campaign_command"),
     Command("sensitivity", "chirpsift.inject.sensitivity_command"),
+    Command("run", "chirpsift.run.command"),
+    Command("report", "chirpsift.report.command"),
 )
 
 

@@ -1,0 +1,370 @@
+"""The stages of ``chirpsift run`` and their units: what each reads, computes and publishes.
+
+A run is a plan of units, each with a stable key, run in plan order. A unit reads only
+published files (the analysis's inputs and earlier units' outputs), publishes its files
+atomically into the output folder and returns facts for the manifest; it never writes
+the manifest. Running a unit twice on the same inputs publishes the same bytes (no
+clock time, no host name in any output), so a unit can be redone at any time.
+
+========================  ==========================  ===============================================
+unit key                  publishes                   what
+========================  ==========================  ===============================================
+``bank``                  ``bank.parquet``            the template bank, copied (Bank.save layout)
+``search/<site>``         ``triggers/<site>.parquet`` the site's catalogue searched block by block
+                                                      (:func:`chirpsift.pipeline.search_catalogue`);
+                                                      the run summary in the file's metadata
+``spectrum/<site>``       ``spectra/<site>.parquet``  amplitude spectral density over the run
+``background``            ``background.parquet``      time-slide coincidences
+``candidates``            ``candidates.parquet``      zero-lag coincidences with false-alarm rates
+``report``                ``report/...``              the HTML report and its PNG plots
+========================  ==========================  ===============================================
+
+Unit size: one search unit per site, covering the site's whole catalogue. That keeps
+the triggers bit-identical to one in-memory search of each span of abutting files (the
+search of a stretch depends on the whole stretch: its segment plan, PSDs and gates), and
+memory stays bounded because the catalogue is read block by block.
+"""
+
+from __future__ import annotations
+
+import glob
+import os
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..bank import Bank
+from ..io import read_triggers, write_triggers
+from ..io.catalogue import read_catalogue
+from ..network import coincidences
+from ..network.coincidence import CAUTIONS
+from ..network.far import YEAR, false_alarm_rate
+from ..pipeline import search_catalogue
+from ..spectrum import welch
+
+__all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times",
+           "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
+
+#: Stages in the order they run.
+STAGES = ("bank", "search", "spectrum", "background", "candidates", "report")
+#: At most this many stretches of analysed data go into a site's spectrum.
+SPECTRUM_CHUNKS = 64
+#: Each spectrum stretch lasts this many Welch segments (``welch_duration``).
+SPECTRUM_CHUNK_WELCH = 16
+#: Columns the candidates unit adds to :func:`chirpsift.coincidences`' table.
+CANDIDATE_EXTRA = (("m1", "f8"), ("m2", "f8"), ("spin1", "f8"), ("spin2", "f8"), ("far_bound", "?"))
+
+_GLOB_CHARS = "*?["
+
+
+@dataclass(frozen=True)
+class Unit:
+    """One unit of work of a run.
+
+    Attributes
+    ----------
+    key : str
+        Stable key (``"search/Kestrel"``), the unit's name in the manifest.
+    stage : str
+        One of :data:`STAGES`.
+    outputs : tuple of str
+        Files it publishes, relative to the output folder; the last is written last.
+    after : tuple of str
+        Keys of the units whose outputs it reads.
+    site : str or None
+        The site of a per-site unit.
+    """
+
+    key: str
+    stage: str
+    outputs: tuple[str, ...]
+    after: tuple[str, ...] = ()
+    site: str | None = None
+
+
+def plan(analysis) -> list[Unit]:
+    """Every unit of a run, in the order they run.
+
+    Parameters
+    ----------
+    analysis : chirpsift.run.Analysis
+        The loaded analysis file.
+
+    Returns
+    -------
+    list of Unit
+    """
+    from ..report.html import REPORT_FILES
+
+    names = analysis.site_names
+    units = [Unit("bank", "bank", ("bank.parquet",))]
+    units += [Unit(f"search/{n}", "search", (f"triggers/{n}.parquet",), ("bank",), n) for n in names]
+    units += [Unit(f"spectrum/{n}", "spectrum", (f"spectra/{n}.parquet",), (f"search/{n}",), n) for n in names]
+    searches = tuple(f"search/{n}" for n in names)
+    units.append(Unit("background", "background", ("background.parquet",), searches))
+    units.append(Unit("candidates", "candidates", ("candidates.parquet",), ("bank", *searches, "background")))
+    everything = tuple(u.key for u in units)
+    units.append(Unit("report", "report", tuple(f"report/{f}" for f in REPORT_FILES), everything))
+    return units
+
+
+def _data_files(patterns) -> list[list]:
+    """``[path, bytes, mtime_ns]`` of every file the patterns name now (missing ones left out)."""
+    out = []
+    for pattern in patterns:
+        found = sorted(glob.glob(pattern, recursive=True)) if any(c in pattern for c in _GLOB_CHARS) else [pattern]
+        for f in found:
+            try:
+                st = os.stat(f)
+            except OSError:
+                continue
+            if not os.path.isdir(f):
+                out.append([os.path.abspath(f), st.st_size, st.st_mtime_ns])
+    return out
+
+
+def _veto_stamp(vetoes):
+    if isinstance(vetoes, str):
+        return _data_files([vetoes])
+    return vetoes
+
+
+def unit_inputs(unit: Unit, analysis, manifest) -> dict:
+    """Describe what a unit reads, for its fingerprint.
+
+    The upstream units' published digests, the settings the unit uses and, for units
+    that read strain, the data files' paths, sizes and modification times. The analysis
+    as a whole is pinned by the manifest's settings hash.
+
+    Parameters
+    ----------
+    unit : Unit
+        The unit.
+    analysis : chirpsift.run.Analysis
+        The analysis.
+    manifest : chirpsift.run.Manifest
+        The manifest, holding every unit of ``unit.after`` as complete.
+
+    Returns
+    -------
+    dict
+    """
+    inputs = {"unit": unit.key, "after": {k: manifest.digest(k) for k in unit.after}}
+    if unit.stage == "bank":
+        inputs["bank"] = _data_files([str(analysis.bank_file)])
+    if unit.site is not None or unit.stage == "report":
+        sites = [unit.site] if unit.site is not None else analysis.site_names
+        inputs["data"] = {n: {"files": _data_files(analysis.data[n].files),
+                              "vetoes": _veto_stamp(analysis.data[n].vetoes)} for n in sites}
+    return inputs
+
+
+# ---------------------------------------------------------------------------
+# reading what earlier units published
+# ---------------------------------------------------------------------------
+def catalogue_of(data):
+    """Return the strain catalogue of one site's input (a :class:`~chirpsift.run.SiteData` or its dict form)."""
+    d = data if isinstance(data, dict) else {
+        "files": data.files, "dataset": data.dataset, "sample_rate": data.sample_rate,
+        "sample_rate_attr": data.sample_rate_attr, "t0_attr": data.t0_attr}
+    return read_catalogue(list(d["files"]), dataset=d["dataset"], sample_rate=d["sample_rate"],
+                          sample_rate_attr=d["sample_rate_attr"], t0_attr=d["t0_attr"])
+
+
+def read_times(catalogue, start: float, stop: float) -> tuple[float, np.ndarray]:
+    """Read the samples of a catalogue from ``start`` to ``stop`` (s), clipped to the span holding ``start``.
+
+    Returns
+    -------
+    t0 : float
+        Time of the first sample returned (s).
+    x : ndarray of float64
+    """
+    for span in catalogue.spans:
+        if span.t0 <= start < span.end:
+            fs = span.sample_rate
+            i0 = int(np.ceil((start - span.t0) * fs - 1e-6))
+            i1 = min(int(np.floor((stop - span.t0) * fs + 1e-6)), span.n)
+            return span.t0 + i0 / fs, span.read(i0, max(i0, i1))
+    raise ValueError(f"no data at t={start!r} s in the catalogue")
+
+
+def _site_tables(folder: Path, names):
+    tables, analysed, meta = {}, {}, {}
+    for n in names:
+        tables[n], meta[n] = read_triggers(folder / "triggers" / f"{n}.parquet")
+        analysed[n] = np.asarray(meta[n]["analysed"], dtype=np.float64).reshape(-1, 2)
+    return tables, analysed, meta
+
+
+def _network_call(analysis, tables, analysed, n_slides):
+    return coincidences(tables, list(analysis.sites), analysed=analysed, n_slides=n_slides,
+                        slide_step=analysis.slide_step, window=analysis.allowance,
+                        peak_window=analysis.search.peak_window, full_output=True)
+
+
+# ---------------------------------------------------------------------------
+# the units
+# ---------------------------------------------------------------------------
+def _bank(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    bank = Bank.load(analysis.bank_file)
+    if len(bank) == 0:
+        raise ValueError(f"{analysis.bank_file}: the bank holds no templates")
+    bank.save(folder / unit.outputs[0])
+    return {"rows": len(bank)}
+
+
+def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    site = unit.site
+    data = analysis.data[site]
+    catalogue = catalogue_of(data)
+    bank = Bank.load(folder / "bank.parquet")
+    settings = analysis.search.as_dict()
+    f_low = settings.pop("f_low")
+    vetoes = data.vetoes if isinstance(data.vetoes, (str, type(None))) else list(data.vetoes)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        triggers, info = search_catalogue(catalogue, bank, f_low=f_low, vetoes=vetoes, progress=progress,
+                                          **settings)
+    table = info["live_time_table"]
+    meta = {
+        "table": "triggers",
+        "site": site,
+        "files": [str(f.path) for f in catalogue.files],
+        "settings": info["settings"],
+        "analysed": info["analysed"],
+        "live_time": info["live_time"],
+        "analysed_fraction": info["analysed_fraction"],
+        "live_time_table": table.as_dict(),
+        "gates": info["gates"],
+        "gated_time": info["gated_time"],
+        "excluded": info["excluded"],
+        "vetoed": info["vetoed"],
+        "gaps": info["gaps"],
+        "short_stretches": info["short_stretches"],
+        "stretches": info["stretches"],
+        "segments": info["segments"],
+        "segment_duration": info["segment_duration"],
+        "sample_rate": info["sample_rate"],
+        "templates": info["templates"],
+        "max_template_duration": info["max_template_duration"],
+        "warnings": [f"{w.category.__name__}: {w.message}" for w in caught],
+    }
+    write_triggers(folder / unit.outputs[0], triggers, meta)
+    return {"rows": int(len(triggers)), "live_time": float(info["live_time"])}
+
+
+def _spectrum_chunks(analysed, length: float) -> list[tuple[float, float]]:
+    """Up to SPECTRUM_CHUNKS stretches of ``length`` s inside the analysed intervals, spread evenly."""
+    chunks = []
+    for a, b in analysed:
+        k = int((b - a) // length)
+        chunks += [(a + i * length, a + (i + 1) * length) for i in range(k)]
+    if len(chunks) > SPECTRUM_CHUNKS:
+        pick = np.unique(np.round(np.linspace(0, len(chunks) - 1, SPECTRUM_CHUNKS)).astype(int))
+        chunks = [chunks[i] for i in pick]
+    return chunks
+
+
+def _spectrum(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    _, meta = read_triggers(folder / "triggers" / f"{unit.site}.parquet")
+    catalogue = catalogue_of(analysis.data[unit.site])
+    fs = catalogue.sample_rate
+    wd = analysis.search.welch_duration
+    analysed = np.asarray(meta["analysed"], dtype=np.float64).reshape(-1, 2)
+    length = SPECTRUM_CHUNK_WELCH * wd
+    chunks = _spectrum_chunks(analysed, length)
+    if not chunks and analysed.size:  # only short intervals: take the longest, if it holds 2 Welch segments
+        a, b = max(analysed.tolist(), key=lambda iv: iv[1] - iv[0])
+        if b - a >= 2 * wd:
+            length, chunks = b - a, [(a, b)]
+    n = int(round(length * fs))
+    rows = []
+    for a, _ in chunks:
+        _, x = read_times(catalogue, a, a + length + 1.0 / fs)
+        if x.shape[0] >= n and np.all(np.isfinite(x[:n])):
+            rows.append(x[:n])
+    cols = {"frequency": np.zeros(0), "asd_median": np.zeros(0), "asd_low": np.zeros(0), "asd_high": np.zeros(0)}
+    if rows:
+        freqs, psd = welch(np.stack(rows), fs, segment_duration=wd)
+        asd = np.sqrt(np.atleast_2d(psd))
+        low, med, high = np.percentile(asd, [10.0, 50.0, 90.0], axis=0)
+        cols = {"frequency": freqs, "asd_median": med, "asd_low": low, "asd_high": high}
+    write_triggers(folder / unit.outputs[0], cols, {
+        "table": "spectrum", "site": unit.site, "chunks": [[a, a + length] for a, _ in chunks][:len(rows)],
+        "chunk_duration": length, "welch_duration": wd, "percentiles": [10, 50, 90],
+        "unit": "1/sqrt(Hz)"})
+    return {"rows": int(len(cols["frequency"])), "chunks": len(rows)}
+
+
+def _background(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    tables, analysed, _ = _site_tables(folder, analysis.site_names)
+    _, bg, info = _network_call(analysis, tables, analysed, analysis.slides)
+    write_triggers(folder / unit.outputs[0], bg, {
+        "table": "background", "sites": info["sites"], "windows": info["windows"], "allowance": info["allowance"],
+        "peak_window": info["peak_window"], "slide_step": info["slide_step"], "n_slides": info["n_slides"],
+        "common": info["common"], "live_time": info["live_time"], "background_time": info["background_time"],
+        "excluded": info["excluded"], "cautions": CAUTIONS})
+    return {"rows": int(len(bg))}
+
+
+def _candidates(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    tables, analysed, _ = _site_tables(folder, analysis.site_names)
+    cands, _, info = _network_call(analysis, tables, analysed, 0)
+    bg, bg_meta = read_triggers(folder / "background.parquet")
+    out = np.zeros(len(cands), dtype=cands.dtype.descr + list(CANDIDATE_EXTRA))
+    for f in cands.dtype.names:
+        out[f] = cands[f]
+    bank = Bank.load(folder / "bank.parquet")
+    t = cands["template"].astype(np.int64)
+    out["m1"], out["m2"], out["spin1"], out["spin2"] = bank.m1[t], bank.m2[t], bank.chi1[t], bank.chi2[t]
+    background_time = float(bg_meta["background_time"])
+    if bg_meta["n_slides"]:
+        far, bound = false_alarm_rate(cands["statistic"], bg["statistic"], background_time)
+        out["far"], out["far_bound"] = far, bound
+        with np.errstate(divide="ignore"):
+            out["ifar"] = 1.0 / far
+    write_triggers(folder / unit.outputs[0], out, {
+        "table": "candidates", "sites": info["sites"], "live_time": info["live_time"],
+        "live_time_years": info["live_time"] / YEAR, "background_time": background_time,
+        "background_time_years": background_time / YEAR, "n_slides": bg_meta["n_slides"],
+        "slide_step": bg_meta["slide_step"], "windows": info["windows"], "cautions": CAUTIONS})
+    return {"rows": int(len(out))}
+
+
+def _report(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    from ..report.html import write_report
+
+    write_report(folder, top=analysis.top)
+    return {}
+
+
+_RUNNERS = {"bank": _bank, "search": _search, "spectrum": _spectrum, "background": _background,
+            "candidates": _candidates, "report": _report}
+
+
+def execute(unit: Unit, analysis, *, progress: bool = False) -> dict:
+    """Run one unit: compute and publish its files atomically.
+
+    Parameters
+    ----------
+    unit : Unit
+        The unit.
+    analysis : chirpsift.run.Analysis
+        The analysis.
+    progress : bool, optional
+        Show the search's own progress bar.
+
+    Returns
+    -------
+    dict
+        Facts for the manifest (``rows``: rows of its table).
+    """
+    folder = Path(analysis.output)
+    for rel in unit.outputs:
+        (folder / rel).parent.mkdir(parents=True, exist_ok=True)
+    return _RUNNERS[unit.stage](analysis, folder, unit, progress)
+
+
