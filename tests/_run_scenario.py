@@ -82,3 +82,30 @@ def outputs(folder) -> dict:
 def temporaries(folder) -> list:
     """Temporary (dot-prefixed) files left under ``folder``."""
     return [p for p in Path(folder).rglob(".*") if p.is_file()]
+
+
+_DONE = {}
+
+
+def completed_run(tmp_path_factory):
+    """One completed run of the scenario per test session (shared by the run and report tests)."""
+    if "folder" not in _DONE:
+        from chirpsift.run import load_analysis, run_analysis
+
+        folder = tmp_path_factory.mktemp("scenario")
+        analysis = write_scenario(folder)
+        result = run_analysis(load_analysis(analysis))
+        _DONE["folder"], _DONE["analysis"], _DONE["result"] = folder, analysis, result
+    return _DONE["folder"], _DONE["analysis"], _DONE["result"]
+
+
+def second_output(folder, name):
+    """A copy of the scenario's output folder and an analysis file pointing at it (same analysis otherwise)."""
+    import shutil
+
+    folder = Path(folder)
+    shutil.copytree(folder / "out", folder / name)
+    text = (folder / "analysis.toml").read_text().replace('output = "out"', f'output = "{name}"')
+    path = folder / f"analysis-{name}.toml"
+    path.write_text(text)
+    return path

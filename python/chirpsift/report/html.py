@@ -320,5 +320,6 @@ def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, o
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
             f"<title>{_esc(title)}</title><style>{_CSS}</style></head><body>"
-            f"<h1>{_esc(title)}</h1><p>Run folder <code>{_esc(folder.resolve())}</code>.</p>"
+            f"<h1>{_esc(title)}</h1><p>Analysis settings hash <code>{_esc(doc['settings_hash'][:16])}</code>; "
+            "the files beside this page hold its plots and numbers.</p>"
             + "\n".join(parts) + "</body></html>\n")

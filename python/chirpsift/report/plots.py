@@ -94,6 +94,16 @@ def poisson_interval(mean, probability: float):
     return lo, hi
 
 
+def _plain_log_ticks(ax) -> None:
+    """Label log axes at their major ticks only, in plain numbers (mathtext labels are slow to lay out)."""
+    from matplotlib.ticker import LogFormatter, NullFormatter
+
+    for axis in (ax.xaxis, ax.yaxis):
+        if axis.get_scale() == "log":
+            axis.set_major_formatter(LogFormatter(labelOnlyBase=False))
+            axis.set_minor_formatter(NullFormatter())
+
+
 def _figure(width=7.0, height=4.0):
     from matplotlib.figure import Figure
 
@@ -141,9 +151,10 @@ def plot_spectra(spectra: dict, path, *, f_low: float) -> None:
         ax.loglog(f[keep], med[keep], color=c, linestyle=LINESTYLES[i % 4], label=f"{name} (median; band 10-90%)")
         drawn = True
     ax.set_xlabel("frequency (Hz)")
-    ax.set_ylabel(r"amplitude spectral density (1/$\sqrt{\mathrm{Hz}}$)")
+    ax.set_ylabel("amplitude spectral density (1/\u221aHz)")
     ax.set_title("Noise of each site over the run")
-    ax.grid(True, which="both", alpha=0.3)
+    _plain_log_ticks(ax)
+    ax.grid(True, which="major", alpha=0.3)
     if drawn:
         ax.legend(fontsize="small")
     save_png(fig, path)
@@ -301,10 +312,11 @@ def plot_ifar(ifar, live_time_years: float, background_time_years: float, path) 
     ax.axvline(background_time_years, color=PALETTE[2], linestyle=":", label="background reach")
     ax.set_xscale("log")
     ax.set_yscale("log")
+    _plain_log_ticks(ax)
     ax.set_ylim(0.5, max(10.0, (x.size if x.size else 1) * 2.0, float(expected.max()) * 1.2))
     ax.set_xlabel("inverse false-alarm rate (years)")
     ax.set_ylabel("candidates with at least this IFAR")
     ax.set_title("Candidates against the time-slide background")
-    ax.grid(True, which="both", alpha=0.3)
+    ax.grid(True, which="major", alpha=0.3)
     ax.legend(fontsize="small")
     save_png(fig, path)

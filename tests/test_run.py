@@ -1,0 +1,250 @@
+"""chirpsift run: the analysis file, the plan of units, resuming from the manifest, the command."""
+
+import dataclasses
+import io
+import json
+import re
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import chirpsift as cs
+from chirpsift.io import read_triggers
+from chirpsift.io.catalogue import read_catalogue
+from chirpsift.io.vetoes import read_vetoes
+from chirpsift.network import EXAMPLE_SITES, YEAR, Site, coincidences, load_sites
+from chirpsift.run import SCHEMA, ManifestMismatch, load_analysis, plan, run_analysis
+from chirpsift.run.progress import Progress
+
+from _run_scenario import FS, T0, T_SIGNAL, completed_run, outputs, second_output, temporaries, write_scenario
+
+README = Path(__file__).resolve().parents[1] / "README.md"
+
+
+@pytest.fixture(scope="module")
+def done(tmp_path_factory):
+    return completed_run(tmp_path_factory)
+
+
+# ---------------------------------------------------------------------------
+# the analysis file
+# ---------------------------------------------------------------------------
+def _edit(path: Path, old: str, new: str) -> Path:
+    text = path.read_text()
+    assert old in text
+    out = path.with_name("edited.toml")
+    out.write_text(text.replace(old, new))
+    return out
+
+
+@pytest.mark.parametrize("old, new, message", [
+    ('output = "out"', 'outptu = "out"', "unknown key 'outptu'; did you mean 'output'?"),
+    ("min-snr = 5.0", "min-snrr = 5.0", "unknown key 'min-snrr'; did you mean 'min-snr'?"),
+    ('files = "kestrel/*.npz"', 'file = "kestrel/*.npz"', "unknown key 'file'; did you mean 'files'?"),
+    ("slides = 40", "slide = 40", "unknown key 'slide'; did you mean 'slides'?"),
+    ("top = 5", "tops = 5", "unknown key 'tops'; did you mean 'top'?"),
+    ('[data.Heron]', '[data.Heorn]', "no site named 'Heorn' among the sites (Kestrel, Heron, Plover); did you "
+                                      "mean 'Heron'?"),
+    ("slides = 40", "slides = -1", "slides must be a finite number >= 0, got -1"),
+    ("slides = 40", "slides = 2.5", "slides must be an integer, got 2.5"),
+    ("min-snr = 5.0", "min-snr = -5.0", "min_snr must be positive"),
+    ('[bank]\nfile = "bank.parquet"', "[bank]", "file (the template bank) must be given"),
+])
+def test_bad_analysis_files_are_refused_naming_the_key(tmp_path, old, new, message):
+    path = _edit(write_scenario(tmp_path), old, new)
+    with pytest.raises(ValueError) as err:
+        load_analysis(path)
+    assert message in str(err.value)
+    assert str(path) in str(err.value)
+
+
+def test_paths_are_relative_to_the_analysis_file_and_sites_may_be_inline(tmp_path, monkeypatch):
+    path = write_scenario(tmp_path)
+    monkeypatch.chdir("/")
+    a = load_analysis(path)
+    assert a.output == tmp_path / "out"
+    assert a.data["Heron"].files == (str(tmp_path / "heron/heron-*.npz"),)
+    assert a.data["Heron"].vetoes == str(tmp_path / "heron-vetoes.txt")
+    assert a.site_names == ["Kestrel", "Heron"]  # the sites file's order, not the [data] tables'
+    sites = load_sites(EXAMPLE_SITES)
+    inline = "\n".join(
+        "[[sites.site]]\n" + "\n".join(f"{f.name} = {getattr(sites[n], f.name)!r}" for f in dataclasses.fields(Site))
+        for n in ("Kestrel", "Heron"))
+    inline_path = _edit(path, '[sites]\nfile = "sites.toml"', "[sites]\n" + inline)
+    b = load_analysis(inline_path)
+    assert b.sites == a.sites
+    assert b.settings_hash() == a.settings_hash()  # the same analysis, however the sites are given
+    assert _edit(path, "peak-window = 0.5", "peak-window = 0.25") and \
+        load_analysis(path.with_name("edited.toml")).settings_hash() != a.settings_hash()
+
+
+def test_one_site_is_not_a_network(tmp_path):
+    path = _edit(write_scenario(tmp_path), '[data.Heron]\nfiles = ["heron/heron-*.npz"]\nvetoes = "heron-vetoes.txt"\n',
+                 "")
+    with pytest.raises(ValueError, match="at least two sites"):
+        load_analysis(path)
+
+
+def test_every_key_of_the_analysis_file_is_documented_in_the_readme():
+    text = README.read_text()
+    section = text[text.index("### The analysis file"):]
+    section = section[:section.index("\n## ")]
+    for table, keys in SCHEMA.items():
+        for key in keys:
+            assert f"`{key}`" in section, (table, key)
+
+
+# ---------------------------------------------------------------------------
+# the run
+# ---------------------------------------------------------------------------
+def _in_memory(folder: Path, site: str, analysis):
+    """chirpsift.search on each span of the site's files held in memory, vetoed samples set to NaN."""
+    data = analysis.data[site]
+    cat = read_catalogue(list(data.files))
+    vetoes = read_vetoes(data.vetoes) if data.vetoes else []
+    settings = analysis.search.as_dict()
+    out = []
+    for span in cat.spans:
+        x = span.read(0, span.n)
+        t = span.t0 + np.arange(span.n) / span.sample_rate
+        for a, b in vetoes:
+            x[(t >= a) & (t < b)] = np.nan
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            out.append(cs.search(x, span.sample_rate, cs.Bank.load(folder / "out" / "bank.parquet"), t0=span.t0,
+                                 **settings))
+    return np.concatenate(out)
+
+
+def test_each_sites_triggers_equal_the_in_memory_search_bit_for_bit(done):
+    # Consistency test (expected values from chirpsift.search, which the stage runs block by
+    # block); the outside checks: the injected time and the gap known from the file times.
+    folder, path, _ = done
+    analysis = load_analysis(path)
+    for site in analysis.site_names:
+        table, meta = read_triggers(folder / "out" / "triggers" / f"{site}.parquet")
+        assert table.tobytes() == _in_memory(folder, site, analysis).tobytes()
+        near = table[np.argmin(np.abs(table["time"] - T_SIGNAL))]
+        assert abs(near["time"] - T_SIGNAL) < 0.01 and near["snr"] > 8
+        seconds = meta["live_time_table"]["seconds"]
+        assert sum(seconds.values()) == pytest.approx(480.0, abs=1e-9)  # first sample to last
+    _, meta = read_triggers(folder / "out" / "triggers" / "Heron.parquet")
+    assert meta["live_time_table"]["seconds"]["gap"] == 20.0 and meta["live_time_table"]["seconds"]["vetoed"] == 10.0
+
+
+def test_candidates_and_false_alarm_rates(done):
+    folder, path, _ = done
+    analysis = load_analysis(path)
+    out = folder / "out"
+    tables, analysed = {}, {}
+    for n in analysis.site_names:
+        tables[n], meta = read_triggers(out / "triggers" / f"{n}.parquet")
+        analysed[n] = meta["analysed"]
+    cands, cmeta = read_triggers(out / "candidates.parquet")
+    bg, bmeta = read_triggers(out / "background.parquet")
+    # consistency: the stages split one coincidences() call into background and FAR units
+    ref, ref_bg, info = coincidences(tables, list(analysis.sites), analysed=analysed, n_slides=40,
+                                     peak_window=0.5, full_output=True)
+    assert bg.tobytes() == ref_bg.tobytes()
+    for name in ref.dtype.names:
+        np.testing.assert_array_equal(cands[name], ref[name])
+    np.testing.assert_array_equal(cands["far_bound"], info["far_bound"])
+    # outside check: the FAR by its definition, louder background count over background time, per year
+    louder = np.array([(bg["statistic"] >= s).sum() for s in cands["statistic"]])
+    years = bmeta["background_time"] / YEAR
+    np.testing.assert_allclose(cands["far"], np.where(louder == 0, 1, louder) / years, rtol=1e-12)
+    assert bmeta["background_time"] == pytest.approx(40 * cmeta["live_time"])
+    top = cands[0]
+    assert abs(top["time"] - T_SIGNAL) < 0.01 and (top["m1"], top["m2"]) == (14.0, 12.0)
+    assert abs(top["Heron_time"] - top["Kestrel_time"] - 0.004) < 2.0 / FS  # the injected delay
+
+
+def test_a_second_run_does_nothing_and_changes_no_byte(done):
+    folder, path, first = done
+    assert first.ran == [u.key for u in plan(load_analysis(path))]
+    before = outputs(folder / "out")
+    again = run_analysis(load_analysis(path))
+    assert again.ran == [] and len(again.skipped) == len(first.ran)
+    assert outputs(folder / "out") == before
+    assert not temporaries(folder / "out")
+
+
+def test_a_deleted_or_damaged_unit_output_is_redone_alone(done):
+    folder, _, _ = done
+    path = second_output(folder, "out-redo")
+    out = folder / "out-redo"
+    before = outputs(out)
+    (out / "triggers" / "Heron.parquet").unlink()
+    spectrum = out / "spectra" / "Kestrel.parquet"
+    spectrum.write_bytes(spectrum.read_bytes()[:-10])  # truncated
+    result = run_analysis(load_analysis(path))
+    assert result.ran == ["search/Heron", "spectrum/Kestrel"]  # later units: same inputs, same bytes
+    assert outputs(out) == before
+
+
+def test_a_changed_analysis_is_refused_naming_what_changed(done, capsys):
+    folder, path, _ = done
+    changed = _edit(path, "min-snr = 5.0", "min-snr = 5.5")
+    with pytest.raises(ManifestMismatch, match=r"different analysis .*changed: search\.min_snr"):
+        run_analysis(load_analysis(changed))
+    from chirpsift.cli import main
+
+    assert main(["run", str(changed)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and "chirpsift run: error:" in err and "search.min_snr" in err
+
+
+def test_an_interrupted_run_leaves_no_partial_file_and_resumes(done, monkeypatch):
+    folder, _, _ = done
+    path = second_output(folder, "out-stop")
+    out = folder / "out-stop"
+    before = outputs(out)
+    for rel in ("background.parquet", "candidates.parquet", "report/report.html"):
+        (out / rel).unlink()
+    import pyarrow.parquet as pq
+
+    real = pq.write_table
+
+    def interrupted(table, where, *args, **kwargs):
+        real(table, where, *args, **kwargs)
+        Path(where).write_bytes(Path(where).read_bytes()[:100])  # half written when Ctrl-C arrives
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(pq, "write_table", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        run_analysis(load_analysis(path))
+    assert not (out / "background.parquet").exists() and not temporaries(out)
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert "search/Heron" in manifest["units"]
+    monkeypatch.setattr(pq, "write_table", real)
+    result = run_analysis(load_analysis(path))
+    assert result.ran == ["background", "candidates", "report"]
+    assert outputs(out) == before
+
+
+def test_the_command_runs_and_reports(done, capsys):
+    from chirpsift.cli import main
+
+    folder, path, _ = done
+    assert main(["run", str(path), "--quiet"]) == 0
+    text = capsys.readouterr().out
+    assert "0 units run, 8 already complete" in text and "report.html" in text
+    assert main(["run", str(folder / "missing.toml")]) == 2
+    assert "analysis file not found" in capsys.readouterr().err
+    assert main(["run", str(path), "--stop-after", "nothing"]) == 2
+
+
+def test_quiet_progress_prints_a_line_per_n_units_or_per_minute():
+    now = [0.0]
+    stream = io.StringIO()
+    p = Progress(7, "lines", every=3, seconds=60.0, stream=stream, clock=lambda: now[0])
+    for k in range(7):
+        p.started(f"u{k}")
+        now[0] += 1.0 if k != 4 else 90.0  # unit 4 takes a minute and a half
+        p.finished(f"u{k}", 1.0)
+    p.close()
+    lines = stream.getvalue().splitlines()
+    assert [re.match(r"chirpsift run: (\d+)/7", ln).group(1) for ln in lines] == ["3", "5", "7"]
+    assert "left" in lines[0] and "u4 took" in lines[1]
