@@ -18,7 +18,7 @@ from chirpsift.network import EXAMPLE_SITES, YEAR, Site, coincidences, load_site
 from chirpsift.run import SCHEMA, ManifestMismatch, load_analysis, plan, run_analysis
 from chirpsift.run.progress import Progress
 
-from _run_scenario import FS, T0, T_SIGNAL, completed_run, outputs, second_output, temporaries, write_scenario
+from _run_scenario import FS, T_SIGNAL, completed_run, outputs, second_output, temporaries, write_scenario
 
 README = Path(__file__).resolve().parents[1] / "README.md"
 

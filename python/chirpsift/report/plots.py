@@ -96,18 +96,22 @@ def poisson_interval(mean, probability: float):
 
 def _plain_log_ticks(ax) -> None:
     """Label log axes at their major ticks only, in plain numbers (mathtext labels are slow to lay out)."""
-    from matplotlib.ticker import LogFormatter, NullFormatter
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-    for axis in (ax.xaxis, ax.yaxis):
+    for axis, text in ((ax.xaxis, "{:g}"), (ax.yaxis, "{:.0e}")):
         if axis.get_scale() == "log":
-            axis.set_major_formatter(LogFormatter(labelOnlyBase=False))
+            axis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+            axis.set_major_formatter(FuncFormatter(lambda v, _, text=text: text.format(v)))
             axis.set_minor_formatter(NullFormatter())
 
 
-def _figure(width=7.0, height=4.0):
+def _figure(width=7.0, height=4.0, *, left=0.9, right=0.25, bottom=0.6, top=0.4, hspace=0.15):
+    """Return a figure with fixed margins in inches (a layout engine costs more than the drawing)."""
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(width, height), dpi=100, layout="constrained")
+    fig = Figure(figsize=(width, height), dpi=100)
+    fig.subplots_adjust(left=left / width, right=1 - right / width, bottom=bottom / height, top=1 - top / height,
+                        hspace=hspace)
     return fig
 
 
@@ -143,7 +147,7 @@ def plot_spectra(spectra: dict, path, *, f_low: float) -> None:
     ax = fig.add_subplot()
     drawn = False
     for i, (name, (f, med, low, high)) in enumerate(spectra.items()):
-        keep = (f >= f_low) & (med > 0)
+        keep = (f >= f_low) & (f < f[-1]) & (med > 0)  # the Nyquist bin holds half the power
         if not keep.any():
             continue
         c = PALETTE[i % len(PALETTE)] if i % len(PALETTE) != 3 else _GREY
@@ -173,7 +177,7 @@ def plot_timeline(tables: dict, path) -> None:
     from matplotlib.patches import Patch
 
     names = list(tables)
-    fig = _figure(7.0, 1.2 + 0.6 * len(names))
+    fig = _figure(7.0, 1.5 + 0.6 * len(names), left=0.8, bottom=1.05)
     ax = fig.add_subplot()
     t0 = min(t["start"] for t in tables.values())
     scale, unit = (3600.0, "h") if max(t["end"] for t in tables.values()) - t0 > 7200 else (1.0, "s")
@@ -195,7 +199,8 @@ def plot_timeline(tables: dict, path) -> None:
     handles = [Patch(facecolor=_TIMELINE[c][0], hatch=_TIMELINE[c][1], edgecolor=PALETTE[0], label=_LABELS[c])
                for c in _TIMELINE if c in used]
     if handles:
-        fig.legend(handles=handles, loc="outside lower center", ncols=min(3, len(handles)), fontsize="small")
+        fig.legend(handles=handles, loc="lower center", ncols=min(3, len(handles)), fontsize="small",
+                   frameon=False)
     save_png(fig, path)
 
 
@@ -227,6 +232,7 @@ def plot_candidate_series(series: dict, t_c: float, path, *, title: str) -> None
     """
     fig = _figure(7.0, 5.0)
     top, bottom = fig.subplots(2, 1, sharex=True)
+    fig.subplots_adjust(hspace=0.08)
     for i, (name, (t, snr, chi)) in enumerate(series.items()):
         c, ls = PALETTE[i % 3], LINESTYLES[i % 4]
         top.plot(t - t_c, snr, color=c, linestyle=ls, label=name)
@@ -313,6 +319,7 @@ def plot_ifar(ifar, live_time_years: float, background_time_years: float, path) 
     ax.set_xscale("log")
     ax.set_yscale("log")
     _plain_log_ticks(ax)
+    ax.yaxis.set_major_formatter("{x:g}")
     ax.set_ylim(0.5, max(10.0, (x.size if x.size else 1) * 2.0, float(expected.max()) * 1.2))
     ax.set_xlabel("inverse false-alarm rate (years)")
     ax.set_ylabel("candidates with at least this IFAR")
