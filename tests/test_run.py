@@ -193,7 +193,7 @@ def test_a_changed_analysis_is_refused_naming_what_changed(done, capsys):
 
     assert main(["run", str(changed)]) == 2
     err = capsys.readouterr().err.strip()
-    assert err.count("\n") == 0 and "chirpsift run: error:" in err and "search.min_snr" in err
+    assert err.count("\n") == 0 and "chirpsift: error:" in err and "search.min_snr" in err
 
 
 def test_an_interrupted_run_leaves_no_partial_file_and_resumes(done, monkeypatch):
