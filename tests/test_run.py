@@ -248,3 +248,19 @@ def test_quiet_progress_prints_a_line_per_n_units_or_per_minute():
     lines = stream.getvalue().splitlines()
     assert [re.match(r"chirpsift run: (\d+)/7", ln).group(1) for ln in lines] == ["3", "5", "7"]
     assert "left" in lines[0] and "u4 took" in lines[1]
+
+
+def test_a_run_that_finds_nothing_publishes_empty_tables_and_says_so(tmp_path):
+    path = _edit(write_scenario(tmp_path, slides=0), "min-snr = 5.0", "min-snr = 30.0")
+    first = run_analysis(load_analysis(path), stop_after="search")
+    assert first.ran == ["bank", "search/Kestrel", "search/Heron"]
+    rest = run_analysis(load_analysis(path))
+    assert rest.skipped == first.ran and rest.ran[-1] == "report"
+    out = tmp_path / "out"
+    for rel in ("triggers/Kestrel.parquet", "background.parquet", "candidates.parquet"):
+        table, _ = read_triggers(out / rel)
+        assert len(table) == 0
+    cands, meta = read_triggers(out / "candidates.parquet")
+    assert meta["n_slides"] == 0 and "far_bound" in cands.dtype.names
+    page = (out / "report" / "report.html").read_text()
+    assert "0 zero-lag candidates" in page and "<p>None.</p>" in page
