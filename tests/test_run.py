@@ -264,3 +264,35 @@ def test_a_run_that_finds_nothing_publishes_empty_tables_and_says_so(tmp_path):
     assert meta["n_slides"] == 0 and "far_bound" in cands.dtype.names
     page = (out / "report" / "report.html").read_text()
     assert "0 zero-lag candidates" in page and "<p>None.</p>" in page
+
+
+def test_ctrl_c_on_the_command_exits_130_and_the_next_run_finishes(tmp_path):
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    path = write_scenario(tmp_path)
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys.path if p)}
+    command = [sys.executable, "-m", "chirpsift.cli", "run", str(path), "--quiet"]
+    proc = subprocess.Popen(command, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    manifest = tmp_path / "out" / "manifest.json"
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline and proc.poll() is None:
+        if manifest.exists() and '"search/Kestrel"' in manifest.read_text():
+            break
+        time.sleep(0.02)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, err
+    assert "interrupted" in err and "Traceback" not in err
+    assert not temporaries(tmp_path / "out")
+    units = json.loads(manifest.read_text())["units"]
+    assert "search/Kestrel" in units and "report" not in units
+    for entry in units.values():  # everything the manifest lists is there, whole
+        for rel, meta in entry["files"].items():
+            assert (tmp_path / "out" / rel).stat().st_size == meta["bytes"]
+    done = subprocess.run(command, env=env, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert "already complete" in done.stdout and (tmp_path / "out" / "report" / "report.html").exists()
