@@ -210,12 +210,11 @@ def write_report(folder, *, top: int = 10) -> Path:
     plots.plot_statistic({n: (trig[n]["snr"], trig[n]["reweighted_snr"]) for n in names}, in_bg, cand_points,
                          out / "statistic.png")
     n_slides = int(bg_meta["n_slides"])
-    if n_slides and len(cands):
+    if n_slides:
         plots.plot_ifar(cands["ifar"], c_meta["live_time_years"], c_meta["background_time_years"], out / "ifar.png")
     else:
         plots.plot_message(out / "ifar.png", "Candidates against the background",
-                           "No time slides were run: no false-alarm rates." if not n_slides
-                           else "No zero-lag candidates.")
+                           "No time slides were run: no false-alarm rates.")
 
     # numbers
     dof = 2 * settings["chi2_bands"] - 2

@@ -98,9 +98,10 @@ def _plain_log_ticks(ax) -> None:
     """Label log axes at their major ticks only, in plain numbers (mathtext labels are slow to lay out)."""
     from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-    for axis, text in ((ax.xaxis, "{:g}"), (ax.yaxis, "{:.0e}")):
+    for axis, text, limits in ((ax.xaxis, "{:g}", ax.get_xlim()), (ax.yaxis, "{:.0e}", ax.get_ylim())):
         if axis.get_scale() == "log":
-            axis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+            decades = math.log10(max(limits) / min(limits)) if min(limits) > 0 else 10.0
+            axis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0) if decades <= 2.0 else (1.0,)))
             axis.set_major_formatter(FuncFormatter(lambda v, _, text=text: text.format(v)))
             axis.set_minor_formatter(NullFormatter())
 
@@ -271,11 +272,15 @@ def plot_statistic(triggers: dict, background_rows: dict, candidates: dict, path
         ax.scatter(snr[mask], rw[mask], s=10, color=PALETTE[1], marker="s", linewidths=0,
                    label="in time-slide background")
     for i, (name, (s, r)) in enumerate(candidates.items()):
+        if len(s) == 0:
+            continue
         ax.scatter(s, r, s=40, facecolors=PALETTE[2], edgecolors=PALETTE[0], marker=MARKERS[(i + 2) % 4],
                    label=f"candidates at {name}")
     if snr.size:
-        hi = float(max(np.max(snr), 1.0)) * 1.05
-        ax.plot([0, hi], [0, hi], color=_GREY, linestyle=":", linewidth=1, label="reweighted = SNR")
+        lo, hi = float(np.min(rw)) * 0.9, float(np.max(snr)) * 1.05
+        ax.plot([lo, hi], [lo, hi], color=_GREY, linestyle=":", linewidth=1, label="reweighted = SNR")
+        ax.set_xlim(float(np.min(snr)) * 0.95, hi)
+        ax.set_ylim(lo, hi)
     ax.set_xlabel("SNR")
     ax.set_ylabel("reweighted SNR")
     ax.set_title("Signal consistency: reweighted SNR against SNR")
@@ -318,9 +323,9 @@ def plot_ifar(ifar, live_time_years: float, background_time_years: float, path) 
     ax.axvline(background_time_years, color=PALETTE[2], linestyle=":", label="background reach")
     ax.set_xscale("log")
     ax.set_yscale("log")
+    ax.set_ylim(0.5, max(10.0, (x.size if x.size else 1) * 2.0, float(expected.max()) * 1.2))
     _plain_log_ticks(ax)
     ax.yaxis.set_major_formatter("{x:g}")
-    ax.set_ylim(0.5, max(10.0, (x.size if x.size else 1) * 2.0, float(expected.max()) * 1.2))
     ax.set_xlabel("inverse false-alarm rate (years)")
     ax.set_ylabel("candidates with at least this IFAR")
     ax.set_title("Candidates against the time-slide background")
