@@ -231,6 +231,9 @@ def test_the_command_runs_and_reports(done, capsys):
     assert main(["run", str(path), "--quiet"]) == 0
     text = capsys.readouterr().out
     assert "0 units run, 8 already complete" in text and "report.html" in text
+    assert text.count("where each second went") == 2 and "Cautions:" in text
+    top = re.search(r"^\s+1\s+(\d+\.\d+)\s+14 \+ 12\s", text, flags=re.M)  # the injected binary ranks first
+    assert top and abs(float(top.group(1)) - T_SIGNAL) < 0.01
     assert main(["run", str(folder / "missing.toml")]) == 2
     assert "analysis file not found" in capsys.readouterr().err
     assert main(["run", str(path), "--stop-after", "nothing"]) == 2

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-__all__ = ["NAME", "HELP", "add_arguments", "run"]
+__all__ = ["NAME", "HELP", "add_arguments", "run", "print_summary"]
 
 NAME = "run"
 HELP = "run a whole analysis file: search every site, coincidences, false-alarm rates, report"
@@ -57,7 +57,55 @@ def run(args: argparse.Namespace) -> int:
         return 130
     folder = analysis.output
     print(f"{len(result.ran)} units run, {len(result.skipped)} already complete; outputs in {folder}")
+    if (folder / "candidates.parquet").exists():
+        print_summary(folder, analysis.site_names, analysis.top)
     report = folder / "report" / "report.html"
     if report.exists():
         print(f"Report: {report}")
     return 0
+
+
+def print_summary(folder, names, top: int, out=None) -> None:
+    """Print each site's live time and the loudest candidates of a run folder, with the cautions.
+
+    Parameters
+    ----------
+    folder : path
+        A run's output folder, complete up to its candidates.
+    names : list of str
+        The sites, in order.
+    top : int
+        Candidates to list.
+    out : file, optional
+        Default: stdout.
+    """
+    import math
+
+    import numpy as np
+
+    from ..io import read_triggers
+    from ..network.coincidence import CAUTIONS
+    from ..pipeline import LiveTimeTable
+
+    out = sys.stdout if out is None else out
+    for n in names:
+        _, meta = read_triggers(folder / "triggers" / f"{n}.parquet")
+        t = meta["live_time_table"]
+        table = LiveTimeTable(t["start"], t["end"], t["seconds"], t["intervals"])
+        print(f"\n{n}: where each second went", file=out)
+        print(table.format(), file=out)
+    cands, meta = read_triggers(folder / "candidates.parquet")
+    print(f"\n{len(cands)} zero-lag candidates in {meta['live_time']:g} s analysed by all sites at once; "
+          f"{meta['n_slides']} time slides, background live time {meta['background_time']:g} s.", file=out)
+    if len(cands):
+        cols = "".join(f" {n[:10] + ' SNR':>15}" for n in names)
+        print(f"{'#':>3} {'time (s)':>17} {'m1 + m2 (Msun)':>15}{cols} {'statistic':>9} {'IFAR (yr)':>10}", file=out)
+        for i, row in enumerate(cands[:top]):
+            snrs = "".join(f" {row[f'{n}_snr']:15.2f}" if np.isfinite(row[f"{n}_snr"]) else f" {'-':>15}"
+                           for n in names)
+            ifar = float(row["ifar"])
+            ifar_text = "n/a" if not math.isfinite(ifar) else (">" if row["far_bound"] else "") + f"{ifar:.3g}"
+            masses = f"{row['m1']:.3g} + {row['m2']:.3g}"
+            print(f"{i + 1:>3} {row['time']:17.4f} {masses:>15}{snrs} {row['statistic']:9.3f} {ifar_text:>10}",
+                  file=out)
+    print(CAUTIONS, file=out)
