@@ -18,7 +18,7 @@ from chirpsift.network import EXAMPLE_SITES, YEAR, Site, coincidences, load_site
 from chirpsift.run import SCHEMA, ManifestMismatch, load_analysis, plan, run_analysis
 from chirpsift.run.progress import Progress
 
-from _run_scenario import FS, T_SIGNAL, completed_run, outputs, second_output, temporaries, write_scenario
+from _run_scenario import FS, T0, T_SIGNAL, completed_run, outputs, second_output, temporaries, write_scenario
 
 README = Path(__file__).resolve().parents[1] / "README.md"
 
@@ -176,11 +176,13 @@ def test_a_deleted_or_damaged_unit_output_is_redone_alone(done):
     path = second_output(folder, "out-redo")
     out = folder / "out-redo"
     before = outputs(out)
-    (out / "triggers" / "Heron.parquet").unlink()
+    late = sorted((out / "triggers" / "Heron").glob("span-*.parquet"))[-1]  # the span after the gap
+    late.unlink()
     spectrum = out / "spectra" / "Kestrel.parquet"
     spectrum.write_bytes(spectrum.read_bytes()[:-10])  # truncated
     result = run_analysis(load_analysis(path))
-    assert result.ran == ["search/Heron", "spectrum/Kestrel"]  # later units: same inputs, same bytes
+    # later units: same inputs, same bytes
+    assert result.ran == [f"search/Heron/{late.stem[5:]}", "spectrum/Kestrel"]
     assert outputs(out) == before
 
 
@@ -217,7 +219,7 @@ def test_an_interrupted_run_leaves_no_partial_file_and_resumes(done, monkeypatch
         run_analysis(load_analysis(path))
     assert not (out / "background.parquet").exists() and not temporaries(out)
     manifest = json.loads((out / "manifest.json").read_text())
-    assert "search/Heron" in manifest["units"]
+    assert "merge/Heron" in manifest["units"]
     monkeypatch.setattr(pq, "write_table", real)
     result = run_analysis(load_analysis(path))
     assert result.ran == ["background", "candidates", "report"]
@@ -230,7 +232,7 @@ def test_the_command_runs_and_reports(done, capsys):
     folder, path, _ = done
     assert main(["run", str(path), "--quiet"]) == 0
     text = capsys.readouterr().out
-    assert "0 units run, 8 already complete" in text and "report.html" in text
+    assert "0 units run, 11 already complete" in text and "report.html" in text
     assert text.count("where each second went") == 2 and "Cautions:" in text
     top = re.search(r"^\s+1\s+(\d+\.\d+)\s+14 \+ 12\s", text, flags=re.M)  # the injected binary ranks first
     assert top and abs(float(top.group(1)) - T_SIGNAL) < 0.01
@@ -256,7 +258,8 @@ def test_quiet_progress_prints_a_line_per_n_units_or_per_minute():
 def test_a_run_that_finds_nothing_publishes_empty_tables_and_says_so(tmp_path):
     path = _edit(write_scenario(tmp_path, slides=0), "min-snr = 5.0", "min-snr = 30.0")
     first = run_analysis(load_analysis(path), stop_after="search")
-    assert first.ran == ["bank", "search/Kestrel", "search/Heron"]
+    assert first.ran[0] == "bank" and len(first.ran) == 4  # Kestrel: one span; Heron: two, split by the gap
+    assert all(k.startswith(("search/Kestrel/", "search/Heron/")) for k in first.ran[1:])
     rest = run_analysis(load_analysis(path))
     assert rest.skipped == first.ran and rest.ran[-1] == "report"
     out = tmp_path / "out"
@@ -283,7 +286,7 @@ def test_ctrl_c_on_the_command_exits_130_and_the_next_run_finishes(tmp_path):
     manifest = tmp_path / "out" / "manifest.json"
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline and proc.poll() is None:
-        if manifest.exists() and '"search/Kestrel"' in manifest.read_text():
+        if manifest.exists() and '"search/Kestrel/' in manifest.read_text():
             break
         time.sleep(0.02)
     proc.send_signal(signal.SIGINT)
@@ -292,7 +295,7 @@ def test_ctrl_c_on_the_command_exits_130_and_the_next_run_finishes(tmp_path):
     assert "interrupted" in err and "Traceback" not in err
     assert not temporaries(tmp_path / "out")
     units = json.loads(manifest.read_text())["units"]
-    assert "search/Kestrel" in units and "report" not in units
+    assert any(k.startswith("search/Kestrel/") for k in units) and "report" not in units
     for entry in units.values():  # everything the manifest lists is there, whole
         for rel, meta in entry["files"].items():
             assert (tmp_path / "out" / rel).stat().st_size == meta["bytes"]
@@ -300,3 +303,30 @@ def test_ctrl_c_on_the_command_exits_130_and_the_next_run_finishes(tmp_path):
                           timeout=120)
     assert done.returncode == 0, done.stderr
     assert "already complete" in done.stdout and (tmp_path / "out" / "candidates.parquet").exists()
+
+
+def test_span_units_merge_to_the_whole_catalogues_search_and_a_short_span_is_reported(tmp_path):
+    # Consistency test (expected values from search_catalogue over the whole catalogue, which
+    # the span units split); the outside truth: the short file's and the gap's lengths.
+    from chirpsift import synthetic
+    from chirpsift.pipeline import search_catalogue
+
+    path = write_scenario(tmp_path)
+    short = synthetic.colored_gaussian_noise(int(4 * FS), FS, "gen2-zero-detuned", seed=3, f_low=20.0)
+    np.savez(tmp_path / "kestrel" / "kestrel-99.npz", strain=short, sample_rate=FS, t0=T0 + 600.0)
+    analysis = load_analysis(path)
+    result = run_analysis(analysis, stop_after="merge")
+    assert sum(k.startswith("search/Kestrel/") for k in result.ran) == 2
+    merged, meta = read_triggers(tmp_path / "out" / "triggers" / "Kestrel.parquet")
+    cat = read_catalogue(list(analysis.data["Kestrel"].files))
+    settings = analysis.search.as_dict()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        whole, info = search_catalogue(cat, cs.Bank.load(tmp_path / "out" / "bank.parquet"), **settings)
+    assert merged.tobytes() == whole.tobytes()
+    seconds = meta["live_time_table"]["seconds"]
+    assert seconds["short"] == 4.0 and seconds["gap"] == 120.0
+    for category, value in info["live_time_table"].seconds.items():
+        assert seconds[category] == pytest.approx(value, abs=1e-9)
+    assert meta["analysed"] == [list(iv) for iv in info["analysed"]]
+    assert any("too short" in w or "left out" in w for w in meta["warnings"])

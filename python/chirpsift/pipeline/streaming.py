@@ -32,7 +32,7 @@ from ..gating import apply_gates
 from ..io.catalogue import Catalogue, Span
 from ..io.vetoes import check_vetoes
 from ..segments import DURATION_MARGIN, padding
-from ..triggers import trigger_table
+from ..triggers import TRIGGER_DTYPE, trigger_table
 from .live_time import LiveTimeTable
 from .settings import SearchSettings
 from .single_site import (
@@ -176,7 +176,8 @@ def _seconds(span: Span, intervals):
     return [(span.t0 + a / fs, span.t0 + b / fs) for a, b in intervals]
 
 
-def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=False, **options):
+def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=False, allow_empty=False,
+                     **options):
     """Matched-filter search of a strain catalogue, reading its files block by block.
 
     The result is that of :func:`chirpsift.search` run on each span of abutting files
@@ -201,6 +202,11 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         As for :func:`chirpsift.search`.
     progress : bool, optional
         Show a progress bar (segments x templates) on stderr.
+    allow_empty : bool, optional
+        When no stretch can hold a segment, or gates cover all that the segments
+        analyse, return no triggers (the live-time table says where the time went)
+        instead of raising. For searches of parts of a catalogue (one span each),
+        where another part may hold the data.
     **options
         Any other option of :func:`chirpsift.search` (``min_snr``, ``segment_duration``,
         ``gate_threshold``, ``psd_duration``, ``nonfinite``, ...), with its meaning
@@ -288,7 +294,7 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
     samples_read = sum(read for _, read in planned)
     plans = [p for p, _ in planned]
     searched = [(p.span, s) for p in plans for s in p.stretches]
-    if not searched:
+    if not searched and not allow_empty:
         raise ValueError(_nothing_to_search(plans, settings, longest, pads, fixed_length, fs))
     check_psd_duration([s for _, s in searched], settings, fs)
     nonfinite = [iv for p in plans for iv in _seconds(p.span, p.nonfinite)]
@@ -319,7 +325,9 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
             numbered_gates += [(base + s.start + a, base + s.start + g) for a, g in own_gates[k]]
             k += 1
         base += p.span.n
-    live_after_gates(numbered, pads, numbered_gates, settings, fs, stacklevel=3)
+    region = [(s.start + pads[0], s.stop - pads[1]) for s in numbered]
+    if not allow_empty or subtract_intervals(region, numbered_gates):
+        live_after_gates(numbered, pads, numbered_gates, settings, fs, stacklevel=3)
 
     bar = progress_bar([s for _, s in searched], b) if progress else None
     found, psd_cache = [], {}
@@ -335,8 +343,11 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
     finally:
         if bar is not None:
             bar.close()
-    peaks = {key: np.concatenate([f[key] for f in found]) for key in found[0]}
-    triggers = trigger_table(peaks, peaks["time"], peaks["reweighted_snr"], b)
+    if found:
+        peaks = {key: np.concatenate([f[key] for f in found]) for key in found[0]}
+        triggers = trigger_table(peaks, peaks["time"], peaks["reweighted_snr"], b)
+    else:  # allow_empty, and nothing to search
+        triggers = np.zeros(0, dtype=TRIGGER_DTYPE)
 
     # bookkeeping: every sample of every span in one category
     pad_start, pad_end = pads
@@ -378,7 +389,7 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         "max_template_duration": longest * DURATION_MARGIN,
         "pad_start": pad_start / fs,
         "pad_end": pad_end / fs,
-        "segment_duration": max(s.length for _, s in searched) / fs,
+        "segment_duration": max((s.length for _, s in searched), default=0) / fs,
         "sample_rate": fs,
         "settings": settings.as_dict(),
         "files": len(catalogue.files),

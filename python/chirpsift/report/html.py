@@ -171,7 +171,7 @@ def write_report(folder, *, top: int = 10) -> Path:
     doc = _read_manifest(folder)
     analysis = doc["analysis"]
     names = [s["name"] for s in analysis["sites"]]
-    needed = ["bank", *(f"search/{n}" for n in names), *(f"spectrum/{n}" for n in names), "background",
+    needed = ["bank", *(f"merge/{n}" for n in names), *(f"spectrum/{n}" for n in names), "background",
               "candidates"]
     missing = [k for k in needed if k not in doc["units"]]
     if missing:

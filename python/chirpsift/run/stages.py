@@ -6,23 +6,27 @@ atomically into the output folder and returns facts for the manifest; it never w
 the manifest. Running a unit twice on the same inputs publishes the same bytes (no
 clock time, no host name in any output), so a unit can be redone at any time.
 
-========================  ==========================  ===============================================
-unit key                  publishes                   what
-========================  ==========================  ===============================================
-``bank``                  ``bank.parquet``            the template bank, copied (Bank.save layout)
-``search/<site>``         ``triggers/<site>.parquet`` the site's catalogue searched block by block
-                                                      (:func:`chirpsift.pipeline.search_catalogue`);
-                                                      the run summary in the file's metadata
-``spectrum/<site>``       ``spectra/<site>.parquet``  amplitude spectral density over the run
-``background``            ``background.parquet``      time-slide coincidences
-``candidates``            ``candidates.parquet``      zero-lag coincidences with false-alarm rates
-``report``                ``report/...``              the HTML report and its PNG plots
-========================  ==========================  ===============================================
+=============================  =====================================  ===========================================
+unit key                       publishes                              what
+=============================  =====================================  ===========================================
+``bank``                       ``bank.parquet``                       the template bank (Bank.save layout)
+``search/<site>/<t0>``         ``triggers/<site>/span-<t0>.parquet``  one span of abutting files searched block by
+                                                                      block (:func:`~chirpsift.pipeline.
+                                                                      search_catalogue`), summary in metadata
+``merge/<site>``               ``triggers/<site>.parquet``            the site's spans in one table and summary
+``spectrum/<site>``            ``spectra/<site>.parquet``             amplitude spectral density over the run
+``background``                 ``background.parquet``                 time-slide coincidences
+``candidates``                 ``candidates.parquet``                 zero-lag coincidences with false-alarm rates
+``report``                     ``report/...``                         the HTML report and its PNG plots
+=============================  =====================================  ===========================================
 
-Unit size: one search unit per site, covering the site's whole catalogue. That keeps
-the triggers bit-identical to one in-memory search of each span of abutting files (the
-search of a stretch depends on the whole stretch: its segment plan, PSDs and gates), and
-memory stays bounded because the catalogue is read block by block.
+Unit size: one search unit per span of abutting files (``<t0>`` its start time, in s
+with millisecond digits). A span is searched exactly as the whole catalogue's search
+searches it (segments planned over each stretch, PSDs from its own data, gates in its
+own whitening blocks), so the merged triggers are bit-identical to one search of the
+whole catalogue, and so to an in-memory search of each span; memory stays bounded
+because a span is read block by block. A span with nothing long enough to search
+publishes an empty table whose live-time table says why.
 """
 
 from __future__ import annotations
@@ -37,7 +41,7 @@ import numpy as np
 
 from ..bank import Bank
 from ..io import read_triggers, write_triggers
-from ..io.catalogue import read_catalogue
+from ..io.catalogue import Catalogue, read_catalogue
 from ..network import coincidences
 from ..network.coincidence import CAUTIONS
 from ..network.far import YEAR, false_alarm_rate
@@ -48,7 +52,7 @@ __all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "
            "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
 
 #: Stages in the order they run.
-STAGES = ("bank", "search", "spectrum", "background", "candidates", "report")
+STAGES = ("bank", "search", "merge", "spectrum", "background", "candidates", "report")
 #: At most this many stretches of analysed data go into a site's spectrum.
 SPECTRUM_CHUNKS = 64
 #: Each spectrum stretch lasts this many Welch segments (``welch_duration``).
@@ -66,7 +70,7 @@ class Unit:
     Attributes
     ----------
     key : str
-        Stable key (``"search/Kestrel"``), the unit's name in the manifest.
+        Stable key (``"merge/Kestrel"``), the unit's name in the manifest.
     stage : str
         One of :data:`STAGES`.
     outputs : tuple of str
@@ -75,6 +79,8 @@ class Unit:
         Keys of the units whose outputs it reads.
     site : str or None
         The site of a per-site unit.
+    span : float or None
+        Start time (s) of the span a search unit covers.
     """
 
     key: str
@@ -82,6 +88,7 @@ class Unit:
     outputs: tuple[str, ...]
     after: tuple[str, ...] = ()
     site: str | None = None
+    span: float | None = None
 
 
 def plan(analysis) -> list[Unit]:
@@ -100,9 +107,16 @@ def plan(analysis) -> list[Unit]:
 
     names = analysis.site_names
     units = [Unit("bank", "bank", ("bank.parquet",))]
-    units += [Unit(f"search/{n}", "search", (f"triggers/{n}.parquet",), ("bank",), n) for n in names]
-    units += [Unit(f"spectrum/{n}", "spectrum", (f"spectra/{n}.parquet",), (f"search/{n}",), n) for n in names]
-    searches = tuple(f"search/{n}" for n in names)
+    spans = {}
+    for n in names:
+        spans[n] = []
+        for span in catalogue_of(analysis.data[n]).spans:
+            label = f"{span.t0:.3f}"
+            spans[n].append(f"search/{n}/{label}")
+            units.append(Unit(spans[n][-1], "search", (f"triggers/{n}/span-{label}.parquet",), ("bank",), n, span.t0))
+    units += [Unit(f"merge/{n}", "merge", (f"triggers/{n}.parquet",), tuple(spans[n]), n) for n in names]
+    units += [Unit(f"spectrum/{n}", "spectrum", (f"spectra/{n}.parquet",), (f"merge/{n}",), n) for n in names]
+    searches = tuple(f"merge/{n}" for n in names)
     units.append(Unit("background", "background", ("background.parquet",), searches))
     units.append(Unit("candidates", "candidates", ("candidates.parquet",), ("bank", *searches, "background")))
     everything = tuple(u.key for u in units)
@@ -154,7 +168,7 @@ def unit_inputs(unit: Unit, analysis, manifest) -> dict:
     inputs = {"unit": unit.key, "after": {k: manifest.digest(k) for k in unit.after}}
     if unit.stage == "bank":
         inputs["bank"] = _data_files([str(analysis.bank_file)])
-    if unit.site is not None or unit.stage == "report":
+    if unit.stage in ("search", "spectrum", "report"):
         sites = [unit.site] if unit.site is not None else analysis.site_names
         inputs["data"] = {n: {"files": _data_files(analysis.data[n].files),
                               "vetoes": _veto_stamp(analysis.data[n].vetoes)} for n in sites}
@@ -219,7 +233,12 @@ def _bank(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
 def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     site = unit.site
     data = analysis.data[site]
-    catalogue = catalogue_of(data)
+    whole = catalogue_of(data)
+    span = next((s for s in whole.spans if s.t0 == unit.span), None)
+    if span is None:
+        raise ValueError(f"site {site}: no span of its files starts at {unit.span!r} s any more; the files changed "
+                         "during the run")
+    catalogue = Catalogue(files=span.files, spans=(span,), sample_rate=span.sample_rate)
     bank = Bank.load(folder / "bank.parquet")
     settings = analysis.search.as_dict()
     f_low = settings.pop("f_low")
@@ -227,11 +246,12 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         triggers, info = search_catalogue(catalogue, bank, f_low=f_low, vetoes=vetoes, progress=progress,
-                                          **settings)
+                                          allow_empty=True, **settings)
     table = info["live_time_table"]
     meta = {
         "table": "triggers",
         "site": site,
+        "span": [span.t0, span.end],
         "files": [str(f.path) for f in catalogue.files],
         "settings": info["settings"],
         "analysed": info["analysed"],
@@ -254,6 +274,50 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     }
     write_triggers(folder / unit.outputs[0], triggers, meta)
     return {"rows": int(len(triggers)), "live_time": float(info["live_time"])}
+
+
+def _merge(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    parts = [read_triggers(folder / f"triggers/{unit.site}/span-{k.rsplit('/', 1)[1]}.parquet") for k in unit.after]
+    catalogue = catalogue_of(analysis.data[unit.site])
+    metas = [m for _, m in parts]
+    triggers = np.concatenate([t for t, _ in parts])
+    tables = [m["live_time_table"] for m in metas]
+    seconds = {c: float(sum(t["seconds"][c] for t in tables)) for c in tables[0]["seconds"]}
+    intervals = {c: [iv for t in tables for iv in t["intervals"][c]] for c in tables[0]["intervals"]}
+    seconds["gap"] = float(sum(b - a for a, b in catalogue.gaps))
+    intervals["gap"] = [list(g) for g in catalogue.gaps]
+    live_time = float(sum(m["live_time"] for m in metas))
+
+    def joined(key):
+        return [x for m in metas for x in m[key]]
+
+    meta = {
+        "table": "triggers",
+        "site": unit.site,
+        "spans": [m["span"] for m in metas],
+        "files": joined("files"),
+        "settings": metas[0]["settings"],
+        "analysed": joined("analysed"),
+        "live_time": live_time,
+        "analysed_fraction": live_time / catalogue.covered,
+        "live_time_table": {"start": catalogue.start, "end": catalogue.end, "seconds": seconds,
+                            "intervals": intervals},
+        "gates": joined("gates"),
+        "gated_time": float(sum(m["gated_time"] for m in metas)),
+        "excluded": joined("excluded"),
+        "vetoed": joined("vetoed"),
+        "gaps": catalogue.gaps,
+        "short_stretches": joined("short_stretches"),
+        "stretches": joined("stretches"),
+        "segments": int(sum(m["segments"] for m in metas)),
+        "segment_duration": max(m["segment_duration"] for m in metas),
+        "sample_rate": metas[0]["sample_rate"],
+        "templates": metas[0]["templates"],
+        "max_template_duration": metas[0]["max_template_duration"],
+        "warnings": [f"span from {m['span'][0]!r} s: {w}" for m in metas for w in m["warnings"]],
+    }
+    write_triggers(folder / unit.outputs[0], triggers, meta)
+    return {"rows": int(len(triggers)), "live_time": live_time}
 
 
 def _spectrum_chunks(analysed, length: float) -> list[tuple[float, float]]:
@@ -341,7 +405,7 @@ def _report(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     return {}
 
 
-_RUNNERS = {"bank": _bank, "search": _search, "spectrum": _spectrum, "background": _background,
+_RUNNERS = {"bank": _bank, "search": _search, "merge": _merge, "spectrum": _spectrum, "background": _background,
             "candidates": _candidates, "report": _report}
 
 
