@@ -32,11 +32,16 @@ from ..io import read_triggers
 from ..io.atomic import atomic_path, write_json_atomic
 from . import plots
 
-__all__ = ["write_report", "REPORT_FILES", "CAUTIONS"]
+__all__ = ["write_report", "report_files", "REPORT_FILES", "CAUTIONS"]
 
-#: Files written into ``report/``, in the order written (the page last).
+#: Files written into ``report/`` for a run without injections, in the order written (the page last).
 REPORT_FILES = ("spectra.png", "timeline.png", "bank.png", "top_candidate.png", "statistic.png", "ifar.png",
                 "summary.json", "report.html")
+
+
+def report_files(injections: bool) -> tuple[str, ...]:
+    """Files written into ``report/``, in order; ``injections.png`` too when the run has injections."""
+    return REPORT_FILES[:6] + (("injections.png",) if injections else ()) + REPORT_FILES[6:]
 
 #: The cautions printed at the top of every report.
 CAUTIONS = (
@@ -173,6 +178,9 @@ def write_report(folder, *, top: int = 10) -> Path:
     names = [s["name"] for s in analysis["sites"]]
     needed = ["bank", *(f"merge/{n}" for n in names), *(f"spectrum/{n}" for n in names), "background",
               "candidates"]
+    with_injections = analysis.get("injections") is not None
+    if with_injections:
+        needed.append("sensitivity")
     missing = [k for k in needed if k not in doc["units"]]
     if missing:
         raise ValueError(f"{folder}: the run is not complete (missing units: {', '.join(missing)}); "
@@ -216,6 +224,15 @@ def write_report(folder, *, top: int = 10) -> Path:
         plots.plot_message(out / "ifar.png", "Candidates against the background",
                            "No time slides were run: no false-alarm rates.")
 
+    sens = None
+    if with_injections:
+        fm, _ = read_triggers(folder / "injections" / "found_missed.parquet")
+        sens = json.loads((folder / "injections" / "sensitivity.json").read_text(encoding="utf-8"))
+        counted = fm[fm["analysed"]]
+        rng = (sens["sensitivity"] or {}).get("range")
+        plots.plot_injections(counted["distance"], counted["network_optimal_snr"], counted["found"],
+                              sens["efficiency"], rng, out / "injections.png")
+
     # numbers
     dof = 2 * settings["chi2_bands"] - 2
     rows = []
@@ -239,6 +256,7 @@ def write_report(folder, *, top: int = 10) -> Path:
         "candidates": int(len(cands)),
         "background_coincidences": int(len(bg)),
         "listed": rows,
+        "sensitivity": sens,
         "versions": _versions(),
         "cautions": list(CAUTIONS),
     }
@@ -262,6 +280,28 @@ def _table(head, body, left=(), wrap=()) -> str:
 def _figure(out: Path, name: str, alt: str, caption: str) -> str:
     return (f'<figure><img src="{_png_uri(out / name)}" alt="{_esc(alt)}" width="700">'
             f"<figcaption>{caption} (also <code>{_esc(name)}</code>)</figcaption></figure>")
+
+
+def _sensitivity_section(sens: dict, cfg: dict, out: Path) -> str:
+    s = sens["sensitivity"] or {}
+    threshold = (f"a matched coincidence with IFAR at least {cfg['found_ifar']:g} yr" if cfg["found_ifar"] > 0
+                 else "any matched coincidence")
+    rows = [["injections made", str(sens["injections"])],
+            ["in time analysed by all sites", str(sens["analysed_injections"])],
+            ["found", str(s.get("found", 0))],
+            ["sensitive range (Mpc)", f"{_fmt(s.get('range'))} &plusmn; {_fmt(s.get('range_error'), 2)}"],
+            ["sensitive volume (Mpc&sup3;)", f"{_fmt(s.get('volume'))} &plusmn; {_fmt(s.get('volume_error'), 2)}"],
+            ["VT (Mpc&sup3; yr)", f"{_fmt(s.get('volume_time'))} &plusmn; {_fmt(s.get('volume_time_error'), 2)}"],
+            ["analysed time (s)", _fmt(sens["analysed_time"], 6)]]
+    return ("<h2>Sensitivity</h2>"
+            f"<p>{cfg['count']} simulated binaries (m1 {_esc(cfg['m1'])}, m2 {_esc(cfg['m2'])} Msun, distance "
+            f"{_esc(cfg['distance'])} Mpc, {_esc(cfg['distance_distribution'])}), added to the data and searched "
+            f"with the same settings; found means {threshold} within 0.1 s. Errors are Monte-Carlo standard "
+            f"errors. {_esc(sens['cautions'])}</p>"
+            + _table(["quantity", "value"], rows, left=(0,))
+            + _figure(out, "injections.png", "found and missed injections against distance, and the efficiency",
+                      "Found and missed injections against distance with their network optimal SNR (from each "
+                      "site's median PSD), and the fraction found per distance bin."))
 
 
 def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, out) -> str:
@@ -304,6 +344,8 @@ def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, o
     parts.append(_figure(out, "ifar.png", "cumulative candidate count against inverse false-alarm rate",
                          "Zero-lag candidates with at least a given IFAR, against what noise alone gives on "
                          "average (live time / IFAR) with its Poisson 1 and 2 sigma bands."))
+    if summary["sensitivity"] is not None:
+        parts.append(_sensitivity_section(summary["sensitivity"], analysis["injections"], out))
     parts.append("<h2>Template bank</h2>" + _figure(out, "bank.png", "template bank in the component-mass plane",
                                                     "The templates searched."))
     # settings and versions

@@ -21,7 +21,7 @@ from ..io.atomic import atomic_path
 
 __all__ = ["PALETTE", "MARKERS", "LINESTYLES", "relative_luminance", "poisson_interval", "save_png",
            "plot_spectra", "plot_timeline", "plot_bank", "plot_candidate_series", "plot_statistic",
-           "plot_ifar", "plot_message"]
+           "plot_ifar", "plot_message", "plot_injections"]
 
 #: The report's colours: ink, blue, amber, pale blue (see the module docstring).
 PALETTE = ("#1c2541", "#3a6ea5", "#f0a430", "#b9d6ea")
@@ -331,4 +331,61 @@ def plot_ifar(ifar, live_time_years: float, background_time_years: float, path) 
     ax.set_title("Candidates against the time-slide background")
     ax.grid(True, which="major", alpha=0.3)
     ax.legend(fontsize="small")
+    save_png(fig, path)
+
+
+def plot_injections(distance, network_snr, found, efficiency_rows, sensitive_range, path) -> None:
+    """Found and missed injections against distance, and the efficiency curve.
+
+    Parameters
+    ----------
+    distance : array_like
+        Luminosity distance of each injection counted (Mpc).
+    network_snr : array_like
+        Its network optimal SNR.
+    found : array_like of bool
+        Whether it was found.
+    efficiency_rows : list of dict
+        Rows of :func:`chirpsift.inject.efficiency` (``low``, ``high``, ``efficiency``,
+        ``lower``, ``upper``).
+    sensitive_range : float or None
+        Sensitive range (Mpc), marked on both panels when finite.
+    path : path
+        PNG to write.
+    """
+    fig = _figure(7.0, 3.6, bottom=0.6, hspace=0.15)
+    fig.subplots_adjust(wspace=0.35)
+    left, right = fig.subplots(1, 2)
+    d = np.asarray(distance, dtype=np.float64)
+    rho = np.asarray(network_snr, dtype=np.float64)
+    f = np.asarray(found, dtype=bool)
+    left.scatter(d[~f], rho[~f], s=18, marker="x", color=PALETTE[2], linewidths=1.2, label="missed")
+    left.scatter(d[f], rho[f], s=14, marker="o", color=PALETTE[0], linewidths=0, label="found")
+    if np.any(rho > 0):
+        left.set_yscale("log")
+        _plain_log_ticks(left)
+        left.yaxis.set_major_formatter("{x:g}")
+    left.set_xlabel("distance (Mpc)")
+    left.set_ylabel("network optimal SNR")
+    left.set_title("Injections found and missed")
+    left.legend(fontsize="small")
+    left.grid(True, alpha=0.3)
+    if efficiency_rows:
+        mid = np.array([(r["low"] + r["high"]) / 2 for r in efficiency_rows])
+        eff = np.array([np.nan if r["efficiency"] is None else r["efficiency"] for r in efficiency_rows], float)
+        lo = np.array([np.nan if r["lower"] is None else r["lower"] for r in efficiency_rows], float)
+        hi = np.array([np.nan if r["upper"] is None else r["upper"] for r in efficiency_rows], float)
+        ok = np.isfinite(eff)
+        yerr = [np.maximum(eff[ok] - lo[ok], 0.0), np.maximum(hi[ok] - eff[ok], 0.0)]
+        right.errorbar(mid[ok], eff[ok], yerr=yerr, color=PALETTE[1], marker="s", linestyle="-", capsize=3,
+                       label="efficiency (Wilson 1 sigma)")
+    if sensitive_range is not None and np.isfinite(sensitive_range):
+        for ax in (left, right):
+            ax.axvline(sensitive_range, color=PALETTE[2], linestyle="--", label="sensitive range")
+    right.set_ylim(-0.05, 1.05)
+    right.set_xlabel("distance (Mpc)")
+    right.set_ylabel("fraction found")
+    right.set_title("Efficiency")
+    right.grid(True, alpha=0.3)
+    right.legend(fontsize="small")
     save_png(fig, path)

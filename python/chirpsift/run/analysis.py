@@ -31,6 +31,15 @@ one. Layout::
     slide-step = 3.0                  # s between slides (default: from the windows)
     allowance = 0.005                 # s added to each pair's light travel time
 
+    [injections]                      # optional: simulated signals and sensitivity
+    count = 100                       # number of simulated binaries
+    m1 = [1.2, 2.0]                   # Msun: a range (uniform) or one value
+    m2 = [1.2, 2.0]
+    distance = [5.0, 200.0]           # Mpc
+    distance-distribution = "volume"  # volume, uniform or log
+    seed = 1
+    found-ifar = 0.0                  # years: IFAR a matched coincidence needs to count as found
+
     [report]
     top = 10                          # candidates listed in the report
 """
@@ -69,6 +78,7 @@ SCHEMA: dict[str, dict[str, str]] = {
         "bank": "table: the template bank",
         "search": "table: search settings",
         "network": "table: coincidence and time-slide settings",
+        "injections": "table: simulated signals and sensitivity (optional)",
         "report": "table: report settings (optional)",
     },
     "sites": {
@@ -92,6 +102,18 @@ SCHEMA: dict[str, dict[str, str]] = {
         "slide-step": "seconds between slides (default: the smallest whole second above the coincidence "
                       "window plus twice the peak window)",
         "allowance": f"timing allowance added to each pair's light travel time, s (default {DEFAULT_ALLOWANCE:g})",
+    },
+    "injections": {
+        "count": "number of simulated binaries, spread over the time all sites analysed",
+        "m1": "first component mass in solar masses: one value or a [low, high] range (uniform)",
+        "m2": "second component mass in solar masses: one value or a [low, high] range (uniform)",
+        "spin1": "aligned spin of the first component: one value or a [low, high] range (default 0)",
+        "spin2": "aligned spin of the second component: one value or a [low, high] range (default 0)",
+        "distance": "[low, high] luminosity distance in Mpc",
+        "distance-distribution": "density of the distance: 'volume' (default), 'uniform' or 'log'",
+        "seed": "seed of the draw (default 0); the same seed gives the same set",
+        "found-ifar": "years: a matched coincidence counts as found when its IFAR reaches this (default 0: "
+                      "every match)",
     },
     "report": {
         "top": "number of loudest candidates listed in the report (default 10)",
@@ -151,6 +173,10 @@ class Analysis:
         Timing allowance, s.
     top : int
         Candidates listed in the report.
+    injections : dict or None
+        The ``[injections]`` table checked, with underscore names (``count``, ``m1``,
+        ``m2``, ``spin1``, ``spin2``, ``distance``, ``distance_distribution``, ``seed``,
+        ``found_ifar``), or None for no injection campaign.
     """
 
     path: Path
@@ -163,6 +189,7 @@ class Analysis:
     slide_step: float | None = None
     allowance: float = DEFAULT_ALLOWANCE
     top: int = 10
+    injections: dict | None = None
 
     @property
     def site_names(self) -> list[str]:
@@ -186,6 +213,7 @@ class Analysis:
             "bank": str(self.bank_file),
             "search": self.search.as_dict(),
             "network": {"slides": self.slides, "slide_step": self.slide_step, "allowance": self.allowance},
+            "injections": self.injections,
         }
 
     def settings_hash(self) -> str:
@@ -286,6 +314,47 @@ def _site_data(base: Path, where: str, table) -> SiteData:
         sample_rate_attr=_string(where, "sample-rate-attr", table.get("sample-rate-attr", "sample_rate")),
         t0_attr=_string(where, "t0-attr", table.get("t0-attr", "t0")),
     )
+
+
+def _range(where: str, key: str, value, *, positive=True, bound=None):
+    values = value if isinstance(value, list) else [value]
+    if not 1 <= len(values) <= 2:
+        raise ValueError(f"{where}: {key} must be one value or a [low, high] range, got {value!r}")
+    out = [_number(where, key, v, minimum=None if bound else 0.0) for v in values]
+    if positive and min(out) <= 0:
+        raise ValueError(f"{where}: {key} must be positive, got {value!r}")
+    if bound is not None and max(abs(v) for v in out) >= bound:
+        raise ValueError(f"{where}: {key} must lie strictly between -{bound:g} and {bound:g}, got {value!r}")
+    if len(out) == 2 and not out[0] <= out[1]:
+        raise ValueError(f"{where}: {key} range must be [low, high] with low <= high, got {value!r}")
+    return out[0] if len(out) == 1 else out
+
+
+def _injections(where: str, table: dict) -> dict | None:
+    if not table:
+        return None
+    _check_keys(where, table, SCHEMA["injections"])
+    for key in ("count", "m1", "m2", "distance"):
+        if key not in table:
+            raise ValueError(f"{where}: {key} must be given")
+    distance = _range(where, "distance", table["distance"], positive=False)
+    if not isinstance(distance, list) or not distance[0] < distance[1]:
+        raise ValueError(f"{where}: distance must be a [low, high] range in Mpc with low < high, "
+                         f"got {table['distance']!r}")
+    kind = table.get("distance-distribution", "volume")
+    if kind not in ("volume", "uniform", "log"):
+        raise ValueError(f"{where}: distance-distribution must be 'volume', 'uniform' or 'log', got {kind!r}")
+    return {
+        "count": _number(where, "count", table["count"], integer=True, minimum=1),
+        "m1": _range(where, "m1", table["m1"]),
+        "m2": _range(where, "m2", table["m2"]),
+        "spin1": _range(where, "spin1", table.get("spin1", 0.0), positive=False, bound=1.0),
+        "spin2": _range(where, "spin2", table.get("spin2", 0.0), positive=False, bound=1.0),
+        "distance": distance,
+        "distance_distribution": kind,
+        "seed": _number(where, "seed", table.get("seed", 0), integer=True, minimum=0),
+        "found_ifar": _number(where, "found-ifar", table.get("found-ifar", 0.0), minimum=0),
+    }
 
 
 def load_analysis(path) -> Analysis:
@@ -401,9 +470,12 @@ def load_analysis(path) -> Analysis:
     step = None if step is None else _number(where, "slide-step", step, positive=True)
     allowance = _number(where, "allowance", net.get("allowance", DEFAULT_ALLOWANCE), minimum=0)
 
+    injections = _injections(f"{p} [injections]", _table(doc, "injections", str(p), required=False))
+
     where = f"{p} [report]"
     rep = _table(doc, "report", str(p), required=False)
     _check_keys(where, rep, SCHEMA["report"])
     top = _number(where, "top", rep.get("top", 10), integer=True, minimum=1)
     return Analysis(path=p, output=output, sites=tuple(known[n] for n in names), data=data, bank_file=bank_file,
-                    search=search, slides=slides, slide_step=step, allowance=allowance, top=top)
+                    search=search, slides=slides, slide_step=step, allowance=allowance, top=top,
+                    injections=injections)

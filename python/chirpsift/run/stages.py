@@ -17,6 +17,11 @@ unit key                       publishes                              what
 ``spectrum/<site>``            ``spectra/<site>.parquet``             amplitude spectral density over the run
 ``background``                 ``background.parquet``                 time-slide coincidences
 ``candidates``                 ``candidates.parquet``                 zero-lag coincidences with false-alarm rates
+``injections``                 ``injections/injections.parquet``      simulated binaries (``[injections]`` only)
+``inject-search/<site>/<t0>``  ``injections/triggers/<site>/...``     a span searched with the signals added
+``inject-merge/<site>``        ``injections/triggers/<site>.parquet`` the site's spans in one table
+``found-missed``               ``injections/found_missed.parquet``    each injection found or missed
+``sensitivity``                ``injections/sensitivity.json``        efficiency, sensitive range and VT
 ``report``                     ``report/...``                         the HTML report and its PNG plots
 =============================  =====================================  ===========================================
 
@@ -41,7 +46,9 @@ import numpy as np
 
 from ..bank import Bank
 from ..io import read_triggers, write_triggers
-from ..io.catalogue import Catalogue, read_catalogue
+from ..inject import draw_injections, efficiency, found_missed, injection_snr, project, sensitivity
+from ..io.atomic import write_json_atomic
+from ..io.catalogue import Catalogue, Span, read_catalogue
 from ..network import coincidences
 from ..network.coincidence import CAUTIONS
 from ..network.far import YEAR, false_alarm_rate
@@ -52,7 +59,10 @@ __all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "
            "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
 
 #: Stages in the order they run.
-STAGES = ("bank", "search", "merge", "spectrum", "background", "candidates", "report")
+STAGES = ("bank", "search", "merge", "spectrum", "background", "candidates", "injections", "inject-search",
+          "inject-merge", "found-missed", "sensitivity", "report")
+#: Distance bins of the efficiency table.
+EFFICIENCY_BINS = 8
 #: At most this many stretches of analysed data go into a site's spectrum.
 SPECTRUM_CHUNKS = 64
 #: Each spectrum stretch lasts this many Welch segments (``welch_duration``).
@@ -103,25 +113,42 @@ def plan(analysis) -> list[Unit]:
     -------
     list of Unit
     """
-    from ..report.html import REPORT_FILES
+    from ..report.html import report_files
 
     names = analysis.site_names
     units = [Unit("bank", "bank", ("bank.parquet",))]
-    spans = {}
-    for n in names:
-        spans[n] = []
-        for span in catalogue_of(analysis.data[n]).spans:
-            label = f"{span.t0:.3f}"
-            spans[n].append(f"search/{n}/{label}")
-            units.append(Unit(spans[n][-1], "search", (f"triggers/{n}/span-{label}.parquet",), ("bank",), n, span.t0))
-    units += [Unit(f"merge/{n}", "merge", (f"triggers/{n}.parquet",), tuple(spans[n]), n) for n in names]
+    starts = {n: [span.t0 for span in catalogue_of(analysis.data[n]).spans] for n in names}
+    spans = {n: [f"{t0:.3f}" for t0 in starts[n]] for n in names}
+
+    def span_units(stage, prefix, after):
+        out = []
+        for n in names:
+            for label, t0 in zip(spans[n], starts[n]):
+                out.append(Unit(f"{stage}/{n}/{label}", stage, (f"{prefix}triggers/{n}/span-{label}.parquet",),
+                                after, n, t0))
+        merge = "merge" if stage == "search" else "inject-merge"
+        out += [Unit(f"{merge}/{n}", merge, (f"{prefix}triggers/{n}.parquet",),
+                     tuple(f"{stage}/{n}/{label}" for label in spans[n]), n) for n in names]
+        return out
+
+    units += span_units("search", "", ("bank",))
     units += [Unit(f"spectrum/{n}", "spectrum", (f"spectra/{n}.parquet",), (f"merge/{n}",), n) for n in names]
-    searches = tuple(f"merge/{n}" for n in names)
-    units.append(Unit("background", "background", ("background.parquet",), searches))
-    units.append(Unit("candidates", "candidates", ("candidates.parquet",), ("bank", *searches, "background")))
+    merged = tuple(f"merge/{n}" for n in names)
+    units.append(Unit("background", "background", ("background.parquet",), merged))
+    units.append(Unit("candidates", "candidates", ("candidates.parquet",), ("bank", *merged, "background")))
+    if analysis.injections is not None:
+        units.append(Unit("injections", "injections", ("injections/injections.parquet",),
+                          (*merged, *(f"spectrum/{n}" for n in names))))
+        units += span_units("inject-search", "injections/", ("bank", "injections"))
+        units.append(Unit("found-missed", "found-missed", ("injections/found_missed.parquet",),
+                          ("injections", "background", *(f"inject-merge/{n}" for n in names))))
+        units.append(Unit("sensitivity", "sensitivity", ("injections/sensitivity.json",),
+                          ("found-missed", "candidates")))
     everything = tuple(u.key for u in units)
-    units.append(Unit("report", "report", tuple(f"report/{f}" for f in REPORT_FILES), everything))
+    files = report_files(analysis.injections is not None)
+    units.append(Unit("report", "report", tuple(f"report/{f}" for f in files), everything))
     return units
+
 
 
 def _data_files(patterns) -> list[list]:
@@ -168,7 +195,7 @@ def unit_inputs(unit: Unit, analysis, manifest) -> dict:
     inputs = {"unit": unit.key, "after": {k: manifest.digest(k) for k in unit.after}}
     if unit.stage == "bank":
         inputs["bank"] = _data_files([str(analysis.bank_file)])
-    if unit.stage in ("search", "spectrum", "report"):
+    if unit.stage in ("search", "inject-search", "spectrum", "report"):
         sites = [unit.site] if unit.site is not None else analysis.site_names
         inputs["data"] = {n: {"files": _data_files(analysis.data[n].files),
                               "vetoes": _veto_stamp(analysis.data[n].vetoes)} for n in sites}
@@ -238,6 +265,11 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     if span is None:
         raise ValueError(f"site {site}: no span of its files starts at {unit.span!r} s any more; the files changed "
                          "during the run")
+    if unit.stage == "inject-search":
+        injections, _ = read_triggers(folder / "injections" / "injections.parquet")
+        site_obj = next(s for s in analysis.sites if s.name == site)
+        span = _InjectedSpan(span.t0, span.sample_rate, span.files, span.offsets, span.n, injections=injections,
+                             site=site_obj, f_low=analysis.search.f_low)
     catalogue = Catalogue(files=span.files, spans=(span,), sample_rate=span.sample_rate)
     bank = Bank.load(folder / "bank.parquet")
     settings = analysis.search.as_dict()
@@ -277,7 +309,9 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
 
 
 def _merge(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
-    parts = [read_triggers(folder / f"triggers/{unit.site}/span-{k.rsplit('/', 1)[1]}.parquet") for k in unit.after]
+    prefix = "injections/" if unit.stage == "inject-merge" else ""
+    parts = [read_triggers(folder / f"{prefix}triggers/{unit.site}/span-{k.rsplit('/', 1)[1]}.parquet")
+             for k in unit.after]
     catalogue = catalogue_of(analysis.data[unit.site])
     metas = [m for _, m in parts]
     triggers = np.concatenate([t for t, _ in parts])
@@ -398,6 +432,106 @@ def _candidates(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     return {"rows": int(len(out))}
 
 
+@dataclass(frozen=True, eq=False)
+class _InjectedSpan(Span):
+    """A span whose samples carry the simulated signals (added block by block as read)."""
+
+    injections: np.ndarray | None = None
+    site: object = None
+    f_low: float = 0.0
+
+    def read(self, start: int, stop: int) -> np.ndarray:
+        """Read samples ``[start, stop)`` with the signals added (:func:`chirpsift.project`)."""
+        x = super().read(start, stop)
+        if stop > start and self.injections is not None and len(self.injections):
+            fs = self.sample_rate
+            x = x + project(self.injections, self.site, start=self.t0 + start / fs, duration=(stop - start) / fs,
+                            sample_rate=fs, f_low=self.f_low, require_overlap=False)
+        return x
+
+
+def _common(analysed: dict) -> list[tuple[float, float]]:
+    """Time analysed by every site (intervals in s)."""
+    names = list(analysed)
+    common = [tuple(iv) for iv in analysed[names[0]]]
+    for n in names[1:]:
+        out, other = [], [tuple(iv) for iv in analysed[n]]
+        i = j = 0
+        while i < len(common) and j < len(other):
+            lo, hi = max(common[i][0], other[j][0]), min(common[i][1], other[j][1])
+            if hi > lo:
+                out.append((lo, hi))
+            if common[i][1] < other[j][1]:
+                i += 1
+            else:
+                j += 1
+        common = out
+    return common
+
+
+def _psd_of(folder: Path, site: str):
+    sp, _ = read_triggers(folder / "spectra" / f"{site}.parquet")
+    return sp["frequency"], sp["asd_median"] ** 2
+
+
+def _injections(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    cfg = analysis.injections
+    _, analysed, _ = _site_tables(folder, analysis.site_names)
+    common = _common(analysed)
+    if not common:
+        raise ValueError("no time is analysed by all sites at once: nowhere to put injections")
+    inj = draw_injections(cfg["count"], m1=cfg["m1"], m2=cfg["m2"], chi1=cfg["spin1"], chi2=cfg["spin2"],
+                          distance=cfg["distance"], distance_distribution=cfg["distance_distribution"],
+                          start=common[0][0], end=common[-1][1], f_low=analysis.search.f_low, seed=cfg["seed"])
+    write_triggers(folder / unit.outputs[0], inj, {"table": "injections", "settings": cfg,
+                                                   "start": common[0][0], "end": common[-1][1]})
+    return {"rows": int(len(inj))}
+
+
+def _found_missed(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    names = analysis.site_names
+    inj, _ = read_triggers(folder / "injections" / "injections.parquet")
+    tables, analysed = {}, {}
+    for n in names:
+        tables[n], meta = read_triggers(folder / "injections" / "triggers" / f"{n}.parquet")
+        analysed[n] = np.asarray(meta["analysed"], dtype=np.float64).reshape(-1, 2)
+    cands, _, _ = _network_call(analysis, tables, analysed, 0)
+    bg, bg_meta = read_triggers(folder / "background.parquet")
+    if bg_meta["n_slides"]:  # ranked against the analysis's own background
+        far, _ = false_alarm_rate(cands["statistic"], bg["statistic"], float(bg_meta["background_time"]))
+        cands["far"] = far
+        with np.errstate(divide="ignore"):
+            cands["ifar"] = 1.0 / far
+    f_low = analysis.search.f_low
+    optimal = {}
+    for site in analysis.sites:
+        freqs, psd = _psd_of(folder, site.name)
+        optimal[site.name] = injection_snr(inj, site, (freqs, psd), f_low=f_low, f_high=float(freqs[-1]) * 0.999)
+    threshold = analysis.injections["found_ifar"]
+    table = found_missed(inj, cands, optimal_snr=optimal, analysed=analysed,
+                         ifar_threshold=threshold if threshold > 0 else None)
+    write_triggers(folder / unit.outputs[0], table, {"table": "found-missed", "found_ifar": threshold,
+                                                     "n_slides": bg_meta["n_slides"]})
+    return {"rows": int(len(table)), "found": int(table["found"].sum())}
+
+
+def _sensitivity(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    table, meta = read_triggers(folder / "injections" / "found_missed.parquet")
+    _, c_meta = read_triggers(folder / "candidates.parquet")
+    counted = table[table["analysed"]]
+    doc = {"found_ifar": meta["found_ifar"], "injections": int(len(table)), "analysed_injections": int(len(counted)),
+           "analysed_time": c_meta["live_time"], "sensitivity": None, "efficiency": []}
+    if len(counted):
+        sens = sensitivity(counted, counted["found"], analysed_time=c_meta["live_time"])
+        doc["sensitivity"] = sens.as_dict()
+        eff = efficiency(counted["distance"], counted["found"], bins=EFFICIENCY_BINS)
+        doc["efficiency"] = [{k: row[k].item() for k in eff.dtype.names} for row in eff]
+    doc["cautions"] = ("The sensitivity holds for this population and these data only; VT assumes the "
+                       "sensitivity measured by the injections holds over all the analysed time.")
+    write_json_atomic(folder / unit.outputs[0], doc)
+    return {"found": int(counted["found"].sum()) if len(counted) else 0}
+
+
 def _report(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     from ..report.html import write_report
 
@@ -406,7 +540,8 @@ def _report(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
 
 
 _RUNNERS = {"bank": _bank, "search": _search, "merge": _merge, "spectrum": _spectrum, "background": _background,
-            "candidates": _candidates, "report": _report}
+            "candidates": _candidates, "injections": _injections, "inject-search": _search,
+            "inject-merge": _merge, "found-missed": _found_missed, "sensitivity": _sensitivity, "report": _report}
 
 
 def execute(unit: Unit, analysis, *, progress: bool = False) -> dict:
