@@ -367,3 +367,20 @@ def test_an_injection_campaign_finds_what_its_optimal_snr_says_and_measures_a_se
     page = (out / "report" / "report.html").read_text()
     assert "<h2>Sensitivity</h2>" in page and page.count("<img ") == 7
     assert run_analysis(analysis).ran == []
+
+
+def test_quiet_progress_passes_a_long_units_own_bar_on_once_a_minute():
+    import sys
+
+    now = [0.0]
+    stream = io.StringIO()
+    p = Progress(2, "lines", every=10, seconds=60.0, stream=stream, clock=lambda: now[0])
+    p.started("search/Kestrel/1.000")
+    with p.inside("search/Kestrel/1.000"):
+        for k in range(1, 301):  # a bar updating every second for five minutes
+            now[0] += 1.0
+            sys.stderr.write(f"\rchirpsift search:  {k}/300 [{k}s<{300 - k}s, 1.00tmpl/s]")
+    p.finished("search/Kestrel/1.000", 300.0)
+    lines = stream.getvalue().splitlines()
+    assert len(lines) == 5  # one a minute
+    assert "search/Kestrel/1.000: chirpsift search:  60/300" in lines[0] and "tmpl/s" in lines[0]

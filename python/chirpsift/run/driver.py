@@ -43,8 +43,8 @@ def run_analysis(analysis, *, progress: str = "off", every: int = 10, seconds: f
     analysis : chirpsift.run.Analysis
         From :func:`chirpsift.run.load_analysis`.
     progress : {"off", "bar", "lines"}, optional
-        Progress display on ``stream`` (:class:`chirpsift.run.progress.Progress`); with
-        ``"bar"`` the search units show their own bar too.
+        Progress display on ``stream`` (:class:`chirpsift.run.progress.Progress`); the
+        search units show their own bar too (``"lines"``: as a line per ``seconds``).
     every, seconds : optional
         Line frequency of the ``"lines"`` display: every ``every`` units or ``seconds`` s.
     stream : file, optional
@@ -106,7 +106,8 @@ def run_analysis(analysis, *, progress: str = "off", every: int = 10, seconds: f
                 continue
             display.started(unit.key)
             t = time.perf_counter()
-            facts = execute(unit, analysis, progress=progress == "bar")
+            with display.inside(unit.key):
+                facts = execute(unit, analysis, progress=progress != "off")
             manifest.record(unit.key, unit.stage, unit.outputs, fp, **facts)
             result.seconds[unit.key] = time.perf_counter() - t
             result.ran.append(unit.key)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import sys
 import time
 
@@ -72,8 +73,38 @@ class Progress:
                                        or self.clock() - self.last >= self.seconds):
             self._line(f"{key} took {seconds:.1f} s")
 
+    @contextlib.contextmanager
+    def inside(self, key: str):
+        """Run a unit's own progress display inside this one.
+
+        In ``"lines"`` mode the unit's tqdm bar (which writes to ``sys.stderr``) is
+        caught and passed on as at most one line per ``seconds``, with its rate and time
+        left; in the other modes nothing changes.
+        """
+        if self.mode != "lines":
+            yield
+            return
+        with contextlib.redirect_stderr(_Throttled(self, key)):
+            yield
+
     def close(self) -> None:
         """End the display."""
         if self._bar is not None:
             self._bar.close()
             self._bar = None
+
+
+class _Throttled:
+    """A text stream that keeps a tqdm bar's latest state and prints it as a line now and then."""
+
+    def __init__(self, progress: Progress, key: str):
+        self.progress, self.key = progress, key
+
+    def write(self, text: str) -> int:
+        state = text.replace("\r", "\n").strip().splitlines()
+        if state and self.progress.clock() - self.progress.last >= self.progress.seconds:
+            self.progress._line(f"{self.key}: {state[-1].strip()}")
+        return len(text)
+
+    def flush(self) -> None:
+        """Nothing to flush: lines are written whole."""
