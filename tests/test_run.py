@@ -312,11 +312,12 @@ def test_span_units_merge_to_the_whole_catalogues_search_and_a_short_span_is_rep
     from chirpsift.pipeline import search_catalogue
 
     path = write_scenario(tmp_path)
+    analysis = load_analysis(path)
+    run_analysis(analysis, stop_after="merge")
     short = synthetic.colored_gaussian_noise(int(4 * FS), FS, "gen2-zero-detuned", seed=3, f_low=20.0)
     np.savez(tmp_path / "kestrel" / "kestrel-99.npz", strain=short, sample_rate=FS, t0=T0 + 600.0)
-    analysis = load_analysis(path)
     result = run_analysis(analysis, stop_after="merge")
-    assert sum(k.startswith("search/Kestrel/") for k in result.ran) == 2
+    assert result.ran == [f"search/Kestrel/{T0 + 600.0:.3f}", "merge/Kestrel"]  # a new file, a new span
     merged, meta = read_triggers(tmp_path / "out" / "triggers" / "Kestrel.parquet")
     cat = read_catalogue(list(analysis.data["Kestrel"].files))
     settings = analysis.search.as_dict()

@@ -91,6 +91,8 @@ class Unit:
         The site of a per-site unit.
     span : float or None
         Start time (s) of the span a search unit covers.
+    files : tuple of str
+        The strain files a search unit reads (its span's).
     """
 
     key: str
@@ -99,6 +101,7 @@ class Unit:
     after: tuple[str, ...] = ()
     site: str | None = None
     span: float | None = None
+    files: tuple[str, ...] = ()
 
 
 def plan(analysis) -> list[Unit]:
@@ -117,15 +120,17 @@ def plan(analysis) -> list[Unit]:
 
     names = analysis.site_names
     units = [Unit("bank", "bank", ("bank.parquet",))]
-    starts = {n: [span.t0 for span in catalogue_of(analysis.data[n]).spans] for n in names}
+    found = {n: catalogue_of(analysis.data[n]).spans for n in names}
+    starts = {n: [span.t0 for span in found[n]] for n in names}
+    files = {n: [tuple(str(f.path) for f in span.files) for span in found[n]] for n in names}
     spans = {n: [f"{t0:.3f}" for t0 in starts[n]] for n in names}
 
     def span_units(stage, prefix, after):
         out = []
         for n in names:
-            for label, t0 in zip(spans[n], starts[n]):
+            for label, t0, paths in zip(spans[n], starts[n], files[n]):
                 out.append(Unit(f"{stage}/{n}/{label}", stage, (f"{prefix}triggers/{n}/span-{label}.parquet",),
-                                after, n, t0))
+                                after, n, t0, paths))
         merge = "merge" if stage == "search" else "inject-merge"
         out += [Unit(f"{merge}/{n}", merge, (f"{prefix}triggers/{n}.parquet",),
                      tuple(f"{stage}/{n}/{label}" for label in spans[n]), n) for n in names]
@@ -145,8 +150,8 @@ def plan(analysis) -> list[Unit]:
         units.append(Unit("sensitivity", "sensitivity", ("injections/sensitivity.json",),
                           ("found-missed", "candidates")))
     everything = tuple(u.key for u in units)
-    files = report_files(analysis.injections is not None)
-    units.append(Unit("report", "report", tuple(f"report/{f}" for f in files), everything))
+    pages = report_files(analysis.injections is not None)
+    units.append(Unit("report", "report", tuple(f"report/{f}" for f in pages), everything))
     return units
 
 
@@ -195,7 +200,10 @@ def unit_inputs(unit: Unit, analysis, manifest) -> dict:
     inputs = {"unit": unit.key, "after": {k: manifest.digest(k) for k in unit.after}}
     if unit.stage == "bank":
         inputs["bank"] = _data_files([str(analysis.bank_file)])
-    if unit.stage in ("search", "inject-search", "spectrum", "report"):
+    if unit.files:  # a span's search reads its own files only
+        inputs["data"] = {unit.site: {"files": _data_files(unit.files),
+                                      "vetoes": _veto_stamp(analysis.data[unit.site].vetoes)}}
+    elif unit.stage in ("spectrum", "report"):
         sites = [unit.site] if unit.site is not None else analysis.site_names
         inputs["data"] = {n: {"files": _data_files(analysis.data[n].files),
                               "vetoes": _veto_stamp(analysis.data[n].vetoes)} for n in sites}
