@@ -13,7 +13,8 @@ PROG = "chirpsift run"
 DESCRIPTION = (
     "Run the analysis described by a TOML file (keys in the README): copy the bank, search each site's strain "
     "catalogue, measure each site's spectrum, find coincidences and their time-slide background, give "
-    "candidates false-alarm rates and write the HTML report. Every output is published atomically into the "
+    "candidates false-alarm rates, run the injection campaign and measure the sensitivity (with an "
+    "[injections] table) and write the HTML report. Every output is published atomically into the "
     "output folder and recorded in its manifest.json; running the same command again skips what is complete. "
     "Exit status: 0 done, 2 bad input (one line on stderr), 1 unexpected failure, 130 interrupted."
 )
@@ -27,9 +28,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="no progress bar: one line per --every units or per minute (for batch logs)")
     parser.add_argument("--every", metavar="N", type=int, default=10,
                         help="units between progress lines with --quiet (default: %(default)s)")
-    parser.add_argument("--stop-after", metavar="STAGE",
-                        help="stop once this stage is complete (bank, search, spectrum, background, candidates, "
-                             "report)")
+    from .stages import STAGES
+
+    parser.add_argument("--stop-after", metavar="STAGE", choices=STAGES,
+                        help=f"stop once this stage is complete ({', '.join(STAGES)})")
 
 
 def run(args: argparse.Namespace) -> int:
