@@ -317,6 +317,9 @@ def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, o
     parts.append(f"<p>Time analysed by all sites at once: {_fmt(summary['coincident_live_time'], 6)} s. "
                  f"Time slides: {summary['n_slides']}, background live time {_fmt(summary['background_time'], 6)} s "
                  f"({summary['background_coincidences']} background coincidences).</p>")
+    notes = [f"{_esc(n)}: {_esc(w)}" for n in names for w in meta[n].get("warnings", [])]
+    if notes:
+        parts.append("<p>What the searches reported:</p><ul>" + "".join(f"<li>{w}</li>" for w in notes) + "</ul>")
     parts.append(_figure(out, "timeline.png", "time line of analysed and left-out data per site",
                          "Analysed and left-out time per site, from the live-time tables."))
     parts.append(_figure(out, "spectra.png", "amplitude spectral density per site",
