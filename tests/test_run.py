@@ -385,3 +385,21 @@ def test_quiet_progress_passes_a_long_units_own_bar_on_once_a_minute():
     lines = stream.getvalue().splitlines()
     assert len(lines) == 5  # one a minute
     assert "search/Kestrel/1.000: chirpsift search:  60/300" in lines[0] and "tmpl/s" in lines[0]
+
+
+def test_hdf5_files_with_their_own_attribute_names(tmp_path):
+    h5py = pytest.importorskip("h5py")
+    path = write_scenario(tmp_path)
+    for npz in sorted((tmp_path / "heron").glob("*.npz")):
+        with np.load(npz) as z, h5py.File(npz.with_suffix(".h5"), "w") as f:
+            d = f.create_dataset("data/strain", data=z["strain"])
+            d.attrs["fs"], d.attrs["start"] = float(z["sample_rate"]), float(z["t0"])
+        npz.unlink()
+    h5 = _edit(path, 'files = ["heron/heron-*.npz"]',
+               'files = ["heron/heron-*.h5"]\ndataset = "data/strain"\nsample-rate-attr = "fs"\nt0-attr = "start"')
+    done_npz = run_analysis(load_analysis(write_scenario(tmp_path / "npz")), stop_after="merge")
+    done_h5 = run_analysis(load_analysis(h5), stop_after="merge")
+    assert len(done_h5.ran) == len(done_npz.ran)
+    a, _ = read_triggers(tmp_path / "npz" / "out" / "triggers" / "Heron.parquet")
+    b, _ = read_triggers(tmp_path / "out" / "triggers" / "Heron.parquet")
+    assert len(a) and a.tobytes() == b.tobytes()  # the same samples, whatever the file format
