@@ -387,19 +387,20 @@ def _spectrum(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
         if b - a >= 2 * wd:
             length, chunks = b - a, [(a, b)]
     n = int(round(length * fs))
-    rows = []
+    rows, used, freqs = [], [], None  # one PSD per stretch: memory of one stretch of data at a time
     for a, _ in chunks:
         _, x = read_times(catalogue, a, a + length + 1.0 / fs)
         if x.shape[0] >= n and np.all(np.isfinite(x[:n])):
-            rows.append(x[:n])
+            freqs, psd = welch(x[:n], fs, segment_duration=wd)
+            rows.append(psd)
+            used.append([a, a + length])
     cols = {"frequency": np.zeros(0), "asd_median": np.zeros(0), "asd_low": np.zeros(0), "asd_high": np.zeros(0)}
     if rows:
-        freqs, psd = welch(np.stack(rows), fs, segment_duration=wd)
-        asd = np.sqrt(np.atleast_2d(psd))
+        asd = np.sqrt(np.stack(rows))
         low, med, high = np.percentile(asd, [10.0, 50.0, 90.0], axis=0)
         cols = {"frequency": freqs, "asd_median": med, "asd_low": low, "asd_high": high}
     write_triggers(folder / unit.outputs[0], cols, {
-        "table": "spectrum", "site": unit.site, "chunks": [[a, a + length] for a, _ in chunks][:len(rows)],
+        "table": "spectrum", "site": unit.site, "chunks": used,
         "chunk_duration": length, "welch_duration": wd, "percentiles": [10, 50, 90],
         "unit": "1/sqrt(Hz)"})
     return {"rows": int(len(cols["frequency"])), "chunks": len(rows)}
