@@ -418,3 +418,17 @@ def test_each_sites_spectrum_follows_the_curve_its_noise_was_drawn_from(done):
         assert abs(np.median(sp["asd_median"][band] / truth) - 1.0) < 0.05
         assert np.all(sp["asd_low"] <= sp["asd_median"]) and np.all(sp["asd_median"] <= sp["asd_high"])
         assert len(meta["chunks"]) >= 5 and meta["chunk_duration"] == 32.0
+
+
+def test_an_unexpected_failure_exits_1_with_the_traceback(tmp_path, monkeypatch, capsys):
+    from chirpsift.cli import main
+    from chirpsift.run import stages
+
+    def broken(*args, **kwargs):
+        raise RuntimeError("a defect")
+
+    monkeypatch.setitem(stages._RUNNERS, "bank", broken)
+    assert main(["run", str(write_scenario(tmp_path)), "--quiet"]) == 1
+    err = capsys.readouterr().err
+    assert "unexpected failure" in err and "RuntimeError: a defect" in err
+    assert not temporaries(tmp_path / "out")
