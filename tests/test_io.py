@@ -690,3 +690,19 @@ def test_public_names_of_the_io_package():
     from chirpsift.io.atomic import atomic_path
 
     assert cio.atomic_path is atomic_path
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self/fd"), reason="needs /proc to name the synced files")
+def test_atomic_write_flushes_the_file_and_then_its_folder(tmp_path, monkeypatch):
+    # The folder is synced after the rename, so a crash cannot lose a published file
+    # (common practice for atomic publication on POSIX: fsync the file, rename, fsync the folder).
+    synced = []
+    real = os.fsync
+
+    def recording(fd):
+        synced.append(os.readlink(f"/proc/self/fd/{fd}"))
+        return real(fd)
+
+    monkeypatch.setattr(os, "fsync", recording)
+    write_json_atomic(tmp_path / "doc.json", {"a": 1})
+    assert len(synced) == 2 and synced[0].endswith(".partial") and synced[1] == str(tmp_path)

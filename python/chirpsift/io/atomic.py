@@ -50,7 +50,8 @@ def atomic_path(path) -> Iterator[str]:
         A fresh empty file in the destination folder (named ``.NAME.*.partial``) for
         the caller to write. When the ``with`` block ends normally it is flushed to
         disk, given the permissions of the file it replaces (or the usual ones for a
-        new file) and renamed onto ``path``; when the block raises, it is removed and
+        new file) and renamed onto ``path``, and the folder is flushed too (so the
+        rename survives a crash); when the block raises, it is removed and
         ``path`` is left as it was.
 
     Raises
@@ -79,10 +80,29 @@ def atomic_path(path) -> Iterator[str]:
             os.fsync(fh.fileno())
         os.chmod(tmp, _new_file_mode(final))
         os.replace(tmp, final)
+        _sync_folder(folder)
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
+
+
+def _sync_folder(folder: Path) -> None:
+    """Flush the folder's entry for a renamed file to disk, so a crash cannot undo the rename.
+
+    POSIX only: where a folder cannot be opened or synced (Windows), the rename stands
+    as the operating system keeps it.
+    """
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
 
 
 def _json_default(obj):
