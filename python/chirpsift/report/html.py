@@ -131,10 +131,11 @@ def _top_series(analysis: dict, names, spectra, cand, settings, out: Path) -> st
         f, med = spectra[n][0], spectra[n][1]
         if f.size == 0:
             continue
-        try:
-            t0, x = read_times(catalogue_of(analysis["data"][n]), max(start, 0.0), stop)
-        except ValueError:
+        catalogue = catalogue_of(analysis["data"][n])
+        span = next((sp for sp in catalogue.spans if sp.t0 <= t_c < sp.end), None)
+        if span is None:
             continue
+        t0, x = read_times(catalogue, max(start, span.t0), stop)
         if not (np.all(np.isfinite(x)) and x.size and t0 < t_c - 1.0 and t0 + x.size / spectra[n][4] > t_c + 1.0):
             continue
         series[n] = candidate_series(t0, x, spectra[n][4], f, med ** 2, t_c=t_c, m1=m1, m2=m2, spin1=s1,
