@@ -432,3 +432,21 @@ def test_an_unexpected_failure_exits_1_with_the_traceback(tmp_path, monkeypatch,
     err = capsys.readouterr().err
     assert "unexpected failure" in err and "RuntimeError: a defect" in err
     assert not temporaries(tmp_path / "out")
+
+
+def test_write_analysis_round_trips_through_the_standard_toml_reader(tmp_path):
+    # Outside check: Python's own TOML parser (tomllib) reads back what was written.
+    import tomllib
+
+    from chirpsift.run import write_analysis
+
+    scenario = write_scenario(tmp_path)
+    doc = tomllib.loads(scenario.read_text())
+    doc["data"]["Heron"]["vetoes"] = [[T0 + 400.0, T0 + 410.0]]
+    doc["bank"]["file"] = 'odd "name" \\ bank.parquet'
+    written = write_analysis(tmp_path / "again.toml", doc)
+    assert tomllib.loads(written.read_text()) == doc
+    inline = dict(doc, sites={"site": [{f.name: getattr(s, f.name) for f in dataclasses.fields(Site)}
+                                       for s in load_sites(EXAMPLE_SITES).values()]})
+    assert tomllib.loads(write_analysis(tmp_path / "inline.toml", inline).read_text()) == inline
+    assert load_analysis(tmp_path / "inline.toml").site_names == ["Kestrel", "Heron"]

@@ -59,7 +59,7 @@ from ..network import Site, load_sites
 from ..network.coincidence import DEFAULT_ALLOWANCE
 from ..pipeline.settings import SEARCH_OPTIONS, SearchSettings
 
-__all__ = ["Analysis", "SiteData", "load_analysis", "SCHEMA", "FORMAT_VERSION"]
+__all__ = ["Analysis", "SiteData", "load_analysis", "write_analysis", "SCHEMA", "FORMAT_VERSION"]
 
 #: Version of the analysis-file layout.
 FORMAT_VERSION = 1
@@ -479,3 +479,74 @@ def load_analysis(path) -> Analysis:
     return Analysis(path=p, output=output, sites=tuple(known[n] for n in names), data=data, bank_file=bank_file,
                     search=search, slides=slides, slide_step=step, allowance=allowance, top=top,
                     injections=injections)
+
+
+def _toml_value(value, where: str) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        if not math.isfinite(value):
+            raise ValueError(f"{where}: {value!r} has no place in an analysis file")
+        return repr(value)
+    if isinstance(value, (str, os.PathLike)):
+        text = os.fspath(value)
+        return '"' + text.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_toml_value(v, where) for v in value) + "]"
+    raise TypeError(f"{where}: cannot write a value of type {type(value).__name__} ({value!r})")
+
+
+def write_analysis(path, analysis: dict) -> Path:
+    """Write an analysis file from a mapping with its keys (see :data:`SCHEMA`), atomically.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The TOML file to write; relative paths inside are read relative to it.
+    analysis : dict
+        Top-level keys (``version``, ``output``) and tables (``sites``, ``data``, ``bank``,
+        ``search``, ``network``, ``injections``, ``report``); ``data`` maps site names to
+        tables and ``sites`` may hold ``site``, a list of site tables. Keys are checked
+        when the file is loaded, not here.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Examples
+    --------
+    >>> import tomllib
+    >>> from chirpsift.run import write_analysis
+    >>> p = write_analysis("run.toml", {"output": "out", "bank": {"file": "bank.parquet"},
+    ...                                 "data": {"Kestrel": {"files": ["k/*.npz"]}}})
+    >>> tomllib.loads(p.read_text())["data"]["Kestrel"]
+    {'files': ['k/*.npz']}
+    """
+    from ..io.atomic import atomic_path
+
+    lines = []
+    tables = []
+    for key, value in analysis.items():
+        if isinstance(value, dict):
+            tables.append((key, value))
+        else:
+            lines.append(f"{key} = {_toml_value(value, key)}")
+    for key, table in tables:
+        nested = {k: v for k, v in table.items() if isinstance(v, dict)}
+        arrays = {k: v for k, v in table.items() if isinstance(v, list) and v and all(isinstance(e, dict) for e in v)}
+        plain = {k: v for k, v in table.items() if k not in nested and k not in arrays}
+        if plain or not (nested or arrays):
+            lines += ["", f"[{key}]"] + [f"{k} = {_toml_value(v, f'{key}.{k}')}" for k, v in plain.items()]
+        for name, sub in nested.items():
+            lines += ["", f"[{key}.{name}]"] + [f"{k} = {_toml_value(v, f'{key}.{name}.{k}')}" for k, v in sub.items()]
+        for name, items in arrays.items():
+            for item in items:
+                lines += ["", f"[[{key}.{name}]]"] + [f"{k} = {_toml_value(v, f'{key}.{name}.{k}')}"
+                                                      for k, v in item.items()]
+    out = Path(os.fspath(path))
+    with atomic_path(out) as tmp:
+        Path(tmp).write_text("\n".join(lines).lstrip("\n") + "\n", encoding="utf-8")
+    return out
