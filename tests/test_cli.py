@@ -116,7 +116,7 @@ def test_config_unknown_key_names_the_nearest_valid_key(tmp_path):
         ("[input]\nsample-rate = -1\n", r"\[input\]: sample-rate must be positive"),
         ("[run]\nthreads = 0\n", r"\[run\]: threads must be at least 1"),
         ("[run]\nprogress = 'no'\n", r"\[run\]: progress must be true or false"),
-        ("[search\n", "invalid TOML"),
+        ("[search\n", "not valid TOML"),
     ],
 )
 def test_config_bad_values(tmp_path, body, pattern):

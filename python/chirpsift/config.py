@@ -30,12 +30,11 @@ and defaults.
 from __future__ import annotations
 
 import difflib
-import os
 import re
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from .io.readers import read_toml
 from ._validate import integer, positive_scalar, real_scalar
 from .pipeline import SEARCH_OPTIONS, SearchSettings
 from .pipeline.settings import option_key
@@ -263,18 +262,7 @@ def load_config(path) -> RunConfig:
     >>> c.search, c.run
     ({'f_low': 30.0, 'peak_window': 0.5}, {'progress': False})
     """
-    path = Path(os.fspath(path))
-    if not path.exists():
-        raise FileNotFoundError(f"config file not found: {path}")
-    if path.is_dir():
-        raise ValueError(f"{path}: is a directory, not a TOML config file")
-    try:
-        with open(path, "rb") as fh:
-            doc = tomllib.load(fh)
-    except tomllib.TOMLDecodeError as exc:
-        raise ValueError(f"{path}: invalid TOML ({exc})") from None
-    except UnicodeDecodeError:
-        raise ValueError(f"{path}: not a text file (TOML must be UTF-8)") from None
+    path, doc = read_toml(path, what="config file")
     for table, section in doc.items():
         if table not in TABLES:
             home = [t for t, keys in TABLES.items() if option_key(str(table)) in (k.key for k in keys)]

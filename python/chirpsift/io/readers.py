@@ -12,6 +12,7 @@ file, a folder or a permission problem keeps its own ``OSError`` subclass.
 from __future__ import annotations
 
 import os
+import tomllib
 from pathlib import Path
 
 import numpy as np
@@ -209,3 +210,49 @@ def read_parquet(path, *, what: str = "table") -> pa.Table:
         raise
     except Exception as exc:  # ArrowInvalid, OSError from a damaged footer, ...
         raise ValueError(f"{path}: cannot read as a Parquet {what}: {one_line(exc)}") from None
+
+
+def read_toml(path, *, what: str) -> tuple[Path, dict]:
+    """Read a TOML file, turning every failure into one message naming the file.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The file.
+    what : str
+        What the file should hold, for the messages (``"sites file"``).
+
+    Returns
+    -------
+    path : pathlib.Path
+        The path as given.
+    doc : dict
+        The parsed document.
+
+    Raises
+    ------
+    FileNotFoundError
+        If there is no such file (the message starts with ``what``).
+    ValueError
+        If the path is a folder, or the file is not UTF-8 text or not valid TOML.
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from chirpsift.io.readers import read_toml
+    >>> _ = Path("a.toml").write_text("y = 1")
+    >>> read_toml("a.toml", what="config file")[1]
+    {'y': 1}
+    """
+    p = Path(os.fspath(path))
+    if p.is_dir():
+        raise ValueError(f"{what} {p}: is a directory, not a TOML file")
+    if not p.is_file():
+        raise FileNotFoundError(f"{what} not found: {p}")
+    try:
+        with open(p, "rb") as fh:
+            return p, tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise ValueError(f"{what} {p}: not valid TOML ({exc})") from None
+    except UnicodeDecodeError:
+        raise ValueError(f"{what} {p}: not a UTF-8 text file (TOML must be UTF-8)") from None

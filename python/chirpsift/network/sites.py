@@ -7,15 +7,14 @@ antenna patterns, and a small TOML form for a set of sites.
 from __future__ import annotations
 
 import math
-import os
 import re
-import tomllib
 from dataclasses import dataclass, fields
 from functools import cached_property
 from pathlib import Path
 
 import numpy as np
 
+from ..io.readers import read_toml
 from .._validate import broadcast, real_array, real_scalar
 from ..waveform import C_SI
 
@@ -411,16 +410,7 @@ def load_sites(path) -> dict[str, Site]:
     >>> sorted(load_sites(EXAMPLE_SITES))
     ['Heron', 'Kestrel', 'Plover']
     """
-    p = Path(os.fspath(path))
-    if not p.is_file():
-        raise FileNotFoundError(f"sites file not found: {p}")
-    try:
-        with open(p, "rb") as fh:
-            doc = tomllib.load(fh)
-    except tomllib.TOMLDecodeError as exc:
-        raise ValueError(f"sites file {p}: not valid TOML ({exc})") from None
-    except UnicodeDecodeError:
-        raise ValueError(f"sites file {p}: not a UTF-8 text file") from None
+    p, doc = read_toml(path, what="sites file")
     unknown = sorted(set(doc) - {"version", "site"})
     if unknown:
         raise ValueError(

@@ -51,10 +51,10 @@ import difflib
 import hashlib
 import math
 import os
-import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from ..io.readers import read_toml
 from ..network import Site, load_sites
 from ..network.coincidence import DEFAULT_ALLOWANCE
 from ..pipeline.settings import SEARCH_OPTIONS, SearchSettings
@@ -408,16 +408,7 @@ def load_analysis(path) -> Analysis:
     ...
     ValueError: b.toml [network]: unknown key 'slide'; did you mean 'slides'?
     """
-    p = Path(os.fspath(path))
-    if not p.is_file():
-        raise FileNotFoundError(f"analysis file not found: {p}")
-    try:
-        with open(p, "rb") as fh:
-            doc = tomllib.load(fh)
-    except tomllib.TOMLDecodeError as exc:
-        raise ValueError(f"{p}: not valid TOML ({exc})") from None
-    except UnicodeDecodeError:
-        raise ValueError(f"{p}: not a UTF-8 text file") from None
+    p, doc = read_toml(path, what="analysis file")
     base = p.resolve().parent
     _check_keys(str(p), doc, SCHEMA[""])
     if "version" in doc and doc["version"] != FORMAT_VERSION:
