@@ -149,8 +149,10 @@ def test_main_quick_tiny_prints_every_measurement(tmp_path, capsys):
     assert {"yardstick_ifft_ms", "w1_fused_per_ifft", "w2_over_w1_per_template", "w1_speedup_over_reference",
             "w1_thread_scaling", "w1_thread_scaling_range", "w1_identical_across_threads",
             "w1_generation_in_kernel_per_fused", "w3_peak_rss_ratio", "w3_peak_rss_small_mib",
-            "w3_peak_rss_full_mib", "w1_search_quarter_bank_per_ifft", "w1_search_full_bank_per_ifft"} <= set(keys)
+            "w3_peak_rss_full_mib", "w1_search_quarter_bank_per_ifft", "w1_search_full_bank_per_ifft",
+            "slides_background_s", "slides_identical_to_loop"} <= set(keys)
     by_key = {m["key"]: m for m in doc["measurements"]}
+    assert by_key["slides_identical_to_loop"]["met"] is True
     # the scaling row is the median of the paired runs, its verdict the median's
     ratios = doc["context"]["thread_scaling_ratios"]
     assert len(ratios) == 3

@@ -234,6 +234,39 @@ def _measure_generation(w: Workload, fused_per_template: float, repeats: int, sa
     ]
 
 
+#: Time-slide background at full scale: triggers per site and slides (two sites), and the target.
+_SLIDES_FULL = (1_000_000, 100_000)
+_SLIDES_TARGET_S = 60.0
+
+
+def _measure_slides(scale: float, say) -> list[Measurement]:
+    """Time the two-site time-slide background all at once, and against the slide-by-slide loop.
+
+    At ``scale=1``: 10^6 triggers per site and 10^5 slides, judged against one minute;
+    smaller scales shrink both (no verdict).
+    """
+    from ..network import benchmark_slides
+
+    n_triggers = max(2_000, int(round(_SLIDES_FULL[0] * scale)))
+    n_slides = max(20, int(round(_SLIDES_FULL[1] * scale)))
+    small = (max(1_000, int(round(20_000 * min(scale, 1.0)))), max(10, int(round(200 * min(scale, 1.0)))))
+    say(f"time slides: {n_triggers} triggers per site, {n_slides} slides")
+    r = benchmark_slides(n_triggers, n_slides, small_triggers=small[0], small_slides=small[1])
+    big, loop = r["large"], r["small"]
+    full = scale >= 1.0
+    return [
+        Measurement("slides_background_s",
+                    f"time-slide background, 2 sites, {n_triggers} triggers per site, {n_slides} slides, all at once",
+                    round(big["wall_s"], 2), "s", f"< {_SLIDES_TARGET_S:g} at full scale" if full else "",
+                    bool(big["wall_s"] < _SLIDES_TARGET_S) if full else None),
+        Measurement("slides_speedup_over_loop",
+                    f"time slides all at once vs slide by slide ({small[0]} triggers per site, {small[1]} slides)",
+                    ratio(loop["speedup"]), "x"),
+        Measurement("slides_identical_to_loop", "time slides: all-at-once background equals the slide-by-slide one",
+                    "yes" if loop["identical"] else "NO", "", "identical", bool(loop["identical"])),
+    ]
+
+
 def _measure_memory(w: Workload, threads: int, say) -> tuple[list[Measurement], dict]:
     """Measure the peak resident memory of a whole search with a small and with the full bank.
 
@@ -263,7 +296,7 @@ def _measure_memory(w: Workload, threads: int, say) -> tuple[list[Measurement], 
 
 
 def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, repeats: int = 3,
-        scaling_runs: int = SCALING_RUNS, log=None) -> tuple[list[Measurement], dict]:
+        scaling_runs: int = SCALING_RUNS, slides: bool = True, log=None) -> tuple[list[Measurement], dict]:
     """Run the measurements for the chosen workloads.
 
     Parameters
@@ -280,6 +313,9 @@ def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, 
     scaling_runs : int, optional
         Paired 1-thread / n-thread runs behind the thread-scaling row; the table gives
         their median (judged against the target) and range.
+    slides : bool, optional
+        Also time the two-site time-slide background (10^6 triggers per site and
+        10^5 slides at ``scale=1``).
     log : callable, optional
         Called with progress lines (e.g. ``print`` to stderr).
 
@@ -331,6 +367,8 @@ def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, 
             context["workloads"]["W3"] = w3.description + f", {w3.segment_duration:g} s segments"
             memory_rows, context["w3_runs"] = _measure_memory(w3, n_threads, say)
             rows.extend(memory_rows)
+        if slides:
+            rows.extend(_measure_slides(scale, say))
     finally:
         set_threads(previous)
     return rows, context
