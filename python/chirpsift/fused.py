@@ -11,8 +11,8 @@ import numpy as np
 
 from . import _core
 from ._validate import complex_array, integer, positive_scalar, psd_array, real_array
-from .waveform._params import phase_order as _order
-from .waveform._params import template_arrays
+from ._template_params import phase_order as _order
+from ._template_params import template_arrays
 
 __all__ = ["filter_segment", "prepare_bank", "PreparedBank", "prepare_segments", "PreparedSegment", "PEAK_COLUMNS"]
 

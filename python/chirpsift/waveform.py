@@ -7,9 +7,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import _core
-from .._validate import broadcast, check_allocation, dtype_choice, finite_output, integer, positive_scalar
-from ._params import masses, phase_order as _order, template_arrays
+from . import _core
+from ._validate import broadcast, check_allocation, dtype_choice, finite_output, integer, positive_scalar
+from ._template_params import masses, phase_order as _order, template_arrays
 
 __all__ = ["taylorf2", "chirp_duration", "isco_frequency", "T_SUN", "MPC", "C_SI"]
 

@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import _core
-from .._validate import broadcast, integer, real_array
+from . import _core
+from ._validate import broadcast, integer, real_array
 
 __all__ = ["masses", "spins", "phase_order", "template_arrays"]
 
