@@ -5,7 +5,8 @@ holds a pure-numpy twin of every kernel.
 """
 
 from .filter import correlate, sigma, snr_series
-from .bank import Bank
+from .bank import Bank, bank_coverage, fitting_factor, place_bank
+from .overlap import match
 from .clustering import cluster_in_time
 from .fused import PEAK_COLUMNS, PreparedBank, PreparedSegment, filter_segment, prepare_bank, prepare_segments
 from .triggers import TRIGGER_COLUMNS, TRIGGER_DTYPE
@@ -24,6 +25,10 @@ from ._core import __version__ as __version__
 __all__ = [
     "AnalysedFractionWarning",
     "Bank",
+    "bank_coverage",
+    "fitting_factor",
+    "match",
+    "place_bank",
     "ExcludedDataWarning",
     "GatingWarning",
     "SearchSettings",

@@ -8,7 +8,7 @@ import numpy as np
 from . import _core
 from ._validate import check_allocation, choice, finite_output, nonnegative_scalar, integer, positive_scalar, psd_array, real_array
 
-__all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "truncate_inverse_psd", "segment_psds", "whiten"]
+__all__ = ["welch", "design_psd", "DESIGN_CURVES", "psd_to_grid", "psd_on_grid", "truncate_inverse_psd", "segment_psds", "whiten"]
 
 #: Names accepted by :func:`design_psd`.
 DESIGN_CURVES = tuple(_core.DESIGN_CURVES)
@@ -191,6 +191,45 @@ def psd_to_grid(freqs, psd, df, n_freq):
     nf = integer("n_freq", n_freq)
     check_allocation("n_freq", nf, 8)
     return _core.psd_to_grid(f, p, positive_scalar("df", df), nf)
+
+
+def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd") -> np.ndarray:
+    """One-sided PSD (1/Hz) at ``k * df``, ``k < n_freq``, from any of the ways a user names one.
+
+    Parameters
+    ----------
+    psd : str, callable or (freqs, values)
+        A design-curve name (:func:`design_psd`), a callable of frequency (Hz), or a
+        sampled ``(freqs, values)`` pair (:func:`psd_to_grid`: linear interpolation,
+        ``inf`` outside the samples).
+    df : float
+        Bin spacing (Hz).
+    n_freq : int
+        Number of bins.
+    name : str, optional
+        The argument's name in error messages.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_freq,)
+
+    Examples
+    --------
+    >>> from chirpsift.spectrum import psd_on_grid
+    >>> psd_on_grid("gen2-zero-detuned", 1.0, 4).shape
+    (4,)
+    """
+    freqs = np.arange(n_freq) * df
+    if isinstance(psd, str):
+        return design_psd(freqs, psd)
+    if callable(psd):
+        out = psd_array(name, np.broadcast_to(psd(freqs), freqs.shape), ndim=1)
+        return out
+    if isinstance(psd, tuple) and len(psd) == 2:
+        return psd_to_grid(real_array(f"{name}[0]", psd[0], ndim=1), psd_array(f"{name}[1]", psd[1], ndim=1), df,
+                           n_freq)
+    raise TypeError(f"{name} must be a design-curve name, a callable freqs -> PSD or a (freqs, values) pair, "
+                    f"got {type(psd).__name__}")
 
 
 def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):

@@ -14,6 +14,8 @@
 //!   generation, durations, batches of spectra.
 //! - [`filter`]: matched filtering against explicit templates (sigma, SNR series)
 //!   and batched real cross-correlation.
+//! - [`overlap`]: the match of two templates (overlap maximised over time and phase)
+//!   and fitting factors of points against a bank, for placing banks and checking them.
 //! - [`fused`]: the search kernel: a prepared segment against a bank, templates
 //!   generated on the fly, using [`peaks`] and [`chisq`].
 //! - Infrastructure: [`error`], [`constants`], [`threads`] (the pool every kernel
@@ -52,6 +54,7 @@ pub mod filter;
 pub mod fused;
 pub mod peaks;
 pub mod chisq;
+pub mod overlap;
 pub mod timing;
 
 #[cfg(feature = "python")]

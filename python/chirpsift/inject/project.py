@@ -28,10 +28,10 @@ import math
 
 import numpy as np
 
-from .._validate import positive_scalar, psd_array, real_array, real_scalar
+from .._validate import positive_scalar, real_scalar
 from ..filter import sigma
 from ..segments import DURATION_MARGIN
-from ..spectrum import design_psd, psd_to_grid
+from ..spectrum import psd_on_grid
 from ..waveform import chirp_duration, isco_frequency, taylorf2
 from .population import injection_table
 
@@ -116,26 +116,6 @@ def effective_distance(injections, site) -> np.ndarray:
     amp = np.abs(site_response(injections, site))
     with np.errstate(divide="ignore"):
         return np.where(amp > 0, injection_table(injections)["distance"] / np.where(amp > 0, amp, 1.0), np.inf)
-
-
-def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd") -> np.ndarray:
-    """One-sided PSD (1/Hz) at ``k * df``, ``k < n_freq``.
-
-    From a design-curve name, a callable of frequency (Hz) or a sampled
-    ``(freqs, values)`` pair (:func:`chirpsift.psd_to_grid`: linear interpolation,
-    ``inf`` outside the samples).
-    """
-    freqs = np.arange(n_freq) * df
-    if isinstance(psd, str):
-        return design_psd(freqs, psd)
-    if callable(psd):
-        out = psd_array(name, np.broadcast_to(psd(freqs), freqs.shape), ndim=1)
-        return out
-    if isinstance(psd, tuple) and len(psd) == 2:
-        return psd_to_grid(real_array(f"{name}[0]", psd[0], ndim=1), psd_array(f"{name}[1]", psd[1], ndim=1), df,
-                           n_freq)
-    raise TypeError(f"{name} must be a design-curve name, a callable freqs -> PSD or a (freqs, values) pair, "
-                    f"got {type(psd).__name__}")
 
 
 def _band_top(m1, m2, f_high):

@@ -9,6 +9,7 @@ kernel. It depends on numpy only.
 from .constants import AU_SI, C_SI, GM_SUN_SI, MPC, T_SUN
 from .filter import band, correlate, sigma, snr_series
 from .fused import filter_segment
+from .overlap import match
 from .spectrum import (
     DESIGN_CURVES,
     design_psd,
@@ -34,5 +35,5 @@ __all__ = [
     "taylorf2", "taylorf2_phase", "taylorf2_coefficients",
     "time_to_coalescence", "chirp_duration", "isco_frequency",
     "band", "sigma", "snr_series", "correlate",
-    "filter_segment",
+    "filter_segment", "match",
 ]

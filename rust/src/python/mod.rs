@@ -5,6 +5,7 @@
 
 mod filter;
 mod fused;
+mod overlap;
 mod spectrum;
 mod timing;
 mod waveform;
@@ -97,6 +98,7 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     waveform::register(m)?;
     filter::register(m)?;
     fused::register(m)?;
+    overlap::register(m)?;
     timing::register(m)?;
     Ok(())
 }

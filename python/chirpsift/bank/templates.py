@@ -8,17 +8,20 @@ File layout
 -----------
 ``.npz``
     Arrays ``m1``, ``m2``, ``chi1``, ``chi2`` (float64, 1-D) plus 0-d arrays ``format``
-    (``"chirpsift-bank"``) and ``version`` (``1``). ``chi1``/``chi2`` are optional on
-    reading (zero when absent).
+    (``"chirpsift-bank"``) and ``version`` (``1``), and a 0-d string ``metadata`` (JSON:
+    :attr:`Bank.metadata`). ``chi1``/``chi2`` and ``metadata`` are optional on reading.
 ``.parquet``
     Columns ``m1``, ``m2``, ``chi1``, ``chi2`` (float64), and the schema metadata
-    key-value pairs ``format = "chirpsift-bank"`` and ``version = "1"``. Files without
+    key-value pairs ``format = "chirpsift-bank"``, ``version = "1"`` and ``metadata`` (JSON:
+    :attr:`Bank.metadata`; for a placed bank ``region``, ``psd``, ``f_low``,
+    ``minimal_match``, ``method``, ``seed``, ``sample_rate``). Files without
     that metadata (e.g. written by other tools) are accepted if they have the columns;
     ``chi1``/``chi2`` are optional on reading.
 """
 
 from __future__ import annotations
 
+import json
 import numbers
 import os
 from collections.abc import Mapping
@@ -26,7 +29,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .io.readers import load_npz, read_parquet
+from ..io.readers import load_npz, read_parquet
 
 __all__ = ["Bank", "BANK_FORMAT", "BANK_VERSION"]
 
@@ -66,6 +69,8 @@ class Bank:
     chi1, chi2 : array_like, optional
         Dimensionless aligned spin components, ``-1 < chi < 1``; zero if omitted.
         Scalars broadcast to the bank's length.
+    metadata : mapping, optional
+        JSON-serialisable description of how the bank was made; saved with it.
 
     Raises
     ------
@@ -88,9 +93,9 @@ class Bank:
     (2, 1.2188)
     """
 
-    __slots__ = ("_m1", "_m2", "_chi1", "_chi2")
+    __slots__ = ("_m1", "_m2", "_chi1", "_chi2", "_metadata")
 
-    def __init__(self, m1, m2, chi1=None, chi2=None):
+    def __init__(self, m1, m2, chi1=None, chi2=None, *, metadata=None):
         m1 = _column(m1, "m1")
         m2 = _column(m2, "m2")
         if m1.size != m2.size:
@@ -121,6 +126,16 @@ class Bank:
             arr.setflags(write=False)
         self._m1, self._m2 = m1, m2
         self._chi1, self._chi2 = spins
+        if metadata is not None and not isinstance(metadata, Mapping):
+            raise TypeError(f"metadata must be a mapping (JSON-serialisable), got {type(metadata).__name__}")
+        self._metadata = json.loads(json.dumps(dict(metadata or {})))
+
+    @property
+    def metadata(self) -> dict:
+        """How the bank was made (a copy): for a placed bank the region, noise curve,
+        ``f_low``, minimal match, method, seed and sample rate; empty otherwise.
+        """
+        return json.loads(json.dumps(self._metadata))
 
     # -- arrays -------------------------------------------------------------
     @property
@@ -164,7 +179,8 @@ class Bank:
 
     def __getitem__(self, index) -> "Bank":
         """Select templates; an integer gives a one-template Bank, slices and index or
-        boolean arrays give a Bank of the selection."""
+        boolean arrays give a Bank of the selection.
+        """
         if isinstance(index, (numbers.Integral, np.integer)) and not isinstance(index, bool):
             n = len(self)
             i = int(index)
@@ -277,7 +293,7 @@ class Bank:
         path : str or os.PathLike
             Destination; the format follows the extension. Written atomically.
         """
-        from .io.atomic import atomic_path
+        from ..io.atomic import atomic_path
 
         path = Path(os.fspath(path))
         ext = path.suffix.lower()
@@ -292,13 +308,15 @@ class Bank:
                         chi2=self._chi2,
                         format=np.array(BANK_FORMAT),
                         version=np.array(BANK_VERSION),
+                        metadata=np.array(json.dumps(self._metadata)),
                     )
         elif ext == ".parquet":
             import pyarrow as pa
             import pyarrow.parquet as pq
 
             table = pa.table({f: pa.array(getattr(self, f), type=pa.float64()) for f in _FIELDS})
-            table = table.replace_schema_metadata({"format": BANK_FORMAT, "version": str(BANK_VERSION)})
+            table = table.replace_schema_metadata({"format": BANK_FORMAT, "version": str(BANK_VERSION),
+                                                   "metadata": json.dumps(self._metadata)})
             with atomic_path(path) as tmp:
                 pq.write_table(table, tmp)
         else:
@@ -330,7 +348,8 @@ class Bank:
             raise FileNotFoundError(f"bank file not found: {path}")
         ext = path.suffix.lower()
         if ext == ".npz":
-            names, arrays = load_npz(path, (*_FIELDS, "format", "version"), what="bank archive")
+            names, arrays = load_npz(path, (*_FIELDS, "format", "version", "metadata"), what="bank archive")
+            extra = str(arrays["metadata"]) if "metadata" in arrays else None
             fmt = str(arrays["format"]) if "format" in arrays else None
             version = arrays["version"].item() if "version" in arrays else None
             cols = {k: arrays[k] for k in _FIELDS if k in arrays}
@@ -339,6 +358,7 @@ class Bank:
             meta = table.schema.metadata or {}
             fmt = meta[b"format"].decode(errors="replace") if b"format" in meta else None
             version = meta[b"version"].decode(errors="replace") if b"version" in meta else None
+            extra = meta[b"metadata"].decode(errors="replace") if b"metadata" in meta else None
             names = table.column_names
             cols = {k: table.column(k).to_numpy() for k in _FIELDS if k in names}
         else:
@@ -358,7 +378,11 @@ class Bank:
         if missing:
             raise ValueError(f"{path}: bank is missing column(s) {missing}; it has {list(names)}")
         try:
-            return cls(cols["m1"], cols["m2"], cols.get("chi1"), cols.get("chi2"))
+            metadata = json.loads(extra) if extra else None
+        except json.JSONDecodeError:
+            raise ValueError(f"{path}: the bank's metadata is not valid JSON") from None
+        try:
+            return cls(cols["m1"], cols["m2"], cols.get("chi1"), cols.get("chi2"), metadata=metadata)
         except (ValueError, TypeError) as exc:
             raise type(exc)(f"{path}: {exc}") from None
 

@@ -1,0 +1,170 @@
+"""A region of source parameters, and the uniform measure points are drawn from.
+
+Component-mass and aligned-spin ranges, with optional total-mass and mass-ratio cuts.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .._validate import real_scalar
+
+__all__ = ["Region"]
+
+_SPIN_LIMIT = 1.0
+
+
+def _range(name: str, value, *, positive: bool = False, spin: bool = False) -> tuple[float, float]:
+    try:
+        lo, hi = value
+    except (TypeError, ValueError):
+        raise ValueError(f"{name} must be a (lo, hi) pair, got {value!r}") from None
+    lo = real_scalar(f"{name}[0]", lo)
+    hi = real_scalar(f"{name}[1]", hi)
+    if not (math.isfinite(lo) and math.isfinite(hi)):
+        raise ValueError(f"{name} must be finite, got {value!r}")
+    if hi < lo:
+        raise ValueError(f"{name} is inverted: lo={lo!r} > hi={hi!r}")
+    if positive and lo <= 0:
+        raise ValueError(f"{name} must be positive (solar masses), got {value!r}")
+    if spin and not (-_SPIN_LIMIT < lo and hi < _SPIN_LIMIT):
+        raise ValueError(f"{name} must lie inside (-1, 1), got {value!r}")
+    return lo, hi
+
+
+@dataclass(frozen=True)
+class Region:
+    """A region of binaries: ``m1``, ``m2`` in ranges, aligned spins ``chi1``, ``chi2`` in ranges.
+
+    Parameters
+    ----------
+    m1, m2 : (float, float)
+        Component-mass ranges (solar masses). A binary is in the region when its masses,
+        in either labelling, fall in them (with the spins labelled alike).
+    chi1, chi2 : (float, float), optional
+        Ranges of the dimensionless spin components along the orbital angular momentum,
+        inside (-1, 1). Default (0, 0): non-spinning.
+    mtotal : (float, float), optional
+        Total-mass cut (solar masses).
+    mass_ratio : (float, float), optional
+        Cut on ``q = m_heavier / m_lighter >= 1``.
+
+    Raises
+    ------
+    ValueError
+        An empty, inverted or non-finite range, a non-positive mass, a spin bound outside
+        (-1, 1), or cuts that leave nothing of the mass box.
+
+    Examples
+    --------
+    >>> from chirpsift.bank import Region
+    >>> r = Region(m1=(1.0, 3.0), m2=(1.0, 3.0))
+    >>> r.spinning
+    False
+    >>> m1, m2, chi1, chi2 = r.sample(4, seed=0)
+    >>> bool(((m1 >= 1) & (m1 <= 3)).all())
+    True
+    """
+
+    m1: tuple[float, float]
+    m2: tuple[float, float]
+    chi1: tuple[float, float] = (0.0, 0.0)
+    chi2: tuple[float, float] = (0.0, 0.0)
+    mtotal: tuple[float, float] | None = None
+    mass_ratio: tuple[float, float] | None = None
+
+    def __post_init__(self):
+        object.__setattr__(self, "m1", _range("m1", self.m1, positive=True))
+        object.__setattr__(self, "m2", _range("m2", self.m2, positive=True))
+        object.__setattr__(self, "chi1", _range("chi1", self.chi1, spin=True))
+        object.__setattr__(self, "chi2", _range("chi2", self.chi2, spin=True))
+        if self.mtotal is not None:
+            object.__setattr__(self, "mtotal", _range("mtotal", self.mtotal, positive=True))
+        if self.mass_ratio is not None:
+            q = _range("mass_ratio", self.mass_ratio, positive=True)
+            if q[1] < 1.0:
+                raise ValueError(f"mass_ratio is m_heavier / m_lighter >= 1, got {self.mass_ratio!r}")
+            object.__setattr__(self, "mass_ratio", q)
+        m1, m2, _, _ = self.sample(4096, seed=0, strict=False)
+        if m1.size == 0:
+            raise ValueError(f"the cuts mtotal={self.mtotal!r} and mass_ratio={self.mass_ratio!r} leave nothing of "
+                             f"m1={self.m1!r}, m2={self.m2!r}")
+
+    @property
+    def spinning(self) -> bool:
+        """Whether any spin range has width."""
+        return self.chi1 != (0.0, 0.0) or self.chi2 != (0.0, 0.0)
+
+    @property
+    def total_mass_range(self) -> tuple[float, float]:
+        """Smallest and largest total mass in the region (solar masses)."""
+        lo, hi = self.m1[0] + self.m2[0], self.m1[1] + self.m2[1]
+        if self.mtotal is not None:
+            lo, hi = max(lo, self.mtotal[0]), min(hi, self.mtotal[1])
+        return lo, hi
+
+    def _cuts(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        ok = np.ones(a.shape, dtype=bool)
+        if self.mtotal is not None:
+            t = a + b
+            ok &= (t >= self.mtotal[0]) & (t <= self.mtotal[1])
+        if self.mass_ratio is not None:
+            q = np.maximum(a, b) / np.minimum(a, b)
+            ok &= (q >= self.mass_ratio[0]) & (q <= self.mass_ratio[1])
+        return ok
+
+    def contains(self, m1, m2, chi1=0.0, chi2=0.0) -> np.ndarray:
+        """Whether binaries are in the region, in either labelling of their components."""
+        m1, m2, chi1, chi2 = np.broadcast_arrays(*(np.asarray(x, dtype=np.float64) for x in (m1, m2, chi1, chi2)))
+
+        def inside(a, b, sa, sb):
+            return ((a >= self.m1[0]) & (a <= self.m1[1]) & (b >= self.m2[0]) & (b <= self.m2[1])
+                    & (sa >= self.chi1[0]) & (sa <= self.chi1[1]) & (sb >= self.chi2[0]) & (sb <= self.chi2[1]))
+
+        return (inside(m1, m2, chi1, chi2) | inside(m2, m1, chi2, chi1)) & self._cuts(m1, m2)
+
+    def sample(self, n: int, *, seed=0, strict: bool = True):
+        """Draw binaries uniformly in component masses and spins, then apply the cuts.
+
+        Parameters
+        ----------
+        n : int
+            Number of binaries wanted.
+        seed : int or numpy.random.Generator, optional
+            Random state; the same seed gives the same points.
+        strict : bool, optional
+            Keep drawing until ``n`` binaries pass the cuts (default); otherwise return
+            those of one draw of ``n``.
+
+        Returns
+        -------
+        m1, m2, chi1, chi2 : ndarray
+            Each of length ``n`` (``strict``), labelled so ``m1 >= m2`` (spins alike).
+        """
+        rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+        parts, have = [], 0
+        for _ in range(1000):
+            a = rng.uniform(*self.m1, n)
+            b = rng.uniform(*self.m2, n)
+            sa = rng.uniform(*self.chi1, n)
+            sb = rng.uniform(*self.chi2, n)
+            keep = self._cuts(a, b)
+            parts.append(tuple(x[keep] for x in (a, b, sa, sb)))
+            have += int(keep.sum())
+            if not strict or have >= n:
+                break
+        a, b, sa, sb = (np.concatenate([p[i] for p in parts])[:n] for i in range(4))
+        swap = b > a
+        return (np.where(swap, b, a), np.where(swap, a, b), np.where(swap, sb, sa), np.where(swap, sa, sb))
+
+    def as_dict(self) -> dict:
+        """Return the region as plain lists (for file metadata and JSON)."""
+        out = {"m1": list(self.m1), "m2": list(self.m2), "chi1": list(self.chi1), "chi2": list(self.chi2)}
+        if self.mtotal is not None:
+            out["mtotal"] = list(self.mtotal)
+        if self.mass_ratio is not None:
+            out["mass_ratio"] = list(self.mass_ratio)
+        return out

@@ -1,0 +1,99 @@
+//! Bindings of `crate::overlap`: matches of explicit templates, fitting factors.
+
+use super::run;
+use crate::overlap::{self, Params, SweepGrid};
+use num_complex::{Complex32, Complex64};
+use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods};
+use pyo3::exceptions::PyValueError;
+use pyo3::prelude::*;
+
+#[pyfunction]
+#[pyo3(signature = (h1, h2, psd, df, f_low, f_high=None))]
+#[allow(clippy::too_many_arguments)]
+fn matches<'py>(
+    py: Python<'py>,
+    h1: &Bound<'py, PyAny>,
+    h2: &Bound<'py, PyAny>,
+    psd: PyReadonlyArray1<'py, f64>,
+    df: f64,
+    f_low: f64,
+    f_high: Option<f64>,
+) -> PyResult<Bound<'py, PyArray1<f64>>> {
+    let inv = crate::grid::inverse_psd(psd.as_slice()?);
+    if let (Ok(a), Ok(b)) = (h1.extract::<PyReadonlyArray2<Complex64>>(), h2.extract::<PyReadonlyArray2<Complex64>>()) {
+        if a.shape()[1] != b.shape()[1] {
+            return Err(PyValueError::new_err(format!(
+                "h2: has {} frequency bins but h1 has {}",
+                b.shape()[1],
+                a.shape()[1]
+            )));
+        }
+        let (x, y, n) = (a.as_slice()?, b.as_slice()?, a.shape()[1]);
+        let out = run(py, || overlap::matches(x, y, n, &inv, df, f_low, f_high))?;
+        return Ok(out.into_pyarray(py));
+    }
+    let a = h1.extract::<PyReadonlyArray2<Complex32>>()?;
+    let b = h2.extract::<PyReadonlyArray2<Complex32>>()?;
+    if a.shape()[1] != b.shape()[1] {
+        return Err(PyValueError::new_err(format!(
+            "h2: has {} frequency bins but h1 has {}",
+            b.shape()[1],
+            a.shape()[1]
+        )));
+    }
+    let (x, y, n) = (a.as_slice()?, b.as_slice()?, a.shape()[1]);
+    let out = run(py, || overlap::matches(x, y, n, &inv, df, f_low, f_high))?;
+    Ok(out.into_pyarray(py))
+}
+
+#[pyfunction]
+#[allow(clippy::too_many_arguments)]
+#[allow(clippy::type_complexity)]
+fn best_matches<'py>(
+    py: Python<'py>,
+    points: PyReadonlyArray2<'py, f64>,
+    bank: PyReadonlyArray2<'py, f64>,
+    indptr: PyReadonlyArray1<'py, i64>,
+    indices: PyReadonlyArray1<'py, i64>,
+    inv_psd: PyReadonlyArray1<'py, f64>,
+    df_fine: f64,
+    f_low: f64,
+    f_cap: f64,
+) -> PyResult<(Bound<'py, PyArray1<f64>>, Bound<'py, PyArray1<i64>>)> {
+    // parameters arrive as (4, n) rows m1, m2, chi1, chi2
+    let cols = |a: &PyReadonlyArray2<'py, f64>| -> PyResult<Vec<Vec<f64>>> {
+        let v = a.as_array();
+        Ok((0..4).map(|r| v.row(r).to_vec()).collect())
+    };
+    let (p, b) = (cols(&points)?, cols(&bank)?);
+    let to_usize = |a: &PyReadonlyArray1<'py, i64>| -> PyResult<Vec<usize>> {
+        a.as_slice()?
+            .iter()
+            .map(|&i| usize::try_from(i).map_err(|_| PyValueError::new_err(format!("negative index {i}"))))
+            .collect()
+    };
+    let (ip, ix) = (to_usize(&indptr)?, to_usize(&indices)?);
+    let w = inv_psd.as_slice()?;
+    let (values, which) = run(py, || {
+        overlap::best_matches(
+            &Params { m1: &p[0], m2: &p[1], chi1: &p[2], chi2: &p[3] },
+            &Params { m1: &b[0], m2: &b[1], chi1: &b[2], chi2: &b[3] },
+            &ip,
+            &ix,
+            &SweepGrid { inv_psd: w, df_fine, f_low, f_cap },
+        )
+    })?;
+    Ok((values.into_pyarray(py), which.into_pyarray(py)))
+}
+
+#[pyfunction]
+fn required_period(longest: f64) -> f64 {
+    overlap::required_period(longest)
+}
+
+pub(super) fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_function(wrap_pyfunction!(matches, m)?)?;
+    m.add_function(wrap_pyfunction!(best_matches, m)?)?;
+    m.add_function(wrap_pyfunction!(required_period, m)?)?;
+    Ok(())
+}
