@@ -12,6 +12,7 @@ Dask is imported here, inside the functions: the base install never needs it.
 from __future__ import annotations
 
 import contextlib
+import logging
 import os
 import sys
 
@@ -88,7 +89,7 @@ def batch_cluster(engine: EngineSettings, **extra):
                   worker_extra_args=args, python=engine.python or sys.executable,
                   job_script_prologue=[*engine.prologue, f"export CHIRPSIFT_THREADS={threads}",
                                        "export OMP_NUM_THREADS=1"],
-                  dashboard_address=None, log_directory=engine.log_directory,
+                  scheduler_options={"dashboard_address": ":0"}, log_directory=engine.log_directory,
                   local_directory=engine.local_directory, job_name="chirpsift")
     if engine.kind == "slurm":
         kwargs.update(queue=engine.queue, account=engine.account, walltime=engine.walltime,
@@ -154,10 +155,10 @@ def make_client(engine: EngineSettings):
         if engine.kind == "local":
             workers = engine.workers or max(1, (os.cpu_count() or 1) // threads)
             cluster = distributed.LocalCluster(
-                n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None,
+                n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=":0",
                 memory_limit=engine.memory or "auto", local_directory=engine.local_directory,
                 env={"CHIRPSIFT_THREADS": str(threads), "OMP_NUM_THREADS": "1"},
-                resources={RESOURCE: 1}, silence_logs="error")
+                resources={RESOURCE: 1}, silence_logs=logging.ERROR)
         else:
             cluster = batch_cluster(engine)
             cluster.adapt(minimum_jobs=engine.minimum_jobs, maximum_jobs=engine.workers or 10)
