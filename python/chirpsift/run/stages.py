@@ -128,7 +128,7 @@ def sub_banks(n: int, size: int) -> list[tuple[int, int]]:
     --------
     >>> from chirpsift.run.stages import sub_banks
     >>> sub_banks(10, 4)
-    [(0, 4), (4, 7), (7, 10)]
+    [(0, 3), (3, 7), (7, 10)]
     >>> sub_banks(3, 256)
     [(0, 3)]
     """
