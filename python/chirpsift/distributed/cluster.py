@@ -129,7 +129,7 @@ def make_client(engine: EngineSettings):
     ------
     ImportError
         Dask (or dask-jobqueue) is not installed; the message says how to install it.
-    OSError
+    ValueError
         The scheduler at ``address`` cannot be reached (a one-line message naming it).
 
     Notes
@@ -150,7 +150,8 @@ def make_client(engine: EngineSettings):
             try:
                 client = distributed.Client(engine.address, timeout="20s")
             except (OSError, TimeoutError) as exc:
-                raise OSError(f"cannot reach the Dask scheduler at {engine.address}: {exc}") from None
+                raise ValueError(f"cannot reach the Dask scheduler at {engine.address}: {exc}; check the address "
+                                 "and that the scheduler is running") from None
             return client, client.close
         if engine.kind == "local":
             workers = engine.workers or max(1, (os.cpu_count() or 1) // threads)
