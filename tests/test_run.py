@@ -178,11 +178,12 @@ def test_a_deleted_or_damaged_unit_output_is_redone_alone(done):
     before = outputs(out)
     late = sorted((out / "triggers" / "Heron").glob("span-*.parquet"))[-1]  # the span after the gap
     late.unlink()
+    span = late.stem.split("-")[1]  # span-<t0>-templates-0-2
     spectrum = out / "spectra" / "Kestrel.parquet"
     spectrum.write_bytes(spectrum.read_bytes()[:-10])  # truncated
     result = run_analysis(load_analysis(path))
     # later units: same inputs, same bytes
-    assert result.ran == [f"search/Heron/{late.stem[5:]}", "spectrum/Kestrel"]
+    assert result.ran == [f"search/Heron/{span}/0-2", "spectrum/Kestrel"]
     assert outputs(out) == before
 
 
@@ -317,7 +318,7 @@ def test_span_units_merge_to_the_whole_catalogues_search_and_a_short_span_is_rep
     short = synthetic.colored_gaussian_noise(int(4 * FS), FS, "gen2-zero-detuned", seed=3, f_low=20.0)
     np.savez(tmp_path / "kestrel" / "kestrel-99.npz", strain=short, sample_rate=FS, t0=T0 + 600.0)
     result = run_analysis(analysis, stop_after="merge")
-    assert result.ran == [f"search/Kestrel/{T0 + 600.0:.3f}", "merge/Kestrel"]  # a new file, a new span
+    assert result.ran == [f"search/Kestrel/{T0 + 600.0:.3f}/0-2", "merge/Kestrel"]  # a new file, a new span
     merged, meta = read_triggers(tmp_path / "out" / "triggers" / "Kestrel.parquet")
     cat = read_catalogue(list(analysis.data["Kestrel"].files))
     settings = analysis.search.as_dict()

@@ -200,3 +200,37 @@ def test_bad_arguments_are_named(tmp_path):
         search_catalogue(cat, BANK, f_low=F_LOW, segment_duration=64.0)
     with pytest.raises(ValueError, match=r"vetoes\[0\]: a veto must end after it starts"):
         search_catalogue(cat, BANK, vetoes=[(T0 + 5.0, T0 + 1.0)], **OPTIONS)
+
+
+@pytest.mark.parametrize("bank_cluster", [False, True])
+def test_sub_banks_reclustered_equal_the_whole_banks_search_bit_for_bit(glitchy, bank_cluster):
+    # Consistency test (expected values from the whole bank's search_catalogue); the outside
+    # check: the injection's known time is found by the sub-bank holding the 14 + 12 template.
+    from chirpsift.pipeline import cluster_across_bank
+
+    x, paths, t_c = glitchy
+    cat = read_catalogue(paths)
+    bank = cs.Bank(m1=[10.0, 14.0, 20.0, 12.0, 9.0], m2=[8.0, 12.0, 15.0, 6.0, 9.0])
+    options = dict(OPTIONS, gate_threshold=8.0, bank_cluster=bank_cluster)
+    (whole, info), _ = _quiet(search_catalogue, cat, bank, **options)
+    parts = []
+    for lo, hi in [(0, 1), (1, 3), (3, 5)]:
+        (part, part_info), _ = _quiet(search_catalogue, cat, bank, templates=(lo, hi), **options)
+        assert set(part["template"]) <= set(range(lo, hi)) and part_info["template_range"] == [lo, hi]
+        for key in ("analysed", "gates", "stretches", "live_time", "settings"):
+            assert part_info[key] == info[key], key
+        parts.append(part)
+        if lo == 1:
+            near = part[np.argmin(np.abs(part["time"] - t_c))]
+            assert abs(near["time"] - t_c) < 1.0 / FS and near["template"] == 1
+    union = np.concatenate(parts[::-1])  # any order
+    stretches = [(s["start"], s["stop"]) for s in info["stretches"]]
+    merged = cluster_across_bank(union, stretches, options.get("peak_window", 1.0)) if bank_cluster else \
+        union[np.lexsort((union["template"], union["time"]))]
+    assert len(whole) > 0 and merged.tobytes() == whole.tobytes()
+    if not bank_cluster:
+        assert len(cluster_across_bank(union, stretches, 1.0)) < len(union)  # clustering across the bank removes some
+    with pytest.raises(ValueError, match="templates must satisfy 0 <= lo < hi <= 5"):
+        search_catalogue(cat, bank, templates=(3, 9), **OPTIONS)
+    with pytest.raises(ValueError, match="outside every stretch"):
+        cluster_across_bank(union, [(T0 + 1e6, T0 + 2e6)], 1.0)

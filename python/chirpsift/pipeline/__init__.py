@@ -11,8 +11,8 @@ from ..triggers import TRIGGER_DTYPE
 from .live_time import CATEGORIES, LiveTimeTable
 from .settings import SEARCH_OPTIONS, SearchOption, SearchSettings
 from .single_site import MIN_ANALYSED_FRACTION, AnalysedFractionWarning, ExcludedDataWarning, search
-from .streaming import search_catalogue
+from .streaming import cluster_across_bank, search_catalogue
 
 __all__ = ["search", "SearchSettings", "SearchOption", "SEARCH_OPTIONS", "TRIGGER_DTYPE", "GatingWarning",
            "AnalysedFractionWarning", "ExcludedDataWarning", "MIN_ANALYSED_FRACTION",
-           "search_catalogue", "LiveTimeTable", "CATEGORIES"]
+           "search_catalogue", "cluster_across_bank", "LiveTimeTable", "CATEGORIES"]

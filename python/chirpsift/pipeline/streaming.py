@@ -21,12 +21,14 @@ few segments (and a PSD block) whatever the amount of data, and the triggers are
 
 from __future__ import annotations
 
+import operator
 import warnings
 from typing import NamedTuple
 
 import numpy as np
 
 from ..bank import Bank
+from ..clustering import cluster_in_time
 from ..condition import find_nonfinite_runs, stretches_between, subtract_intervals
 from ..gating import apply_gates
 from ..io.catalogue import Catalogue, Span
@@ -50,7 +52,7 @@ from .single_site import (
     search_stretch,
 )
 
-__all__ = ["search_catalogue", "SCAN_SAMPLES"]
+__all__ = ["search_catalogue", "cluster_across_bank", "SCAN_SAMPLES"]
 
 #: Samples read at a time when a span is scanned for non-finite samples.
 SCAN_SAMPLES = 1 << 20
@@ -177,7 +179,7 @@ def _seconds(span: Span, intervals):
 
 
 def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=False, allow_empty=False,
-                     **options):
+                     templates=None, **options):
     """Matched-filter search of a strain catalogue, reading its files block by block.
 
     The result is that of :func:`chirpsift.search` run on each span of abutting files
@@ -207,6 +209,14 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         analyse, return no triggers (the live-time table says where the time went)
         instead of raising. For searches of parts of a catalogue (one span each),
         where another part may hold the data.
+    templates : (int, int), optional
+        Filter only the bank's templates ``lo <= k < hi`` (a sub-bank), for searches
+        split over the bank. Everything else is planned from the whole bank (segment
+        lengths and pads from its longest template), the ``template`` column indexes
+        the whole bank, and ``bank_cluster`` is not applied, since it needs every
+        template's triggers: the triggers of all sub-banks, re-clustered by
+        :func:`cluster_across_bank`, are those of the search with the whole bank, bit
+        for bit. ``info["settings"]`` still holds ``bank_cluster`` as given.
     **options
         Any other option of :func:`chirpsift.search` (``min_snr``, ``segment_duration``,
         ``gate_threshold``, ``psd_duration``, ``nonfinite``, ...), with its meaning
@@ -225,7 +235,8 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         - ``live_time_table``: a :class:`chirpsift.pipeline.LiveTimeTable` placing every
           second from the first sample to the last in one category; its total is the
           catalogue's span;
-        - ``files``, ``spans``: counts;
+        - ``files``, ``spans``: counts; ``template_range``: ``[lo, hi)`` of the
+          templates filtered (``templates``, default the whole bank);
         - ``samples_read``: samples read from files over all steps (at most three per
           sample); ``largest_block``: the most samples held at once by one step.
 
@@ -284,6 +295,9 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         raise ValueError("bank must hold at least one template")
     psd = check_psd_argument(psd)
     settings = SearchSettings.from_mapping({**options, "f_low": f_low}, where="search_catalogue")
+    lo, hi = _template_range(templates, len(b))
+    sub = b if (lo, hi) == (0, len(b)) else b[lo:hi]
+    filter_settings = settings if templates is None else settings.replace(bank_cluster=False)
     veto_times = check_vetoes(vetoes)
     fs = catalogue.sample_rate
     longest = longest_template(b, settings, fs)
@@ -329,15 +343,18 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
     if not allow_empty or subtract_intervals(region, numbered_gates):
         live_after_gates(numbered, pads, numbered_gates, settings, fs, stacklevel=3)
 
-    bar = progress_bar([s for _, s in searched], b) if progress else None
+    bar = progress_bar([s for _, s in searched], sub) if progress else None
     found, psd_cache = [], {}
     try:
         for (span, s), gates in zip(searched, own_gates):
             psd_len = s.length if settings.psd_duration is None else int(round(settings.psd_duration * fs))
             data = _StretchData(span, s.start, s.stop, gates=gates, sample_rate=fs, taper=settings.gate_taper,
                                 retain=max(0, psd_len - s.length) if psd is None else 0)
-            found.append(search_stretch(data, span.t0 + s.start / fs, fs, s, b, settings, psd, psd_cache, bar,
-                                        gates))
+            peaks = search_stretch(data, span.t0 + s.start / fs, fs, s, sub, filter_settings, psd, psd_cache, bar,
+                                   gates)
+            if lo:  # sub-bank positions to whole-bank indices
+                peaks["template"] = peaks["template"] + peaks["template"].dtype.type(lo)
+            found.append(peaks)
             samples_read += data.samples_read
             largest = max(largest, data.largest)
     finally:
@@ -386,6 +403,7 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         "stretches": [{"start": span.t0 + s.start / fs, "stop": span.t0 + s.stop / fs, "segments": len(s.plans),
                        "segment_duration": s.length / fs} for span, s in searched],
         "templates": len(b),
+        "template_range": [lo, hi],
         "max_template_duration": longest * DURATION_MARGIN,
         "pad_start": pad_start / fs,
         "pad_end": pad_end / fs,
@@ -399,3 +417,73 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
         "largest_block": largest,
     }
     return triggers, info
+
+
+def _template_range(templates, n: int) -> tuple[int, int]:
+    if templates is None:
+        return 0, n
+    try:
+        lo, hi = (int(operator.index(v)) for v in templates)
+    except (TypeError, ValueError):
+        raise TypeError(f"templates must be a pair of integers (lo, hi), got {templates!r}") from None
+    if not 0 <= lo < hi <= n:
+        raise ValueError(f"templates must satisfy 0 <= lo < hi <= {n} (the bank's size), got {templates!r}")
+    return lo, hi
+
+
+def cluster_across_bank(triggers, stretches, peak_window):
+    """Keep the loudest trigger (reweighted SNR) within ``peak_window`` across the bank, per stretch.
+
+    The bank-wide clustering of :func:`chirpsift.search` (``bank_cluster``), applied to
+    the union of the trigger tables of sub-bank searches (:func:`search_catalogue`
+    with ``templates``), which leave it out because it needs every template's
+    triggers.
+
+    Parameters
+    ----------
+    triggers : ndarray with dtype :data:`chirpsift.TRIGGER_DTYPE`
+        Triggers of one or more stretches, each already clustered per template, in any
+        order.
+    stretches : sequence of (float, float)
+        ``(start, stop)`` times (s) of the searched stretches holding them; the search
+        clusters within each stretch only.
+    peak_window : float
+        Half-width of the clustering window (s), the search's ``peak_window``.
+
+    Returns
+    -------
+    ndarray with dtype :data:`chirpsift.TRIGGER_DTYPE`
+        The survivors sorted by time, then template (the search's order). Equal
+        reweighted SNRs within a window are resolved as the search resolves them: the
+        earlier trigger, then the lower template index, survives.
+
+    Raises
+    ------
+    ValueError
+        A trigger lies outside every stretch.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from chirpsift import TRIGGER_DTYPE
+    >>> from chirpsift.pipeline import cluster_across_bank
+    >>> t = np.zeros(3, dtype=TRIGGER_DTYPE)
+    >>> t["time"], t["template"], t["reweighted_snr"] = [10.0, 10.2, 14.0], [1, 0, 0], [7.0, 9.0, 6.0]
+    >>> kept = cluster_across_bank(t, [(0.0, 20.0)], 0.5)
+    >>> kept["time"].tolist(), kept["template"].tolist()
+    ([10.2, 14.0], [0, 0])
+    """
+    table = np.asarray(triggers)
+    if table.shape[0] == 0:
+        return table.copy()
+    edges = np.asarray(stretches, dtype=np.float64).reshape(-1, 2)
+    which = np.searchsorted(edges[:, 0], table["time"], side="right") - 1
+    outside = (which < 0) | (table["time"] >= edges[np.maximum(which, 0), 1])
+    if outside.any():
+        t = float(table["time"][np.argmax(outside)])
+        raise ValueError(f"a trigger at t={t!r} s lies outside every stretch given")
+    order = np.lexsort((table["time"], table["template"]))  # as the search holds them: template, then time
+    table, which = table[order], which[order]
+    keep = cluster_in_time(table["time"], table["reweighted_snr"], peak_window, groups=which)
+    kept = table[keep]
+    return kept[np.lexsort((kept["template"], kept["time"]))]

@@ -18,9 +18,10 @@ A workflow over the numpy API: it never touches the compiled core.
 """
 
 from .analysis import FORMAT_VERSION, SCHEMA, Analysis, SiteData, load_analysis, write_analysis
-from .driver import RunResult, run_analysis
+from .driver import FolderInUse, RunResult, UnitsFailed, run_analysis
 from .manifest import MANIFEST_NAME, Manifest, ManifestMismatch
 from .stages import STAGES, Unit, plan
 
 __all__ = ["Analysis", "SiteData", "load_analysis", "write_analysis", "SCHEMA", "FORMAT_VERSION", "run_analysis",
-           "RunResult", "Manifest", "ManifestMismatch", "MANIFEST_NAME", "STAGES", "Unit", "plan"]
+           "RunResult", "UnitsFailed", "FolderInUse", "Manifest", "ManifestMismatch", "MANIFEST_NAME", "STAGES",
+           "Unit", "plan"]

@@ -42,6 +42,10 @@ one. Layout::
 
     [report]
     top = 10                          # candidates listed in the report
+
+    [engine]                          # optional: where units run (chirpsift.distributed)
+    kind = "local"                    # process (default), local, scheduler, htcondor, slurm
+    workers = 2
 """
 
 from __future__ import annotations
@@ -54,6 +58,7 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
+from ..distributed.settings import ENGINE_KEYS, EngineSettings, engine_settings
 from ..io.readers import read_toml
 from ..network import Site, load_sites
 from ..network.coincidence import DEFAULT_ALLOWANCE
@@ -80,6 +85,7 @@ SCHEMA: dict[str, dict[str, str]] = {
         "network": "table: coincidence and time-slide settings",
         "injections": "table: simulated signals and sensitivity (optional)",
         "report": "table: report settings (optional)",
+        "engine": "table: where the units run and how the bank is split into units (optional)",
     },
     "sites": {
         "file": "a sites file in chirpsift.load_sites format",
@@ -118,6 +124,7 @@ SCHEMA: dict[str, dict[str, str]] = {
     "report": {
         "top": "number of loudest candidates listed in the report (default 10)",
     },
+    "engine": dict(ENGINE_KEYS),
 }
 
 
@@ -177,6 +184,9 @@ class Analysis:
         The ``[injections]`` table checked, with underscore names (``count``, ``m1``,
         ``m2``, ``spin1``, ``spin2``, ``distance``, ``distance_distribution``, ``seed``,
         ``found_ifar``), or None for no injection campaign.
+    engine : chirpsift.distributed.EngineSettings
+        Where the units run (not part of the settings hash: a run may resume on another
+        engine) and the templates per search unit (part of it: it decides the plan).
     """
 
     path: Path
@@ -190,6 +200,7 @@ class Analysis:
     allowance: float = DEFAULT_ALLOWANCE
     top: int = 10
     injections: dict | None = None
+    engine: EngineSettings = EngineSettings()
 
     @property
     def site_names(self) -> list[str]:
@@ -200,7 +211,9 @@ class Analysis:
         """Return everything that decides the results, as plain JSON-friendly values.
 
         The output folder and the analysis file's own path are left out (moving a run
-        changes nothing), and so is ``top`` (it only changes how much the report lists).
+        changes nothing), and so are ``top`` (it only changes how much the report lists)
+        and the engine (where units run changes no result), but not the templates per
+        unit, which decide the plan's units.
         """
         return {
             "format": FORMAT_VERSION,
@@ -214,6 +227,7 @@ class Analysis:
             "search": self.search.as_dict(),
             "network": {"slides": self.slides, "slide_step": self.slide_step, "allowance": self.allowance},
             "injections": self.injections,
+            "units": {"templates_per_unit": self.engine.templates_per_unit},
         }
 
     def settings_hash(self) -> str:
@@ -467,9 +481,10 @@ def load_analysis(path) -> Analysis:
     rep = _table(doc, "report", str(p), required=False)
     _check_keys(where, rep, SCHEMA["report"])
     top = _number(where, "top", rep.get("top", 10), integer=True, minimum=1)
+    engine = engine_settings(_table(doc, "engine", str(p), required=False), where=f"{p} [engine]", base=base)
     return Analysis(path=p, output=output, sites=tuple(known[n] for n in names), data=data, bank_file=bank_file,
                     search=search, slides=slides, slide_step=step, allowance=allowance, top=top,
-                    injections=injections)
+                    injections=injections, engine=engine)
 
 
 def _toml_value(value, where: str) -> str:

@@ -15,8 +15,11 @@ DESCRIPTION = (
     "catalogue, measure each site's spectrum, find coincidences and their time-slide background, give "
     "candidates false-alarm rates, run the injection campaign and measure the sensitivity (with an "
     "[injections] table) and write the HTML report. Every output is published atomically into the "
-    "output folder and recorded in its manifest.json; running the same command again skips what is complete. "
-    "Exit status: 0 done, 2 bad input (one line on stderr), 1 unexpected failure, 130 interrupted."
+    "output folder and recorded in its manifest.json; running the same command again skips what is complete, "
+    "on any engine. Units run in this process by default, or on Dask (the [engine] table, or --engine, "
+    "--workers, --scheduler; needs pip install \"chirpsift[cluster]\"). "
+    "Exit status: 0 done, 2 bad input (one line on stderr, naming failed units), 1 unexpected failure, "
+    "130 interrupted."
 )
 
 
@@ -32,6 +35,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
     parser.add_argument("--stop-after", metavar="STAGE", choices=STAGES,
                         help=f"stop once this stage is complete ({', '.join(STAGES)})")
+    from ..distributed.settings import ENGINE_KINDS
+
+    engine = parser.add_argument_group("engine (override the analysis file's [engine] table)")
+    engine.add_argument("--engine", metavar="KIND", choices=ENGINE_KINDS,
+                        help=f"where units run: {', '.join(ENGINE_KINDS)} (default: the file's, else process)")
+    engine.add_argument("--workers", metavar="N", type=int,
+                        help="local: worker processes; htcondor, slurm: the most jobs")
+    engine.add_argument("--threads-per-worker", metavar="N", type=int,
+                        help="chirpsift threads of each worker process, one unit at a time (default 1 on Dask)")
+    engine.add_argument("--scheduler", metavar="ADDRESS",
+                        help="join the running Dask scheduler at ADDRESS (engine 'scheduler')")
+    engine.add_argument("--attempts", metavar="N", type=int,
+                        help="tries of a failing unit before it is reported (default 1 in-process, 3 on Dask)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -51,20 +67,47 @@ def run(args: argparse.Namespace) -> int:
     if args.every < 1:
         raise ValueError(f"--every must be at least 1, got {args.every}")
     analysis = load_analysis(args.analysis)
+    engine = engine_from_flags(analysis.engine, args)
     try:
         result = run_analysis(analysis, progress="lines" if args.quiet else "bar", every=args.every,
-                              stop_after=args.stop_after)
+                              stop_after=args.stop_after, engine=engine)
     except KeyboardInterrupt:
         print(f"{PROG}: interrupted; completed units are kept: run the same command to resume", file=sys.stderr)
         return 130
     folder = analysis.output
-    print(f"{len(result.ran)} units run, {len(result.skipped)} already complete; outputs in {folder}")
+    where = "" if result.engine == "process" or not result.ran else f" on engine {result.engine!r}"
+    print(f"{len(result.ran)} units run{where}, {len(result.skipped)} already complete; outputs in {folder}")
     if (folder / "candidates.parquet").exists():
         print_summary(folder, analysis.site_names, analysis.top)
     report = folder / "report" / "report.html"
     if report.exists():
         print(f"Report: {report}")
     return 0
+
+
+def engine_from_flags(engine, args):
+    """Return the analysis file's engine with the command's flags applied (flags win).
+
+    ``--scheduler ADDRESS`` means ``--engine scheduler``; a flag that does not fit the
+    engine (``--workers`` with ``scheduler``) is an error naming it.
+    """
+    kind = args.engine
+    if args.scheduler is not None:
+        if kind not in (None, "scheduler"):
+            raise ValueError(f"--scheduler joins a running scheduler: it does not go with --engine {kind}")
+        kind = "scheduler"
+    changes = dict(kind=kind, workers=args.workers, threads_per_worker=args.threads_per_worker,
+                   address=args.scheduler, attempts=args.attempts)
+    if kind is not None and kind != engine.kind:  # keys of the file's engine that do not fit the new one
+        from ..distributed import EngineSettings
+
+        engine = EngineSettings(kind=kind, templates_per_unit=engine.templates_per_unit,
+                                attempts=engine.attempts, threads_per_worker=engine.threads_per_worker)
+    for flag in ("workers", "threads_per_worker", "attempts"):
+        value = getattr(args, flag)
+        if value is not None and value < 1:
+            raise ValueError(f"--{flag.replace('_', '-')} must be at least 1, got {value}")
+    return engine.replace(**changes)
 
 
 def print_summary(folder, names, top: int, out=None) -> None:

@@ -6,38 +6,48 @@ atomically into the output folder and returns facts for the manifest; it never w
 the manifest. Running a unit twice on the same inputs publishes the same bytes (no
 clock time, no host name in any output), so a unit can be redone at any time.
 
-=============================  =====================================  ===========================================
-unit key                       publishes                              what
-=============================  =====================================  ===========================================
-``bank``                       ``bank.parquet``                       the template bank (Bank.save layout)
-``search/<site>/<t0>``         ``triggers/<site>/span-<t0>.parquet``  one span of abutting files searched block by
-                                                                      block (:func:`~chirpsift.pipeline.
-                                                                      search_catalogue`), summary in metadata
-``merge/<site>``               ``triggers/<site>.parquet``            the site's spans in one table and summary
-``spectrum/<site>``            ``spectra/<site>.parquet``             amplitude spectral density over the run
-``background``                 ``background.parquet``                 time-slide coincidences
-``candidates``                 ``candidates.parquet``                 zero-lag coincidences with false-alarm rates
-``injections``                 ``injections/injections.parquet``      simulated binaries (``[injections]`` only)
-``inject-search/<site>/<t0>``  ``injections/triggers/<site>/...``     a span searched with the signals added
-``inject-merge/<site>``        ``injections/triggers/<site>.parquet`` the site's spans in one table
-``found-missed``               ``injections/found_missed.parquet``    each injection found or missed
-``sensitivity``                ``injections/sensitivity.json``        efficiency, sensitive range and VT
-``report``                     ``report/...``                         the HTML report and its PNG plots
-=============================  =====================================  ===========================================
+=====================================  =========================================  ====================================
+unit key                               publishes                                  what
+=====================================  =========================================  ====================================
+``bank``                               ``bank.parquet``                           the template bank (Bank.save layout)
+``search/<site>/<t0>/<lo>-<hi>``       ``triggers/<site>/span-<t0>-templates-``   one span of abutting files searched
+                                       ``<lo>-<hi>.parquet``                      block by block with templates lo to
+                                                                                  hi (:func:`~chirpsift.pipeline.
+                                                                                  search_catalogue`), summary in
+                                                                                  metadata
+``merge/<site>``                       ``triggers/<site>.parquet``                the site's units in one table and
+                                                                                  summary, re-clustered across the
+                                                                                  bank
+``spectrum/<site>``                    ``spectra/<site>.parquet``                 amplitude spectral density
+``background``                         ``background.parquet``                     time-slide coincidences
+``candidates``                         ``candidates.parquet``                     zero-lag coincidences with FARs
+``injections``                         ``injections/injections.parquet``          simulated binaries
+``inject-search/<site>/<t0>/<lo>-<hi>`` ``injections/triggers/<site>/...``        a unit searched with the signals
+``inject-merge/<site>``                ``injections/triggers/<site>.parquet``     the site's units in one table
+``found-missed``                       ``injections/found_missed.parquet``        each injection found or missed
+``sensitivity``                        ``injections/sensitivity.json``            efficiency, range and VT
+``report``                             ``report/...``                             the HTML report and its plots
+=====================================  =========================================  ====================================
 
 Unit size: one search unit per span of abutting files (``<t0>`` its start time, in s
-with millisecond digits). A span is searched exactly as the whole catalogue's search
-searches it (segments planned over each stretch, PSDs from its own data, gates in its
-own whitening blocks), so the merged triggers are bit-identical to one search of the
-whole catalogue, and so to an in-memory search of each span; memory stays bounded
-because a span is read block by block. A span with nothing long enough to search
-publishes an empty table whose live-time table says why.
+with millisecond digits) and sub-bank of ``templates-per-unit`` templates (``[engine]``;
+``<lo>-<hi>`` the first and last template, counted from 0). A span is searched exactly as
+the whole catalogue's search searches it (segments planned over each stretch from the
+whole bank's longest template, PSDs from its own data, gates in its own whitening
+blocks), each sub-bank's triggers clustered per template as the whole bank's are, and the
+merge clusters across the bank where ``bank-cluster`` asks
+(:func:`~chirpsift.pipeline.cluster_across_bank`), so the merged triggers are
+bit-identical to one search of the whole catalogue with the whole bank, and so to an
+in-memory search of each span; memory stays bounded because a span is read block by
+block. A span with nothing long enough to search publishes empty tables whose live-time
+table says why.
 """
 
 from __future__ import annotations
 
 import glob
 import os
+import re
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -52,11 +62,11 @@ from ..io.catalogue import Catalogue, Span, read_catalogue
 from ..network import coincidences
 from ..network.coincidence import CAUTIONS
 from ..network.far import YEAR, false_alarm_rate
-from ..pipeline import search_catalogue
+from ..pipeline import TRIGGER_DTYPE, cluster_across_bank, search_catalogue
 from ..spectrum import welch
 
-__all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times",
-           "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
+__all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times", "sub_banks",
+           "UnitOutputError", "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
 
 #: Stages in the order they run.
 STAGES = ("bank", "search", "merge", "spectrum", "background", "candidates", "injections", "inject-search",
@@ -93,6 +103,8 @@ class Unit:
         Start time (s) of the span a search unit covers.
     files : tuple of str
         The strain files a search unit reads (its span's).
+    templates : (int, int) or None
+        The templates ``lo <= k < hi`` of the bank a search unit filters.
     """
 
     key: str
@@ -102,6 +114,37 @@ class Unit:
     site: str | None = None
     span: float | None = None
     files: tuple[str, ...] = ()
+    templates: tuple[int, int] | None = None
+
+
+class UnitOutputError(ValueError):
+    """Files of planned units are missing, damaged or not what the manifest recorded (merge)."""
+
+
+def sub_banks(n: int, size: int) -> list[tuple[int, int]]:
+    """Split ``n`` templates into consecutive ``(lo, hi)`` ranges of at most ``size``, as even as possible.
+
+    Examples
+    --------
+    >>> from chirpsift.run.stages import sub_banks
+    >>> sub_banks(10, 4)
+    [(0, 3), (3, 7), (7, 10)]
+    >>> sub_banks(3, 256)
+    [(0, 3)]
+    """
+    if n <= 0:
+        return []
+    k = -(-n // size)
+    edges = [round(i * n / k) for i in range(k + 1)]
+    return list(zip(edges[:-1], edges[1:]))
+
+
+def _bank_size(analysis) -> int:
+    """Templates in the analysis's bank file (0 when it cannot be read: the bank unit says why)."""
+    try:
+        return len(Bank.load(analysis.bank_file))
+    except (OSError, ValueError):
+        return 0
 
 
 def plan(analysis) -> list[Unit]:
@@ -121,6 +164,7 @@ def plan(analysis) -> list[Unit]:
     names = analysis.site_names
     units = [Unit("bank", "bank", ("bank.parquet",))]
     found = {n: catalogue_of(analysis.data[n]).spans for n in names}
+    banks = sub_banks(_bank_size(analysis), analysis.engine.templates_per_unit)
     starts = {n: [span.t0 for span in found[n]] for n in names}
     files = {n: [tuple(str(f.path) for f in span.files) for span in found[n]] for n in names}
     spans = {n: [f"{t0:.3f}" for t0 in starts[n]] for n in names}
@@ -129,11 +173,13 @@ def plan(analysis) -> list[Unit]:
         out = []
         for n in names:
             for label, t0, paths in zip(spans[n], starts[n], files[n]):
-                out.append(Unit(f"{stage}/{n}/{label}", stage, (f"{prefix}triggers/{n}/span-{label}.parquet",),
-                                after, n, t0, paths))
+                for lo, hi in banks:
+                    out.append(Unit(f"{stage}/{n}/{label}/{lo}-{hi - 1}", stage,
+                                    (f"{prefix}triggers/{n}/span-{label}-templates-{lo}-{hi - 1}.parquet",),
+                                    after, n, t0, paths, (lo, hi)))
         merge = "merge" if stage == "search" else "inject-merge"
         out += [Unit(f"{merge}/{n}", merge, (f"{prefix}triggers/{n}.parquet",),
-                     tuple(f"{stage}/{n}/{label}" for label in spans[n]), n) for n in names]
+                     ("bank", *(u.key for u in out if u.site == n)), n) for n in names]
         return out
 
     units += span_units("search", "", ("bank",))
@@ -152,6 +198,9 @@ def plan(analysis) -> list[Unit]:
     everything = tuple(u.key for u in units)
     pages = report_files(analysis.injections is not None)
     units.append(Unit("report", "report", tuple(f"report/{f}" for f in pages), everything))
+    outputs = [rel for u in units for rel in u.outputs]
+    if len(set(outputs)) != len(outputs) or len({u.key for u in units}) != len(units):  # pragma: no cover
+        raise AssertionError("two units of the plan share a key or an output")
     return units
 
 
@@ -286,7 +335,7 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         triggers, info = search_catalogue(catalogue, bank, f_low=f_low, vetoes=vetoes, progress=progress,
-                                          allow_empty=True, **settings)
+                                          allow_empty=True, templates=unit.templates, **settings)
     table = info["live_time_table"]
     meta = {
         "table": "triggers",
@@ -309,6 +358,7 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
         "segment_duration": info["segment_duration"],
         "sample_rate": info["sample_rate"],
         "templates": info["templates"],
+        "template_range": info["template_range"],
         "max_template_duration": info["max_template_duration"],
         "warnings": [f"{w.category.__name__}: {w.message}" for w in caught],
     }
@@ -316,13 +366,97 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     return {"rows": int(len(triggers)), "live_time": float(info["live_time"])}
 
 
-def _merge(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+_TRIGGER_SCHEMA = [(name, str(np.dtype(TRIGGER_DTYPE[name]))) for name in TRIGGER_DTYPE.names]
+_UNIT_OUTPUT = re.compile(r"^(?P<stage>[a-z-]+)/(?P<site>[^/]+)/(?P<span>[^/]+)/(?P<lo>\d+)-(?P<last>\d+)$")
+
+
+def _unit_file(prefix: str, key: str) -> str:
+    """Return the file a search unit publishes, from its key."""
+    m = _UNIT_OUTPUT.match(key)
+    return f"{prefix}triggers/{m['site']}/span-{m['span']}-templates-{m['lo']}-{m['last']}.parquet"
+
+
+def _check_unit_files(folder: Path, unit: Unit, prefix: str, upstream) -> list[tuple[str, Path]]:
+    """Every planned search unit of a merge, present once and valid, or a UnitOutputError naming the rest.
+
+    Valid: a readable Parquet footer, the trigger table's columns and types, and the row
+    count the manifest recorded (when ``upstream`` holds the manifest's entries).
+    """
+    import pyarrow.parquet as pq
+
+    keys = [k for k in unit.after if k != "bank"]
+    found, problems = [], []
+    for key in keys:
+        rel = next(iter(upstream[key]["files"])) if upstream and key in upstream else _unit_file(prefix, key)
+        path = folder / rel
+        try:
+            meta = pq.read_metadata(path)
+            schema = meta.schema.to_arrow_schema()
+        except FileNotFoundError:
+            problems.append(f"{key}: {rel} is missing")
+            continue
+        except (OSError, ValueError) as exc:  # pyarrow's ArrowInvalid is a ValueError
+            problems.append(f"{key}: {rel} has no readable Parquet footer ({str(exc).splitlines()[0]})")
+            continue
+        if [(f.name, str(f.type)) for f in schema] != _expected_columns():
+            problems.append(f"{key}: {rel} does not hold the trigger table's columns")
+            continue
+        rows = upstream[key].get("rows") if upstream and key in upstream else None
+        if rows is not None and meta.num_rows != rows:
+            problems.append(f"{key}: {rel} holds {meta.num_rows} rows, the manifest recorded {rows}")
+            continue
+        found.append((key, path))
+    site_folder = folder / f"{prefix}triggers" / unit.site
+    planned = {p.name for _, p in found} | {Path(_unit_file(prefix, k)).name for k in keys}
+    stray = sorted(p.name for p in site_folder.glob("*.parquet") if p.name not in planned) \
+        if site_folder.is_dir() else []
+    if stray:
+        problems.append(f"{len(stray)} file(s) in {site_folder} belong to no planned unit ({', '.join(stray[:3])}); "
+                        "they would be read with the site's results by a dataset reader: remove them")
+    if problems:
+        raise UnitOutputError(f"{unit.key}: {len(problems)} problem(s) with the units it merges: "
+                              + "; ".join(problems[:10]) + ("; ..." if len(problems) > 10 else "")
+                              + "; run the same command again to redo them")
+    return found
+
+
+def _expected_columns() -> list[tuple[str, str]]:
+    """Column names and Arrow types of a published trigger table."""
+    import pyarrow as pa
+
+    return [(name, str(pa.from_numpy_dtype(np.dtype(kind)))) for name, kind in _TRIGGER_SCHEMA]
+
+
+def _same(metas, key):
+    first = metas[0][key]
+    return all(m[key] == first for m in metas[1:])
+
+
+def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) -> dict:
     prefix = "injections/" if unit.stage == "inject-merge" else ""
-    parts = [read_triggers(folder / f"{prefix}triggers/{unit.site}/span-{k.rsplit('/', 1)[1]}.parquet")
-             for k in unit.after]
+    found = _check_unit_files(folder, unit, prefix, upstream)
+    by_span: dict[str, list] = {}
+    for key, path in found:  # plan order: spans in time, sub-banks in template order
+        by_span.setdefault(key.split("/")[2], []).append(read_triggers(path))
     catalogue = catalogue_of(analysis.data[unit.site])
-    metas = [m for _, m in parts]
-    triggers = np.concatenate([t for t, _ in parts])
+    peak_window = analysis.search.peak_window
+    metas, tables = [], []
+    for label, parts in by_span.items():
+        span_metas = [m for _, m in parts]
+        for k in ("span", "analysed", "stretches", "gates", "live_time_table"):
+            if not _same(span_metas, k):
+                raise UnitOutputError(f"{unit.key}: the units of the span from {label} s disagree on {k!r}: its "
+                                      "files changed during the run; run the same command again")
+        union = np.concatenate([t for t, _ in parts])
+        stretches = [(s["start"], s["stop"]) for s in span_metas[0]["stretches"]]
+        if analysis.search.bank_cluster:
+            tables.append(cluster_across_bank(union, stretches, peak_window))
+        else:  # the order of the whole bank's search: time, then template
+            tables.append(union[np.lexsort((union["template"], union["time"]))])
+        metas.append(span_metas[0])
+    triggers = np.concatenate(tables) if tables else np.zeros(0, dtype=TRIGGER_DTYPE)
+    if not metas:  # an empty bank: the bank unit has already failed
+        raise UnitOutputError(f"{unit.key}: no search unit to merge")
     tables = [m["live_time_table"] for m in metas]
     seconds = {c: float(sum(t["seconds"][c] for t in tables)) for c in tables[0]["seconds"]}
     intervals = {c: [iv for t in tables for iv in t["intervals"][c]] for c in tables[0]["intervals"]}
@@ -355,6 +489,7 @@ def _merge(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
         "segment_duration": max(m["segment_duration"] for m in metas),
         "sample_rate": metas[0]["sample_rate"],
         "templates": metas[0]["templates"],
+        "units": len(found),
         "max_template_duration": metas[0]["max_template_duration"],
         "warnings": [f"span from {m['span'][0]!r} s: {w}" for m in metas for w in m["warnings"]],
     }
@@ -553,8 +688,11 @@ _RUNNERS = {"bank": _bank, "search": _search, "merge": _merge, "spectrum": _spec
             "inject-merge": _merge, "found-missed": _found_missed, "sensitivity": _sensitivity, "report": _report}
 
 
-def execute(unit: Unit, analysis, *, progress: bool = False) -> dict:
+def execute(unit: Unit, analysis, *, progress: bool = False, upstream: dict | None = None) -> dict:
     """Run one unit: compute and publish its files atomically.
+
+    The same call in the driver's process or on a Dask worker: it reads only the
+    analysis's inputs and the files of ``unit.after``, and never writes the manifest.
 
     Parameters
     ----------
@@ -564,15 +702,30 @@ def execute(unit: Unit, analysis, *, progress: bool = False) -> dict:
         The analysis.
     progress : bool, optional
         Show the search's own progress bar.
+    upstream : dict, optional
+        The manifest's entries of ``unit.after`` (files, sizes, hashes, rows), which a
+        merge checks its inputs against.
 
     Returns
     -------
     dict
         Facts for the manifest (``rows``: rows of its table).
+
+    Raises
+    ------
+    UnitOutputError
+        A merge found planned units missing or damaged (the message names them).
     """
     folder = Path(analysis.output)
     for rel in unit.outputs:
         (folder / rel).parent.mkdir(parents=True, exist_ok=True)
+    if unit.stage in ("merge", "inject-merge"):
+        return _merge(analysis, folder, unit, progress, upstream)
     return _RUNNERS[unit.stage](analysis, folder, unit, progress)
+
+
+def execute_unit(unit: Unit, analysis, upstream: dict | None = None) -> dict:
+    """:func:`execute` without a progress bar: the task a Dask worker runs for a unit."""
+    return execute(unit, analysis, upstream=upstream)
 
 

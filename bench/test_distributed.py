@@ -1,0 +1,127 @@
+"""Scale-out of ``chirpsift run``: 2 Dask worker processes of 1 thread against 1 in-process thread.
+
+One run measures, on the same analysis and the same units (the search stage: two sites,
+one span each, a bank of binary-neutron-star templates split into sub-banks of the
+default ``templates-per-unit``):
+
+- the throughput ratio: in-process time at 1 thread over the time of a ``LocalCluster``
+  of 2 worker processes x 1 thread (target >= 1.8; the cluster's start is not counted);
+- the scheduling overhead per unit: ``(workers x wall - sum of unit compute) / units``
+  over the mean compute of a unit (target < 2 %). Idle time at the end, when fewer units
+  remain than workers, counts as overhead, so this is an upper bound;
+- the bytes of each unit's task sent to a worker and of its result (measured by
+  pickling: no strain or trigger array travels through the scheduler);
+- the per-template throughput (template-seconds of data per second of one thread), the
+  number the README's core-hour estimate scales.
+
+Both runs must publish the same bytes (checked). The machine is shared: run it once,
+``python bench/test_distributed.py`` (add ``--quick`` for a quarter of the data), or
+``pytest bench/test_distributed.py --benchmark-only``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+FS = 2048.0
+F_LOW = 30.0
+T0 = 1_200_000_000.0
+SITES = ("Kestrel", "Heron")
+#: name -> (seconds of data per site, templates); templates-per-unit is the default (256)
+SIZES = {"quick": (256.0, 512), "full": (512.0, 1024)}
+
+
+def _scenario(folder: Path, seconds: float, templates: int) -> tuple[Path, Path]:
+    from chirpsift.benchmarks.banks import component_mass_bank
+    from chirpsift.network import EXAMPLE_SITES
+    from chirpsift.synthetic import colored_gaussian_noise
+
+    for k, site in enumerate(SITES):
+        (folder / site).mkdir(parents=True)
+        x = colored_gaussian_noise(int(seconds * FS), FS, "gen2-zero-detuned", seed=k, f_low=20.0)
+        np.savez(folder / site / "strain.npz", strain=x, sample_rate=FS, t0=T0)
+    component_mass_bank(templates, 1.2, 2.0).save(folder / "bank.parquet")
+    (folder / "sites.toml").write_text(Path(EXAMPLE_SITES).read_text())
+    data = "".join(f'[data.{s}]\nfiles = "{s}/*.npz"\n\n' for s in SITES)
+    common = f'[sites]\nfile = "sites.toml"\n\n{data}[bank]\nfile = "bank.parquet"\n\n[search]\nf-low = {F_LOW}\n'
+    one = folder / "in-process.toml"
+    one.write_text(f'output = "in-process"\n{common}\n[engine]\nthreads-per-worker = 1\n')
+    two = folder / "local.toml"
+    two.write_text(f'output = "local"\n{common}\n[engine]\nkind = "local"\nworkers = 2\nthreads-per-worker = 1\n')
+    return one, two
+
+
+def _outputs(folder: Path) -> dict:
+    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def run(size: str = "full", folder: str | None = None) -> dict:
+    """Measure; return the numbers of the module docstring."""
+    from chirpsift.distributed import make_client
+    from chirpsift.run import load_analysis, run_analysis
+
+    seconds, templates = SIZES[size]
+    root = Path(folder or tempfile.mkdtemp(prefix="chirpsift-bench-"))
+    one, two = _scenario(root, seconds, templates)
+    a1, a2 = load_analysis(one), load_analysis(two)
+    run_analysis(a1, stop_after="bank")
+    run_analysis(a2, stop_after="bank")
+    t = time.perf_counter()
+    r1 = run_analysis(a1, stop_after="search")
+    t1 = time.perf_counter() - t
+    client, close = make_client(a2.engine)
+    try:
+        client.run(lambda: None)  # workers up
+        t = time.perf_counter()
+        r2 = run_analysis(a2, stop_after="search", client=client)
+        t2 = time.perf_counter() - t
+    finally:
+        close()
+    units = [k for k in r2.ran if k.startswith("search/")]
+    compute = sum(r2.seconds[k] for k in units)
+    mean = compute / len(units)
+    same = _outputs(root / "in-process") == {k: v for k, v in _outputs(root / "local").items()}
+    out = {
+        "size": size, "seconds_per_site": seconds, "templates": templates, "sample_rate": FS, "f_low": F_LOW,
+        "templates_per_unit": a2.engine.templates_per_unit, "units": len(units),
+        "in_process_1_thread_s": t1, "local_2x1_s": t2, "throughput_ratio": t1 / t2,
+        "mean_unit_compute_s": mean, "overhead_per_unit_s": (2 * t2 - compute) / len(units),
+        "overhead_ratio": (2 * t2 - compute) / len(units) / mean,
+        "bytes_sent_per_unit": float(np.mean([r2.sent[k] for k in units])),
+        "bytes_received_per_unit": float(np.mean([r2.received[k] for k in units])),
+        "template_seconds_per_second_1_thread": templates * seconds * len(SITES) / sum(
+            r1.seconds[k] for k in r1.ran if k.startswith("search/")),
+        "identical_outputs": same,
+        "load_average": os.getloadavg()[0],
+    }
+    if folder is None:
+        shutil.rmtree(root, ignore_errors=True)
+    return out
+
+
+@pytest.mark.parametrize("size", ["quick", "full"])
+def test_two_worker_processes_against_one_thread(benchmark, tmp_path, size):
+    """Time both runs once and keep the numbers in the benchmark's extra info."""
+    pytest.importorskip("distributed")
+    numbers = benchmark.pedantic(run, args=(size, str(tmp_path)), rounds=1, iterations=1, warmup_rounds=0)
+    benchmark.group = "chirpsift run: scale-out"
+    benchmark.extra_info.update(numbers)
+    assert numbers["identical_outputs"]
+
+
+if __name__ == "__main__":
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="a quarter of the data and half the templates")
+    args = parser.parse_args()
+    print(json.dumps(run("quick" if args.quick else "full"), indent=2))
+    sys.exit(0)
