@@ -162,7 +162,7 @@ def summary_lines(outcome: dict, truth: dict) -> list[str]:
     ]
     out += ["  " + line for line in _table(table, ["", "injected", "recovered"])]
     out.append("  (optimal SNR: from the design curve the noise was drawn from; measured: the matched filter's, "
-               "with the bank's nearest template; statistic: quadrature sum of reweighted SNRs)")
+               "with the loudest template; statistic: quadrature sum of reweighted SNRs)")
     if row is not None and bool(row["far_bound"]):
         out.append(f"  No background coincidence in {meta['n_slides']} slides was as loud: its IFAR is beyond the "
                    "background's reach.")
@@ -174,9 +174,12 @@ def summary_lines(outcome: dict, truth: dict) -> list[str]:
     sens = outcome["sensitivity"]
     s = (sens or {}).get("sensitivity")
     if s:
+        found = f"a coincidence within {MATCH_WINDOW:g} s of it"
+        found += (", whatever its IFAR, so the range is optimistic" if not sens["found_ifar"]
+                  else f" with IFAR at least {sens['found_ifar']:g} yr")
         out.append(f"Sensitive range: {s['range']:.0f} +/- {s['range_error']:.0f} Mpc ({s['found']} of "
-                   f"{sens['analysed_injections']} injections in common time found; a short campaign, so the "
-                   "error is large; this population and these synthetic data only).")
+                   f"{sens['analysed_injections']} injections in common time found; found means {found}; a short "
+                   "campaign, so the error is large; for this population and these synthetic data only).")
     elif sens is not None:
         out.append("Sensitive range: none measured (no injection fell in time all sites analysed).")
     out += ["Cautions: the data are synthetic Gaussian noise; false-alarm rates from time slides assume "
