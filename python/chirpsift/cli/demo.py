@@ -76,7 +76,8 @@ def _prepare(folder: Path, scenario) -> bool:
     truth = read_scenario(folder)
     if truth is None:
         raise UsageError(f"--output {str(folder)!r} holds files that are not a complete chirpsift demo (no "
-                         "scenario.json); give another folder, or remove it")
+                         "scenario.json, which a demo writes last: an interrupted one leaves none); give another "
+                         "folder, or remove it")
     wanted = {k: getattr(scenario, k) for k in ("minutes", "seed", "slides", "injections")}
     held = {k: truth.get(k) for k in wanted}
     if held != wanted:
