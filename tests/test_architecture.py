@@ -3,7 +3,7 @@
 Two rules (DESIGN.md, "Layers"):
 
 1. Workflow subpackages (``bank``, ``pipeline``, ``network``, ``inject``, ``io``, ``run``,
-   ``report``, ``cli``, ``benchmarks``, ``distributed``) and the pure-numpy twin
+   ``report``, ``cli``, ``benchmarks``, ``distributed``, ``demo``) and the pure-numpy twin
    ``reference`` never import the compiled core ``_core``: they go through the numpy API,
    so the core can change behind it and the twin stays independent of what it checks.
    (A workflow still written as a single module, such as ``bank.py``, counts too.)
@@ -31,6 +31,7 @@ PACKAGE = "chirpsift"
 CORE = f"{PACKAGE}._core"
 NO_CORE_LAYERS = {
     "bank", "pipeline", "network", "inject", "io", "run", "report", "cli", "benchmarks", "distributed", "reference",
+    "demo",
 }
 
 

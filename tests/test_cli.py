@@ -8,7 +8,6 @@ error, as argparse itself uses).
 """
 
 import json
-import math
 import os
 import re
 from pathlib import Path
@@ -552,34 +551,3 @@ def test_search_leaves_out_nan_runs(small_run, tmp_path, capsys):
     assert doc["analysed"] and all(b <= nan_start or a >= nan_stop for a, b in doc["analysed"])
     assert any(a <= small_run["tc"] < b for a, b in doc["analysed"])
     assert doc["excluded"] == [pytest.approx([nan_start, nan_stop])]  # recorded in the summary
-
-
-def test_demo_runs_and_labels_what_it_shows(capsys, tmp_path):
-    rc = main(["demo", "--duration", "512", "--threads", "2", "--no-progress", "--output-dir", str(tmp_path)])
-    out = capsys.readouterr().out
-    assert rc == 0
-    assert "Site A" in out
-    # injected optimal SNR and measured SNRs in separate, labelled columns
-    header = next(line for line in out.splitlines() if line.lstrip().startswith("time (s)"))
-    for column in ("time (s)", "optimal SNR", "measured SNR", "chi2/dof", "reweighted SNR"):
-        assert column in header
-    rows = {line.split()[0] + " " + line.split()[1]: line for line in out.splitlines()
-            if line.startswith(("injected source", "loudest trigger"))}
-    assert set(rows) == {"injected source", "loudest trigger"}
-    assert rows["injected source"].split()[-3:] == ["-", "-", "-"]  # no measured values for the source
-    # how much was analysed, and what chi-squared to expect
-    assert re.search(r"Analysed [\d.]+ s of the 512 s \([\d.]+%\)", out)
-    flat = " ".join(out.split())
-    assert "2p - 2 = 30 degrees of freedom" in flat
-    assert "Bank.mass_grid" in flat and "crude grid, not a covering bank" in flat
-
-    doc = json.loads((tmp_path / "summary.json").read_text())
-    inj = doc["injection"]
-    assert abs(doc["loudest"]["time"] - inj["time"]) < 0.05
-    # the source lies between the bank's grid points, not on a template
-    bank = Bank.load(tmp_path / "bank.npz")
-    nearest = np.min(np.hypot(bank.m1 - inj["m1"], bank.m2 - inj["m2"]))
-    assert nearest > 0.01
-    # measured SNR: the optimal SNR 12 times the best template's match, give or take the
-    # noise (unit variance per quadrature, so a few units at most)
-    assert math.isfinite(doc["loudest"]["snr"]) and abs(doc["loudest"]["snr"] - 12.0 * inj["best_match"]) < 3.0

@@ -65,7 +65,7 @@ figure { margin: 0; } figcaption { font-size: 0.9rem; }
 .scroll { overflow-x: auto; max-width: 100%; }
 table { border-collapse: collapse; font-size: 0.85rem; font-variant-numeric: tabular-nums; }
 th, td { border: 1px solid #b9c4d0; padding: 0.2rem 0.45rem; text-align: right; white-space: nowrap; }
-th { background: var(--pale); } td.l, th.l { text-align: left; }
+th { background: var(--pale); white-space: normal; vertical-align: bottom; } td.l, th.l { text-align: left; }
 td.w { text-align: left; white-space: normal; overflow-wrap: anywhere; min-width: 10rem; }
 .caution { border-left: 6px solid var(--amber); background: #fff7e8; padding: 0.5rem 0.8rem; }
 .caution li { margin: 0.3rem 0; }
@@ -144,8 +144,8 @@ def _top_series(analysis: dict, names, spectra, cand, settings, out: Path) -> st
         plots.plot_message(out, "Top candidate", "The data around the top candidate could not be read again.")
         return "The data around the top candidate could not be filtered again."
     t_ref = float(cand["time"])
-    plots.plot_candidate_series(series, t_ref, out, title=f"Top candidate: template {m1:.3g} + {m2:.3g} Msun")
-    return (f"The top candidate's template ({m1:.4g} + {m2:.4g} solar masses) filtered again over a short stretch "
+    plots.plot_candidate_series(series, t_ref, out, title=f"Top candidate: template {m1:#.4g} + {m2:#.4g} Msun")
+    return (f"The top candidate's template ({m1:#.4g} + {m2:#.4g} solar masses) filtered again over a short stretch "
             "at each site, with the site's median PSD over the run; chi-squared with "
             f"{2 * settings['chi2_bands'] - 2} degrees of freedom.")
 
@@ -333,7 +333,7 @@ def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, o
     for r in rows:
         ifar = r["ifar_years"]
         ifar_text = "n/a" if not math.isfinite(ifar) else (("&gt;" if r["ifar_is_bound"] else "") + _fmt(ifar, 3))
-        body.append([str(r["rank"]), f"{r['time']:.4f}", f"{r['m1']:.3g} + {r['m2']:.3g}"]
+        body.append([str(r["rank"]), f"{r['time']:.4f}", f"{r['m1']:#.4g} + {r['m2']:#.4g}"]
                     + [_fmt(r[f"{n}_snr"], 4) for n in names] + [_fmt(r[f"{n}_chi2_per_dof"], 3) for n in names]
                     + [_fmt(r["statistic"], 4), ifar_text])
     parts.append(f"<h2>Loudest candidates</h2><p>{summary['candidates']} zero-lag candidates; the "
@@ -353,8 +353,8 @@ def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, o
     parts.append("<h2>Template bank</h2>" + _figure(out, "bank.png", "template bank in the component-mass plane",
                                                     "The templates searched."))
     # settings and versions
-    s_rows = [[_esc(k), _esc(v)] for k, v in analysis["search"].items()]
-    s_rows += [[f"network.{_esc(k)}", _esc(v)] for k, v in analysis["network"].items()]
+    s_rows = [[_esc(k), "default" if v is None else _esc(v)] for k, v in analysis["search"].items()]
+    s_rows += [[f"network.{_esc(k)}", "default" if v is None else _esc(v)] for k, v in analysis["network"].items()]
     s_rows += [["settings hash", f"<code>{_esc(doc['settings_hash'])}</code>"]]
     parts.append("<h2>Settings</h2>" + _table(["setting", "value"], s_rows, left=(0,), wrap=(1,)))
     f_rows = [[_esc(n), "<br>".join(_esc(f) for f in analysis["data"][n]["files"])] for n in names]
