@@ -8,6 +8,8 @@ eta = m1 m2 / M^2), numpy's structured arrays and pyarrow's Parquet reader.
 import itertools
 import re
 
+import json
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -164,8 +166,9 @@ def test_npz_layout_is_as_documented(tmp_path, bank):
     p = tmp_path / "bank.npz"
     bank.save(p)
     with np.load(p) as z:
-        assert set(z.files) == {"m1", "m2", "chi1", "chi2", "format", "version"}
+        assert set(z.files) == {"m1", "m2", "chi1", "chi2", "format", "version", "metadata"}
         assert str(z["format"]) == "chirpsift-bank" and int(z["version"]) == 1
+        assert json.loads(str(z["metadata"])) == {}
 
 
 def test_load_foreign_parquet_without_spins(tmp_path):

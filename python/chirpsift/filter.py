@@ -49,7 +49,12 @@ def band(f_low, f_high, df, n_freq):
     return tuple(int(k) for k in _core.band(fl, fh, positive_scalar("df", df), integer("n_freq", n_freq)))
 
 
-def _band(psd: np.ndarray, df: float, f_low, f_high):
+def checked_band(psd: np.ndarray, df: float, f_low, f_high):
+    """Validate a band against a PSD on ``k df`` and return ``(f_low, f_high)`` as floats.
+
+    Raises ``ValueError`` when ``f_low`` is above Nyquist, ``f_high <= f_low``, the band
+    holds no bins, or the PSD is infinite over all of it.
+    """
     fl = nonnegative_scalar("f_low", f_low)
     n_freq = psd.shape[-1]
     f_top = (n_freq - 1) * df
@@ -103,7 +108,7 @@ def sigma(templates, psd, df, f_low, f_high=None):
     p = psd_array("psd", psd, ndim=1)
     dfv = positive_scalar("df", df)
     h, h2 = _templates(templates, p.shape[0])
-    fl, fh = _band(p, dfv, f_low, f_high)
+    fl, fh = checked_band(p, dfv, f_low, f_high)
     out = finite_output(_core.sigma(h2, p, dfv, fl, fh), "templates or psd", " (norm beyond float64)")
     return float(out[0]) if h.ndim == 1 else out
 
@@ -148,7 +153,7 @@ def snr_series(data_fd, templates, psd, df, f_low, f_high=None, dtype=np.complex
         raise ValueError(f"psd must have {d.shape[0]} bins to match data_fd, got {p.shape[0]}")
     dfv = positive_scalar("df", df)
     _, h2 = _templates(templates, d.shape[0])
-    fl, fh = _band(p, dfv, f_low, f_high)
+    fl, fh = checked_band(p, dfv, f_low, f_high)
     dt = dtype_choice("dtype", dtype, (np.complex64, np.complex128))
     out = _core.snr_series(d, h2, p, dfv, fl, fh, dt.name)
     return finite_output(out, "data_fd, templates or psd", f" (the SNR does not fit in {dt.name}; try dtype=complex128)")

@@ -17,7 +17,7 @@ import numpy as np
 
 from . import _core
 from ._validate import complex_array, positive_scalar, psd_array, real_array
-from .filter import _band
+from .filter import checked_band
 
 __all__ = ["match", "best_matches", "required_period"]
 
@@ -95,7 +95,7 @@ def match(h1, h2, psd, df, f_low, f_high=None):
     if a2.shape[0] != b2.shape[0] and 1 not in (a2.shape[0], b2.shape[0]):
         raise ValueError(f"h1 has {a2.shape[0]} rows and h2 {b2.shape[0]}: give equal counts or one row on a side")
     d = positive_scalar("df", df)
-    fl, fh = _band(p, d, f_low, f_high)
+    fl, fh = checked_band(p, d, f_low, f_high)
     dtype = np.complex64 if a2.dtype == np.complex64 and b2.dtype == np.complex64 else np.complex128
     out = _core.matches(np.ascontiguousarray(a2, dtype=dtype), np.ascontiguousarray(b2, dtype=dtype), p, d, fl, fh)
     return float(out[0]) if a.ndim == 1 and b.ndim == 1 else out

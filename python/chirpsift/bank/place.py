@@ -30,7 +30,8 @@ import time
 import numpy as np
 
 from .._validate import integer, positive_scalar, real_scalar
-from .coverage import SweepSetup, _durations
+from ..waveform import chirp_duration
+from .coverage import SweepSetup
 from .region import Region
 from .templates import Bank
 
@@ -71,47 +72,6 @@ def lattice_covering_density(dim: int) -> float:
     return vn * math.sqrt(n + 1) * (n * (n + 2) / (12 * (n + 1))) ** (n / 2)
 
 
-def _canonical_grid(region: Region, n: int):
-    """Lay a grid over the heavier and lighter masses of the region's binaries."""
-    lo = min(region.m1[0], region.m2[0])
-    hi = max(region.m1[1], region.m2[1])
-    big, small = np.meshgrid(np.linspace(lo, hi, n), np.linspace(lo, hi, n), indexing="ij")
-    return big, small
-
-
-class _Surface:
-    """The region's template surface in flat coordinates, for the lattice and estimates."""
-
-    def __init__(self, region: Region, setup: SweepSetup, n_grid: int = 241):
-        self.region, self.setup = region, setup
-        big, small = _canonical_grid(region, n_grid)
-        self.big, self.small = big, small
-        self.inside = (big >= small) & region.contains(big, small)
-        xi = setup.coordinates(big.ravel(), small.ravel()).reshape(n_grid, n_grid, -1)
-        self.xi_grid = xi
-        pts = xi[self.inside]
-        self.centre = pts.mean(axis=0)
-        _, sv, vt = np.linalg.svd(pts - self.centre, full_matrices=False)
-        self.axes = vt[:2].T  # (r, 2): the best-fitting plane
-        self.singular_values = sv
-
-    def plane(self, xi: np.ndarray) -> np.ndarray:
-        return (xi - self.centre) @ self.axes
-
-    def area(self) -> float:
-        """Area of the surface (metric units): sum of sqrt(det J^T J) dM dm over the region."""
-        xi = self.xi_grid
-        d_big = self.big[1, 0] - self.big[0, 0]
-        d_small = self.small[0, 1] - self.small[0, 0]
-        j1 = np.gradient(xi, d_big, axis=0)
-        j2 = np.gradient(xi, d_small, axis=1)
-        a = np.einsum("ijk,ijk->ij", j1, j1)
-        b = np.einsum("ijk,ijk->ij", j1, j2)
-        c = np.einsum("ijk,ijk->ij", j2, j2)
-        density = np.sqrt(np.maximum(a * c - b * b, 0.0))
-        return float(density[self.inside].sum() * d_big * d_small)
-
-
 def _mc_eta(m1, m2):
     m = m1 + m2
     eta = m1 * m2 / (m * m)
@@ -125,66 +85,195 @@ def _masses(mc, eta):
     return 0.5 * m * (1 + root), 0.5 * m * (1 - root)
 
 
+#: The non-spinning surface is laid out on a grid in (Mc^(-5/3), eta): the first
+#: coordinate is nearly proportional to the Newtonian chirp time, so grid steps are
+#: nearly even in metric length. Cells per axis for the area integral and the
+#: Newton starting points (the integrand is smooth), and for finding the region's
+#: edges, whose samples must lie far closer together than the covering radius
+#: (40,000 steps put them 0.035 apart for components of 1-3 Msun from 30 Hz,
+#: radius 0.17).
+AREA_GRID = (2000, 100)
+EDGE_GRID = (40000, 400)
+
+
+class _Surface:
+    """The region's non-spinning template surface in flat coordinates.
+
+    Its best-fitting plane, area and edges, and the way back from the plane to masses.
+    """
+
+    def __init__(self, region: Region, setup: SweepSetup):
+        self.region, self.setup = region, setup
+        hi_m, lo_m = max(region.m1[1], region.m2[1]), min(region.m1[0], region.m2[0])
+        mc_lo, mc_hi = float(_mc_eta(lo_m, lo_m)[0]), float(_mc_eta(hi_m, hi_m)[0])
+        self.a_range = (mc_hi ** (-5 / 3), mc_lo ** (-5 / 3))
+        self.eta_range = (float(_mc_eta(hi_m, lo_m)[1]), 0.25)
+        a, eta, inside, xi = self._grid(AREA_GRID)
+        self.area_grid = (a, eta, inside, xi)
+        pts = xi[inside]
+        self.centre = pts.mean(axis=0)
+        _, sv, vt = np.linalg.svd(pts - self.centre, full_matrices=False)
+        self.axes = vt[:2].T  # (r, 2): the best-fitting plane
+        self.singular_values = sv
+        self.start_params = np.stack([a[inside], eta[inside]])
+        self.start_plane = self.plane(pts)
+
+    def _grid(self, shape):
+        a = np.linspace(*self.a_range, shape[0])
+        eta = np.linspace(*self.eta_range, shape[1])
+        a, eta = np.meshgrid(a, eta, indexing="ij")
+        m1, m2 = _masses(a ** (-0.6), eta)
+        inside = self.region.contains(m1, m2)
+        xi = self.setup.coordinates(m1.ravel(), m2.ravel()).reshape(*shape, -1)
+        return a, eta, inside, xi
+
+    def plane(self, xi: np.ndarray) -> np.ndarray:
+        return (xi - self.centre) @ self.axes
+
+    def to_plane(self, a, eta) -> np.ndarray:
+        m1, m2 = _masses(np.asarray(a) ** (-0.6), eta)
+        return self.plane(self.setup.coordinates(m1, m2))
+
+    def area(self) -> float:
+        """Area of the surface (metric units): the sum of sqrt(det J^T J) da deta over it."""
+        a, eta, inside, xi = self.area_grid
+        da, de = a[1, 0] - a[0, 0], eta[0, 1] - eta[0, 0]
+        j1 = np.gradient(xi, da, axis=0)
+        j2 = np.gradient(xi, de, axis=1)
+        p = np.einsum("ijk,ijk->ij", j1, j1)
+        q = np.einsum("ijk,ijk->ij", j1, j2)
+        r = np.einsum("ijk,ijk->ij", j2, j2)
+        density = np.sqrt(np.maximum(p * r - q * q, 0.0))
+        return float(density[inside].sum() * da * de)
+
+    def edges(self) -> np.ndarray:
+        """Plane coordinates of the region's edge: grid cells inside with a neighbour outside."""
+        a = np.linspace(*self.a_range, EDGE_GRID[0])
+        eta = np.linspace(*self.eta_range, EDGE_GRID[1])
+        aa, ee = np.meshgrid(a, eta, indexing="ij")
+        inside = np.pad(self.region.contains(*_masses(aa ** (-0.6), ee)), 1)
+        core = inside[:-2, 1:-1] & inside[2:, 1:-1] & inside[1:-1, :-2] & inside[1:-1, 2:]
+        edge = inside[1:-1, 1:-1] & ~core
+        return self.to_plane(aa[edge], ee[edge])
+
+
 def _lattice(surface: _Surface, radius: float):
     """Lay hexagonal lattice points and map them back to masses (non-spinning).
 
-    The lattice has covering radius ``radius``; points within ``radius`` of the
-    region's image in the plane are kept.
+    The lattice has covering radius ``radius``. A lattice point whose preimage lies in
+    the region is kept, and so is one within ``radius`` of the region's edge (so the
+    edges are covered); a preimage beyond the equal-mass edge moves onto it.
     """
     from scipy.spatial import cKDTree
 
-    inside_xi = surface.xi_grid[surface.inside]
-    uv = surface.plane(inside_xi)
-    lo, hi = uv.min(axis=0) - radius, uv.max(axis=0) + radius
-    a = math.sqrt(3.0) * radius  # nearest-neighbour spacing of a hexagonal lattice
-    rows = np.arange(0, int(math.ceil((hi[1] - lo[1]) / (a * math.sqrt(3) / 2))) + 1)
-    cols = np.arange(-1, int(math.ceil((hi[0] - lo[0]) / a)) + 2)
-    j, i = np.meshgrid(rows, cols, indexing="ij")
-    lat = np.stack([lo[0] + (i + 0.5 * (j % 2)) * a, lo[1] + j * a * math.sqrt(3) / 2], axis=-1).reshape(-1, 2)
-    tree = cKDTree(uv)
-    # the grid's spacing in the plane is far below the radius; the slack keeps edge cells
-    step = float(np.median(cKDTree(uv).query(uv, k=2)[0][:, 1]))
-    dist, near = tree.query(lat, k=1)
-    keep = dist <= radius + step
-    lat, near = lat[keep], near[keep]
-    # invert (chirp mass, eta) -> plane by Newton steps from the nearest grid point
-    big, small = surface.big[surface.inside][near], surface.small[surface.inside][near]
-    mc, eta = _mc_eta(big, small)
-    x = np.stack([np.log(mc), eta])
-    eta_floor = 0.5 * float(_mc_eta(*_extreme_ratio(surface.region))[1][0])
-
-    def plane_of(x):
-        m1, m2 = _masses(np.exp(x[0]), x[1])
-        return surface.plane(surface.setup.coordinates(m1, m2))
-
-    for _ in range(12):
-        f = plane_of(x) - lat
-        h = np.array([1e-7, 1e-7])
-        cols_ = []
+    edge = surface.edges()
+    lat = _centred_lattice(edge, radius)
+    # preimages: Newton steps in (Mc^(-5/3), eta) from the nearest area-grid point
+    _, start = cKDTree(surface.start_plane).query(lat, k=1)
+    x = surface.start_params[:, start].copy()
+    scale = np.array([surface.a_range[1] - surface.a_range[0], surface.eta_range[1] - surface.eta_range[0]])
+    for _ in range(20):
+        f = surface.to_plane(x[0], x[1]) - lat
+        jac = np.empty((lat.shape[0], 2, 2))
         for k in range(2):
             dx = np.zeros_like(x)
-            dx[k] = h[k]
-            cols_.append((plane_of(x + dx) - plane_of(x - dx)) / (2 * h[k]))
-        jac = np.stack(cols_, axis=-1)  # (n, 2, 2)
+            dx[k] = 1e-6 * scale[k]
+            jac[:, :, k] = (surface.to_plane(*(x + dx)) - surface.to_plane(*(x - dx))) / (2e-6 * scale[k])
         det = jac[:, 0, 0] * jac[:, 1, 1] - jac[:, 0, 1] * jac[:, 1, 0]
-        safe = np.abs(det) > 1e-300
-        inv = np.zeros_like(jac)
-        inv[:, 0, 0], inv[:, 1, 1] = jac[:, 1, 1], jac[:, 0, 0]
-        inv[:, 0, 1], inv[:, 1, 0] = -jac[:, 0, 1], -jac[:, 1, 0]
-        step_ = np.where(safe, np.einsum("nij,nj->in", inv, f) / np.where(safe, det, 1.0), 0.0)
-        step_[1] = np.clip(step_[1], -0.02, 0.02)
-        step_[0] = np.clip(step_[0], -0.05, 0.05)
-        x = x - step_
-        x[1] = np.clip(x[1], eta_floor, 0.25)  # beyond the equal-mass edge: onto it
-    m1, m2 = _masses(np.exp(x[0]), x[1])
-    return m1, m2
+        safe = np.abs(det) > 0
+        d = np.where(safe, det, 1.0)
+        step = np.stack([(jac[:, 1, 1] * f[:, 0] - jac[:, 0, 1] * f[:, 1]) / d,
+                         (-jac[:, 1, 0] * f[:, 0] + jac[:, 0, 0] * f[:, 1]) / d])
+        step = np.clip(np.where(safe, step, 0.0), -0.05 * scale[:, None], 0.05 * scale[:, None])
+        x = x - step
+        x[0] = np.clip(x[0], 0.5 * surface.a_range[0], 2.0 * surface.a_range[1])
+        x[1] = np.clip(x[1], 0.5 * surface.eta_range[0], 0.25)  # beyond the equal-mass edge: onto it
+    m1, m2 = _masses(x[0] ** (-0.6), x[1])
+    # where the templates really are: a lattice point off the surface (beyond the
+    # equal-mass fold, or past the region's range) lands on its edge instead
+    pos = surface.to_plane(x[0], x[1])
+    on_surface = np.hypot(*(pos - lat).T) <= 1e-3 * radius
+    inside = surface.region.contains(m1, m2) & on_surface
+    near_edge = cKDTree(edge).query(pos, k=1)[0] <= radius
+    keep = inside | _edge_cover(pos, inside, near_edge, edge, radius)
+    return m1[keep], m2[keep]
 
 
-def _extreme_ratio(region: Region):
-    """Return the most unequal binary of the region (heavier, lighter)."""
-    hi = max(region.m1[1], region.m2[1])
-    lo = min(region.m1[0], region.m2[0])
-    return np.array([hi]), np.array([lo])
+#: Polynomial degree of the centre line the lattice rows follow, and the bins of the
+#: long axis the centre is measured in. The non-spinning surfaces are long, thin
+#: and gently curved in their plane (1-3 Msun from 30 Hz: 1,400 long, 0.1-1.9 wide,
+#: radius 0.17); degree 8 follows the centre to well under a radius.
+CENTRE_DEGREE = 8
+CENTRE_BINS = 400
+
+
+def _centred_lattice(edge: np.ndarray, radius: float) -> np.ndarray:
+    """Hexagonal lattice whose middle row runs along the centre line of the region.
+
+    Rows are ``1.5 radius`` apart across the region and points ``sqrt(3) radius``
+    apart along them. A region thinner than a row spacing is covered by its middle
+    row alone; an unaligned lattice would often straddle it with two half-used rows.
+    Across the long axis the rows follow the centre line, a shear that changes
+    distances by a factor ``sqrt(1 + c'^2)``, ``c'`` the centre's slope (below 1e-2 on
+    the non-spinning surfaces); the fill step checks what remains.
+    """
+    s, n = edge[:, 0], edge[:, 1]
+    bins = np.linspace(s.min(), s.max(), CENTRE_BINS + 1)
+    which = np.clip(np.digitize(s, bins) - 1, 0, CENTRE_BINS - 1)
+    lo = np.full(CENTRE_BINS, np.inf)
+    hi = np.full(CENTRE_BINS, -np.inf)
+    np.minimum.at(lo, which, n)
+    np.maximum.at(hi, which, n)
+    filled = np.isfinite(lo)
+    mid_s = 0.5 * (bins[:-1] + bins[1:])[filled]
+    centre = np.polynomial.Polynomial.fit(mid_s, 0.5 * (lo + hi)[filled], deg=min(CENTRE_DEGREE, filled.sum() - 1))
+    offset = n - centre(s)
+    spacing, row = math.sqrt(3.0) * radius, 1.5 * radius
+    j_lo = int(math.floor((offset.min() - radius) / row))
+    j_hi = int(math.ceil((offset.max() + radius) / row))
+    k_lo = int(math.floor((s.min() - radius) / spacing)) - 1
+    k_hi = int(math.ceil((s.max() + radius) / spacing)) + 1
+    j, k = np.meshgrid(np.arange(j_lo, j_hi + 1), np.arange(k_lo, k_hi + 1), indexing="ij")
+    along = (k + 0.5 * (j % 2)) * spacing
+    return np.stack([along, j * row + centre(along)], axis=-1).reshape(-1, 2)
+
+
+def _edge_cover(lat: np.ndarray, inside: np.ndarray, near_edge: np.ndarray, edge: np.ndarray, radius: float):
+    """Choose the outside lattice points that cover the edge samples inside ones miss.
+
+    Greedy set cover (the candidate covering most uncovered samples first), so a thin
+    region is not paid for twice, once by the lattice points inside it and again by
+    every lattice point within reach of its edges. What is left between edge samples
+    and the nearest kept point is the fill step's to check.
+    """
+    from scipy.spatial import cKDTree
+
+    chosen = np.zeros(lat.shape[0], dtype=bool)
+    if inside.any():
+        missed = cKDTree(lat[inside]).query(edge, k=1)[0] > radius
+    else:
+        missed = np.ones(edge.shape[0], dtype=bool)
+    uncovered = edge[missed]
+    cand = np.flatnonzero(near_edge & ~inside)
+    if uncovered.shape[0] == 0 or cand.size == 0:
+        return chosen
+    reach = cKDTree(uncovered).query_ball_point(lat[cand], r=radius)
+    covers = [np.asarray(r_, dtype=np.int64) for r_ in reach]
+    by_sample = [[] for _ in range(uncovered.shape[0])]
+    for c, samples in enumerate(covers):
+        for u in samples:
+            by_sample[u].append(c)
+    counts = np.array([len(c) for c in covers])
+    done = np.zeros(uncovered.shape[0], dtype=bool)
+    while counts.max(initial=0) > 0:
+        c = int(np.argmax(counts))  # ties: the lowest index, so the result is deterministic
+        chosen[cand[c]] = True
+        for u in covers[c]:
+            if not done[u]:
+                done[u] = True
+                for other in by_sample[u]:
+                    counts[other] -= 1
+    return chosen
 
 
 def _dedupe(p: np.ndarray, setup: SweepSetup, radius: float) -> np.ndarray:
@@ -284,7 +373,8 @@ def estimate_bank_size(region: Region, setup: SweepSetup, minimal_match: float) 
 
 
 def _spin_volume(region: Region, setup: SweepSetup, n: int = 48) -> float:
-    big, small = _canonical_grid(region, n)
+    lo_m, hi_m = min(region.m1[0], region.m2[0]), max(region.m1[1], region.m2[1])
+    big, small = np.meshgrid(np.linspace(lo_m, hi_m, n), np.linspace(lo_m, hi_m, n), indexing="ij")
     lo, hi = max(region.chi1[0], region.chi2[0]), min(region.chi1[1], region.chi2[1])
     if hi <= lo:
         lo, hi = min(region.chi1[0], region.chi2[0]), max(region.chi1[1], region.chi2[1])
@@ -389,8 +479,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
             print(f"[place_bank {time.perf_counter() - started:6.1f} s] {msg}", file=sys.stderr, flush=True)
 
     m_small = min(region.m1[0], region.m2[0])
-    pts = np.array([[m_small], [m_small], [0.0], [0.0]])
-    longest = float(_durations(pts, fl)[0]) * 1.05  # spins and the edges' overshoot
+    longest = float(chirp_duration(m_small, m_small, fl)) * 1.05  # spins and the edges' overshoot
     setup = SweepSetup.build(psd, fl, fs, longest, m_lo)
     estimate = estimate_bank_size(region, setup, mm)
     log(f"metric estimate: {estimate['templates']:.0f} templates ({estimate['dimension']}-D)")

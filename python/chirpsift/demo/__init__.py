@@ -16,7 +16,6 @@ from .scenario import (
     Scenario,
     analysis_mapping,
     bank_table,
-    demo_bank,
     estimated_common_time,
     make_scenario,
     read_scenario,
@@ -25,6 +24,6 @@ from .scenario import (
 
 __all__ = [
     "ANALYSIS_FILE", "DEFAULT_FOLDER", "RESULTS", "SCENARIO_FILE", "GLITCH_WINDOW", "Scenario", "analysis_mapping",
-    "bank_table", "demo_bank", "estimated_common_time", "make_scenario", "read_scenario", "write_scenario",
+    "bank_table", "estimated_common_time", "make_scenario", "read_scenario", "write_scenario",
     "match_hidden", "near_glitch", "read_outcome", "summary_lines",
 ]

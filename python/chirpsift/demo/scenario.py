@@ -20,7 +20,6 @@ from pathlib import Path
 
 import numpy as np
 
-from ..bank import Bank
 from ..inject import INJECTION_DTYPE, arrival_times, injection_snr, project
 from ..inject.population import SPACING_MARGIN, longest_signal
 from ..io.atomic import atomic_path, write_json_atomic
@@ -30,13 +29,13 @@ from ..run import write_analysis
 from ..segments import padding
 from ..spectrum import design_psd
 from ..synthetic import colored_gaussian_noise
-from ..waveform import T_SUN, chirp_duration
+from ..waveform import chirp_duration
 
 __all__ = [
-    "Scenario", "make_scenario", "write_scenario", "bank_table", "demo_bank", "analysis_mapping",
+    "Scenario", "make_scenario", "write_scenario", "bank_table", "analysis_mapping",
     "glitch_waveform", "estimated_common_time", "read_scenario",
     "DEFAULT_FOLDER", "SITES", "CURVES", "SAMPLE_RATE", "START", "MINUTES", "MIN_MINUTES", "FILES_PER_SITE",
-    "MISSING_FILE", "NOISE_SEED", "NOISE_F_LOW", "F_LOW", "REGION", "BANK_TAU0_STEP", "HIDDEN", "HIDDEN_AT",
+    "MISSING_FILE", "NOISE_SEED", "NOISE_F_LOW", "F_LOW", "REGION", "BANK_MINIMAL_MATCH", "HIDDEN", "HIDDEN_AT",
     "HIDDEN_NETWORK_SNR", "GLITCH", "VETO", "WELCH_DURATION", "MIN_SNR", "PEAK_WINDOW", "GATE_THRESHOLD", "SLIDES",
     "SLIDE_STEP", "INJECTIONS", "INJECTION_DISTANCE", "INJECTION_SEED", "REPORT_TOP", "SCENARIO_FILE",
     "ANALYSIS_FILE", "RESULTS",
@@ -84,13 +83,10 @@ NOISE_F_LOW = 30.0
 #: here, so segments, edge pads and injection spacing stay short.
 F_LOW = 40.0
 #: Component-mass range (Msun) of the bank and the injections: a small neutron-star-like
-#: region that one line of equal-mass templates covers (:func:`demo_bank`).
+#: region placed in a few seconds (232 templates at :data:`BANK_MINIMAL_MATCH`).
 REGION = (1.35, 1.45)
-#: s between neighbouring templates in Newtonian chirp time ``tau0``. Measured: a source
-#: half a step from two 1.4 + 1.4 Msun neighbours keeps 0.973 of its SNR (gen2-zero-detuned,
-#: 40 Hz, 2048 Hz), above the 0.97 minimal match of common practice; tau0 is the direction
-#: in which the match falls fastest and the fall is nearly the same across the region.
-BANK_TAU0_STEP = 0.011
+#: The bank's minimal match: 0.97, common practice (at most ~10% of events lost).
+BANK_MINIMAL_MATCH = 0.97
 #: The hidden binary (invented): masses (Msun) inside :data:`REGION` but on no template,
 #: no spin, a sky position (rad) seen by all three sites, a moderate inclination (rad).
 HIDDEN = {"m1": 1.43, "m2": 1.37, "spin1": 0.0, "spin2": 0.0, "ra": 2.1, "dec": 0.35, "inclination": 0.6,
@@ -316,78 +312,24 @@ def _check_fits(scenario: Scenario) -> None:
 # ---------------------------------------------------------------------------
 # the bank
 # ---------------------------------------------------------------------------
-def _tau0(mchirp):
-    """Newtonian chirp time (s) from :data:`F_LOW` of a chirp mass (Msun)."""
-    return 5.0 / (256.0 * math.pi * F_LOW) * (math.pi * np.asarray(mchirp) * T_SUN * F_LOW) ** (-5.0 / 3.0)
-
-
-def _mchirp_of_tau0(tau0):
-    return (np.asarray(tau0) * 256.0 * math.pi * F_LOW / 5.0) ** (-3.0 / 5.0) / (math.pi * T_SUN * F_LOW)
-
-
-def demo_bank() -> Bank:
-    """Build the demo's template bank: equal-mass templates evenly spaced in Newtonian chirp time.
-
-    Covers component masses in :data:`REGION` from :data:`F_LOW`: templates lie on the
-    equal-mass line at every :data:`BANK_TAU0_STEP` seconds of
-    ``tau0 = 5 / (256 pi f_low) (pi Mc f_low)^(-5/3)`` (Mc the chirp mass in seconds),
-    from the lightest corner's chirp mass to the heaviest's, ends included.
-
-    Returns
-    -------
-    chirpsift.Bank
-
-    Notes
-    -----
-    A stand-in for a placed bank: one line suffices here because the region is narrow
-    (mass ratio at most 1.074, where a source keeps over 99.5% of its SNR with the
-    equal-mass template of the best chirp mass) and the match falls along tau0 at nearly
-    the same rate across it.
-
-    References
-    ----------
-    .. [1] B. S. Sathyaprakash, Phys. Rev. D 50, R7111 (1994), gr-qc/9411043 (chirp times
-       as bank coordinates).
-
-    Examples
-    --------
-    >>> from chirpsift.demo import demo_bank
-    >>> bank = demo_bank()
-    >>> len(bank), bool((bank.m1 == bank.m2).all())
-    (271, True)
-    """
-    lo, hi = REGION
-    light, heavy = (m * 2.0 ** -0.2 for m in (lo, hi))  # chirp mass of an equal-mass pair: m 2^(-1/5)
-    t_light, t_heavy = float(_tau0(light)), float(_tau0(heavy))
-    n = math.ceil((t_light - t_heavy) / BANK_TAU0_STEP) + 1
-    mass = _mchirp_of_tau0(np.linspace(t_heavy, t_light, n)) * 2.0 ** 0.2
-    mass[0], mass[-1] = hi, lo  # the corners exactly, whatever the rounding
-    return Bank(mass, mass)
-
-
 def bank_table(folder) -> dict:
-    """Return the analysis file's ``[bank]`` table for the demo, writing what it needs into ``folder``.
+    """Return the analysis file's ``[bank]`` table for the demo: a region to place a bank in.
 
-    This is the one place the demo's bank is chosen: today it writes
-    :func:`demo_bank` as ``bank.parquet`` and returns ``{"file": "bank.parquet"}``.
+    ``chirpsift run`` places it (:func:`chirpsift.place_bank`, the hexagonal lattice) at
+    the start of the run, for the noise curve of the first site.
 
     Parameters
     ----------
     folder : path
-        The demo folder (the analysis file's folder).
+        The demo folder (the analysis file's folder); nothing is written there.
 
     Returns
     -------
     dict
         The ``[bank]`` table.
     """
-    # BANK PLACEMENT: once the analysis file's [bank] table takes a region, replace the two lines
-    # below by
-    #     return {"m1": list(REGION), "m2": list(REGION), "minimal-match": 0.97, "psd": CURVES[SITES[0]],
-    #             "f-low": F_LOW, "seed": NOISE_SEED}
-    # (key spellings as the analysis file's SCHEMA has them) and delete demo_bank and BANK_TAU0_STEP.
-    demo_bank().save(Path(folder) / "bank.parquet")
-    return {"file": "bank.parquet"}
+    return {"m1": list(REGION), "m2": list(REGION), "psd": CURVES[SITES[0]], "f-low": F_LOW,
+            "minimal-match": BANK_MINIMAL_MATCH, "sample-rate": SAMPLE_RATE, "seed": NOISE_SEED}
 
 
 # ---------------------------------------------------------------------------

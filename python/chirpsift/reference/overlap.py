@@ -1,7 +1,5 @@
 """Pure-numpy twin of :func:`chirpsift.match`: the overlap maximised over time and phase."""
 
-from __future__ import annotations
-
 import numpy as np
 
 from .filter import band

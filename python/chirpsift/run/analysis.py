@@ -21,7 +21,13 @@ one. Layout::
     t0-attr = "t0"                    # name of the start-time attribute / npz array
 
     [bank]
-    file = "bank.parquet"             # a template bank (chirpsift.Bank.load)
+    file = "bank.parquet"             # a template bank (chirpsift.Bank.load), or a region
+    # to place one in (chirpsift.place_bank), instead of file:
+    # m1 = [1.0, 3.0]                 # Msun, component-mass ranges
+    # m2 = [1.0, 3.0]
+    # chi1 = [-0.5, 0.5]              # aligned-spin ranges (default [0, 0])
+    # psd = "gen2-zero-detuned"       # the design curve the bank is placed for
+    # minimal-match = 0.97
 
     [search]                          # chirpsift.SearchSettings keys (f-low required)
     f-low = 20.0
@@ -100,7 +106,21 @@ SCHEMA: dict[str, dict[str, str]] = {
         "t0-attr": "name of the attribute (HDF5) or array (.npz) holding the start time (s)",
     },
     "bank": {
-        "file": "template bank file (.parquet or .npz, as chirpsift.Bank.save writes)",
+        "file": "template bank file (.parquet or .npz, as chirpsift.Bank.save writes); or a region to place "
+                "a bank in (chirpsift.place_bank) with the keys below",
+        "m1": "component-mass range [lo, hi] of the region, Msun",
+        "m2": "component-mass range [lo, hi] of the region, Msun",
+        "chi1": "aligned-spin range [lo, hi] of the heavier-labelled component (default [0, 0])",
+        "chi2": "aligned-spin range [lo, hi] of the other component (default [0, 0])",
+        "mtotal": "total-mass range [lo, hi], Msun (optional cut)",
+        "mass-ratio": "range [lo, hi] of m_heavier / m_lighter (optional cut)",
+        "psd": "design-curve name the bank is placed for (chirpsift.DESIGN_CURVES)",
+        "f-low": "lower frequency cutoff of the placement, Hz (default: [search] f-low)",
+        "minimal-match": "minimal match (default 0.97)",
+        "sample-rate": "sample rate the templates end at Nyquist of, Hz (default 4096)",
+        "seed": "random seed of the placement (default 0)",
+        "method": "placement method: auto, lattice or stochastic (default auto)",
+        "max-templates": "refuse a region whose metric estimate exceeds this many templates (default 200000)",
     },
     "search": {o.key: f"{o.help}" + (f" ({o.unit})" if o.unit else "") for o in SEARCH_OPTIONS},
     "network": {
@@ -168,8 +188,10 @@ class Analysis:
         The analysed sites, in the order of the sites given (the first is never slid).
     data : dict of str to SiteData
         Per site name, its input.
-    bank_file : Path
-        Template bank file.
+    bank_file : Path or None
+        Template bank file, or None when the bank is placed.
+    bank_region : dict or None
+        Keyword arguments of :func:`chirpsift.place_bank` when the bank is placed.
     search : SearchSettings
         Search settings.
     slides : int
@@ -193,7 +215,7 @@ class Analysis:
     output: Path
     sites: tuple[Site, ...]
     data: dict[str, SiteData]
-    bank_file: Path
+    bank_file: Path | None
     search: SearchSettings
     slides: int = 0
     slide_step: float | None = None
@@ -201,6 +223,7 @@ class Analysis:
     top: int = 10
     injections: dict | None = None
     engine: EngineSettings = EngineSettings()
+    bank_region: dict | None = None
 
     @property
     def site_names(self) -> list[str]:
@@ -223,7 +246,7 @@ class Analysis:
                          "dataset": d.dataset, "sample_rate": d.sample_rate,
                          "sample_rate_attr": d.sample_rate_attr, "t0_attr": d.t0_attr}
                      for n, d in self.data.items()},
-            "bank": str(self.bank_file),
+            "bank": str(self.bank_file) if self.bank_region is None else self.bank_region,
             "search": self.search.as_dict(),
             "network": {"slides": self.slides, "slide_step": self.slide_step, "allowance": self.allowance},
             "injections": self.injections,
@@ -461,11 +484,8 @@ def load_analysis(path) -> Analysis:
     where = f"{p} [bank]"
     bank_table = _table(doc, "bank", str(p))
     _check_keys(where, bank_table, SCHEMA["bank"])
-    if "file" not in bank_table:
-        raise ValueError(f"{where}: file (the template bank) must be given")
-    bank_file = _path(base, where, "file", bank_table["file"])
-
     search = SearchSettings.from_mapping(_table(doc, "search", str(p)), where=f"{p} [search]")
+    bank_file, bank_region = _bank(where, base, bank_table, search.f_low)
 
     where = f"{p} [network]"
     net = _table(doc, "network", str(p), required=False)
@@ -484,7 +504,55 @@ def load_analysis(path) -> Analysis:
     engine = engine_settings(_table(doc, "engine", str(p), required=False), where=f"{p} [engine]", base=base)
     return Analysis(path=p, output=output, sites=tuple(known[n] for n in names), data=data, bank_file=bank_file,
                     search=search, slides=slides, slide_step=step, allowance=allowance, top=top,
-                    injections=injections, engine=engine)
+                    injections=injections, engine=engine, bank_region=bank_region)
+
+
+def _pair(where: str, key: str, value) -> list:
+    if not (isinstance(value, list) and len(value) == 2):
+        raise ValueError(f"{where}: {key} must be a [lo, hi] pair, got {value!r}")
+    return [_number(where, f"{key}[{i}]", v) for i, v in enumerate(value)]
+
+
+def _bank(where: str, base: Path, table: dict, f_low: float):
+    """Read the [bank] table: a file, or the keyword arguments of chirpsift.place_bank."""
+    from ..bank import METHODS, Region
+    from ..spectrum import DESIGN_CURVES
+
+    region_keys = [k for k in table if k != "file"]
+    if "file" in table:
+        if region_keys:
+            raise ValueError(f"{where}: give either file or a region ({', '.join(region_keys)}), not both")
+        return _path(base, where, "file", table["file"]), None
+    missing = [k for k in ("m1", "m2", "psd") if k not in table]
+    if missing:
+        raise ValueError(f"{where}: give file (a template bank) or a region to place one in; missing "
+                         f"{', '.join(missing)}")
+    args = {"m1": _pair(where, "m1", table["m1"]), "m2": _pair(where, "m2", table["m2"])}
+    for key, name in (("chi1", "chi1"), ("chi2", "chi2"), ("mtotal", "mtotal"), ("mass-ratio", "mass_ratio")):
+        if key in table:
+            args[name] = _pair(where, key, table[key])
+    try:
+        Region(**{k: tuple(v) for k, v in args.items()})
+    except ValueError as exc:
+        raise ValueError(f"{where}: {exc}") from None
+    psd = _string(where, "psd", table["psd"])
+    if psd not in DESIGN_CURVES:
+        raise ValueError(f"{where}: psd {psd!r} is not a design curve{_nearest(psd, DESIGN_CURVES)}")
+    args["psd"] = psd
+    args["f_low"] = _number(where, "f-low", table.get("f-low", f_low), positive=True)
+    mm = _number(where, "minimal-match", table.get("minimal-match", 0.97), positive=True)
+    if not mm < 1:
+        raise ValueError(f"{where}: minimal-match must lie in (0, 1), got {mm!r}")
+    args["minimal_match"] = mm
+    args["sample_rate"] = _number(where, "sample-rate", table.get("sample-rate", 4096.0), positive=True)
+    args["seed"] = _number(where, "seed", table.get("seed", 0), integer=True, minimum=0)
+    method = _string(where, "method", table.get("method", "auto"))
+    if method not in METHODS:
+        raise ValueError(f"{where}: method must be one of {', '.join(METHODS)}, got {method!r}")
+    args["method"] = method
+    if "max-templates" in table:
+        args["max_templates"] = _number(where, "max-templates", table["max-templates"], integer=True, minimum=1)
+    return None, args
 
 
 def _toml_value(value, where: str) -> str:

@@ -183,7 +183,16 @@ def run_analysis(analysis, *, progress: str = "off", every: int = 10, seconds: f
                          f"{analysis.engine.templates_per_unit}: it decides the plan; change it in the analysis file")
     manifest = Manifest.open(analysis.output, analysis.settings_hash(), analysis.canonical())
     with _folder_lock(manifest.folder):
-        return _run(analysis, manifest, engine, client, progress, every, seconds, stream, stop_after)
+        if analysis.bank_region is None or stop_after == "bank":
+            return _run(analysis, manifest, engine, client, progress, every, seconds, stream, stop_after)
+        # a placed bank decides the search units' sub-banks: place it, then plan the rest
+        first = _run(analysis, manifest, engine, client, progress, every, seconds, stream, "bank")
+        rest = _run(analysis, manifest, engine, client, progress, every, seconds, stream, stop_after)
+        rest.ran[:0] = first.ran
+        rest.skipped = [k for k in rest.skipped if k not in first.ran]
+        rest.seconds = {**first.seconds, **rest.seconds}
+        rest.sent, rest.received = {**first.sent, **rest.sent}, {**first.received, **rest.received}
+        return rest
 
 
 def _run(analysis, manifest, engine, client, progress, every, seconds, stream, stop_after) -> RunResult:

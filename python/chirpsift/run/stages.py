@@ -54,7 +54,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..bank import Bank
+from ..bank import Bank, place_bank
 from ..io import read_triggers, write_triggers
 from ..inject import draw_injections, efficiency, found_missed, injection_snr, project, sensitivity
 from ..io.atomic import write_json_atomic
@@ -140,9 +140,14 @@ def sub_banks(n: int, size: int) -> list[tuple[int, int]]:
 
 
 def _bank_size(analysis) -> int:
-    """Templates in the analysis's bank file (0 when it cannot be read: the bank unit says why)."""
+    """Templates in the analysis's bank (0 when it cannot be read yet: the bank unit says why).
+
+    A bank placed from a region is known once the bank unit has published it; the driver
+    runs that unit before it plans the rest.
+    """
+    source = analysis.bank_file if analysis.bank_region is None else analysis.output / "bank.parquet"
     try:
-        return len(Bank.load(analysis.bank_file))
+        return len(Bank.load(source))
     except (OSError, ValueError):
         return 0
 
@@ -248,7 +253,8 @@ def unit_inputs(unit: Unit, analysis, manifest) -> dict:
     """
     inputs = {"unit": unit.key, "after": {k: manifest.digest(k) for k in unit.after}}
     if unit.stage == "bank":
-        inputs["bank"] = _data_files([str(analysis.bank_file)])
+        inputs["bank"] = (_data_files([str(analysis.bank_file)]) if analysis.bank_region is None
+                          else {"place": analysis.bank_region})
     if unit.files:  # a span's search reads its own files only
         inputs["data"] = {unit.site: {"files": _data_files(unit.files),
                                       "vetoes": _veto_stamp(analysis.data[unit.site].vetoes)}}
@@ -307,7 +313,10 @@ def _network_call(analysis, tables, analysed, n_slides):
 # the units
 # ---------------------------------------------------------------------------
 def _bank(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
-    bank = Bank.load(analysis.bank_file)
+    if analysis.bank_region is not None:
+        bank = place_bank(**analysis.bank_region, progress=progress)
+    else:
+        bank = Bank.load(analysis.bank_file)
     if len(bank) == 0:
         raise ValueError(f"{analysis.bank_file}: the bank holds no templates")
     bank.save(folder / unit.outputs[0])
