@@ -49,6 +49,7 @@ class Command(NamedTuple):
 COMMANDS: tuple[Command, ...] = (
     Command("search", "chirpsift.cli.search"),
     Command("demo", "chirpsift.cli.demo"),
+    Command("bank", "chirpsift.bank.command"),
     Command("bench", "chirpsift.cli.bench"),
     Command("network", "chirpsift.network.command"),
     Command("inject", "chirpsift.inject.inject_command"),

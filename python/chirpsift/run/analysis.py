@@ -64,6 +64,7 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
+from ..bank.config import PLACEMENT_KEYS, placement_arguments
 from ..distributed.settings import ENGINE_KEYS, EngineSettings, engine_settings
 from ..io.readers import read_toml
 from ..network import Site, load_sites
@@ -108,19 +109,7 @@ SCHEMA: dict[str, dict[str, str]] = {
     "bank": {
         "file": "template bank file (.parquet or .npz, as chirpsift.Bank.save writes); or a region to place "
                 "a bank in (chirpsift.place_bank) with the keys below",
-        "m1": "component-mass range [lo, hi] of the region, Msun",
-        "m2": "component-mass range [lo, hi] of the region, Msun",
-        "chi1": "aligned-spin range [lo, hi] of the heavier-labelled component (default [0, 0])",
-        "chi2": "aligned-spin range [lo, hi] of the other component (default [0, 0])",
-        "mtotal": "total-mass range [lo, hi], Msun (optional cut)",
-        "mass-ratio": "range [lo, hi] of m_heavier / m_lighter (optional cut)",
-        "psd": "design-curve name the bank is placed for (chirpsift.DESIGN_CURVES)",
-        "f-low": "lower frequency cutoff of the placement, Hz (default: [search] f-low)",
-        "minimal-match": "minimal match (default 0.97)",
-        "sample-rate": "sample rate the templates end at Nyquist of, Hz (default 4096)",
-        "seed": "random seed of the placement (default 0)",
-        "method": "placement method: auto, lattice or stochastic (default auto)",
-        "max-templates": "refuse a region whose metric estimate exceeds this many templates (default 200000)",
+        **PLACEMENT_KEYS,
     },
     "search": {o.key: f"{o.help}" + (f" ({o.unit})" if o.unit else "") for o in SEARCH_OPTIONS},
     "network": {
@@ -507,52 +496,17 @@ def load_analysis(path) -> Analysis:
                     injections=injections, engine=engine, bank_region=bank_region)
 
 
-def _pair(where: str, key: str, value) -> list:
-    if not (isinstance(value, list) and len(value) == 2):
-        raise ValueError(f"{where}: {key} must be a [lo, hi] pair, got {value!r}")
-    return [_number(where, f"{key}[{i}]", v) for i, v in enumerate(value)]
-
-
 def _bank(where: str, base: Path, table: dict, f_low: float):
     """Read the [bank] table: a file, or the keyword arguments of chirpsift.place_bank."""
-    from ..bank import METHODS, Region
-    from ..spectrum import DESIGN_CURVES
-
     region_keys = [k for k in table if k != "file"]
     if "file" in table:
         if region_keys:
             raise ValueError(f"{where}: give either file or a region ({', '.join(region_keys)}), not both")
         return _path(base, where, "file", table["file"]), None
-    missing = [k for k in ("m1", "m2", "psd") if k not in table]
-    if missing:
-        raise ValueError(f"{where}: give file (a template bank) or a region to place one in; missing "
-                         f"{', '.join(missing)}")
-    args = {"m1": _pair(where, "m1", table["m1"]), "m2": _pair(where, "m2", table["m2"])}
-    for key, name in (("chi1", "chi1"), ("chi2", "chi2"), ("mtotal", "mtotal"), ("mass-ratio", "mass_ratio")):
-        if key in table:
-            args[name] = _pair(where, key, table[key])
-    try:
-        Region(**{k: tuple(v) for k, v in args.items()})
-    except ValueError as exc:
-        raise ValueError(f"{where}: {exc}") from None
-    psd = _string(where, "psd", table["psd"])
-    if psd not in DESIGN_CURVES:
-        raise ValueError(f"{where}: psd {psd!r} is not a design curve{_nearest(psd, DESIGN_CURVES)}")
-    args["psd"] = psd
-    args["f_low"] = _number(where, "f-low", table.get("f-low", f_low), positive=True)
-    mm = _number(where, "minimal-match", table.get("minimal-match", 0.97), positive=True)
-    if not mm < 1:
-        raise ValueError(f"{where}: minimal-match must lie in (0, 1), got {mm!r}")
-    args["minimal_match"] = mm
-    args["sample_rate"] = _number(where, "sample-rate", table.get("sample-rate", 4096.0), positive=True)
-    args["seed"] = _number(where, "seed", table.get("seed", 0), integer=True, minimum=0)
-    method = _string(where, "method", table.get("method", "auto"))
-    if method not in METHODS:
-        raise ValueError(f"{where}: method must be one of {', '.join(METHODS)}, got {method!r}")
-    args["method"] = method
-    if "max-templates" in table:
-        args["max_templates"] = _number(where, "max-templates", table["max-templates"], integer=True, minimum=1)
-    return None, args
+    if not table:
+        raise ValueError(f"{where}: give file (a template bank) or a region to place one in (m1, m2, psd)")
+    args = placement_arguments(table, where, f_low=f_low)
+    return None, {k: list(v) if isinstance(v, tuple) else v for k, v in args.items()}
 
 
 def _toml_value(value, where: str) -> str:
