@@ -14,7 +14,7 @@ from .fused import prepare_bank
 __all__ = ["inverse_fft_seconds", "generation_seconds"]
 
 
-def inverse_fft_seconds(n, *, real=False, repeats=10):
+def inverse_fft_seconds(n, *, real=False, double=False, repeats=10):
     """Seconds per inverse FFT of length ``n``, planned once, buffers reused.
 
     Parameters
@@ -26,6 +26,9 @@ def inverse_fft_seconds(n, *, real=False, repeats=10):
         :func:`chirpsift.snr_series` and :func:`chirpsift.filter_segment` perform).
         ``True``: float64 complex-to-real inverse transform (what the spectrum chain
         and :func:`chirpsift.correlate` perform), input refilled before each call.
+    double : bool, optional
+        With ``real=False``: complex128 instead of complex64 (what :func:`chirpsift.match`
+        performs, on the pair's band-limited length).
     repeats : int, optional
         Transforms timed after one warm-up transform; the mean is returned.
 
@@ -40,9 +43,10 @@ def inverse_fft_seconds(n, *, real=False, repeats=10):
     >>> _timing.inverse_fft_seconds(4096, repeats=3) > 0
     True
     """
-    if not isinstance(real, bool):
-        raise TypeError(f"real must be True or False, got {real!r}")
-    return float(_core.timing.transform_seconds(integer("n", n), real, integer("repeats", repeats)))
+    for name, flag in (("real", real), ("double", double)):
+        if not isinstance(flag, bool):
+            raise TypeError(f"{name} must be True or False, got {flag!r}")
+    return float(_core.timing.transform_seconds(integer("n", n), real, integer("repeats", repeats), double))
 
 
 def generation_seconds(m1, m2, *, f_low, df, n_freq, repeats=1):

@@ -77,14 +77,19 @@ def real_array(
     return a
 
 
-def complex_array(name: str, x, ndim=(1, 2), dtype=None) -> np.ndarray:
-    """C-contiguous complex64/complex128 array (kept at its precision unless `dtype`)."""
+def complex_array(name: str, x, ndim=(1, 2), dtype=None, finite: bool = True) -> np.ndarray:
+    """C-contiguous complex64/complex128 array (kept at its precision unless `dtype`).
+
+    ``finite=False`` leaves the finiteness check to a kernel that reads only part of the
+    array (and checks what it reads).
+    """
     a = _as_array(name, x, "complex")
     _check_shape(name, a, ndim)
     if dtype is None:
         dtype = np.complex64 if a.dtype in (np.complex64, np.float32, np.float16) else np.complex128
     a = np.asarray(a, dtype=dtype, order="C")
-    _check_finite(name, a)
+    if finite:
+        _check_finite(name, a)
     return a
 
 

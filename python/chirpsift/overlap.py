@@ -19,7 +19,7 @@ from . import _core
 from ._validate import complex_array, positive_scalar, psd_array, real_array
 from .filter import checked_band
 
-__all__ = ["match", "best_matches", "required_period"]
+__all__ = ["match", "best_matches", "required_period", "transform_length"]
 
 
 def match(h1, h2, psd, df, f_low, f_high=None):
@@ -48,8 +48,9 @@ def match(h1, h2, psd, df, f_low, f_high=None):
     Raises
     ------
     ValueError
-        Mismatched shapes, row counts that neither pair nor broadcast, or a template
-        with no power in the band.
+        Mismatched shapes, row counts that neither pair nor broadcast, a template that is
+        not finite inside the band (bins outside it are never read), or one with no
+        power in the band.
 
     Notes
     -----
@@ -84,8 +85,9 @@ def match(h1, h2, psd, df, f_low, f_high=None):
     >>> 0.5 < match(h[0], h[1], psd, df, 30.0) < 1.0
     True
     """
-    a = complex_array("h1", h1, ndim=(1, 2))
-    b = complex_array("h2", h2, ndim=(1, 2))
+    # finiteness is checked by the kernel over the band, the only bins it reads
+    a = complex_array("h1", h1, ndim=(1, 2), finite=False)
+    b = complex_array("h2", h2, ndim=(1, 2), finite=False)
     p = psd_array("psd", psd, ndim=1)
     a2, b2 = np.atleast_2d(a), np.atleast_2d(b)
     if a2.shape[1] != b2.shape[1]:
@@ -190,3 +192,28 @@ def required_period(longest):
     """
     return float(_core.required_period(positive_scalar("longest", longest)))
 
+
+
+def transform_length(bins):
+    """Points of the inverse FFT :func:`match` performs for a pair whose common band holds ``bins`` bins.
+
+    Parameters
+    ----------
+    bins : int
+        Bins from ``f_low`` to where the shorter template ends.
+
+    Returns
+    -------
+    int
+        The smallest ``2^a 3^b`` at or above ``bins`` (at least 4): the benchmarks' yardstick
+        is a bare complex128 inverse FFT of this length.
+
+    Examples
+    --------
+    >>> from chirpsift.overlap import transform_length
+    >>> transform_length(1521)
+    1536
+    """
+    from ._validate import integer
+
+    return int(_core.transform_length(integer("bins", bins)))

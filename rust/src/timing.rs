@@ -15,6 +15,8 @@ pub enum Transform {
     Complex64Inverse,
     /// Complex-to-real float64 inverse FFT (the spectrum chain and `correlate`).
     RealFloat64Inverse,
+    /// Unnormalised complex128 inverse FFT, in place (the match kernel, `overlap`).
+    Complex128Inverse,
 }
 
 /// Seconds per transform of length `n`, planned once, with buffers and scratch
@@ -30,6 +32,17 @@ pub fn transform_seconds(n: usize, kind: Transform, repeats: usize) -> Result<f6
             let plan = crate::fft::inverse::<f32>(n);
             let mut buf = vec![Complex32::new(1.0, 0.5); n];
             let mut scratch = vec![Complex32::new(0.0, 0.0); plan.get_inplace_scratch_len()];
+            plan.process_with_scratch(&mut buf, &mut scratch);
+            let start = Instant::now();
+            for _ in 0..repeats {
+                plan.process_with_scratch(&mut buf, &mut scratch);
+            }
+            start.elapsed().as_secs_f64() / repeats as f64
+        }
+        Transform::Complex128Inverse => {
+            let plan = crate::fft::inverse::<f64>(n);
+            let mut buf = vec![Complex::<f64>::new(1.0, 0.5); n];
+            let mut scratch = vec![Complex::<f64>::new(0.0, 0.0); plan.get_inplace_scratch_len()];
             plan.process_with_scratch(&mut buf, &mut scratch);
             let start = Instant::now();
             for _ in 0..repeats {

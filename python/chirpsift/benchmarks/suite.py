@@ -16,6 +16,7 @@ from functools import partial
 import numpy as np
 
 from ..threads import get_threads, set_threads
+from .placement import measure_match, measure_placement
 from .measure import (
     Measurement,
     best_time,
@@ -296,7 +297,8 @@ def _measure_memory(w: Workload, threads: int, say) -> tuple[list[Measurement], 
 
 
 def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, repeats: int = 3,
-        scaling_runs: int = SCALING_RUNS, slides: bool = True, log=None) -> tuple[list[Measurement], dict]:
+        scaling_runs: int = SCALING_RUNS, slides: bool = True, bank: bool = True,
+        log=None) -> tuple[list[Measurement], dict]:
     """Run the measurements for the chosen workloads.
 
     Parameters
@@ -316,6 +318,9 @@ def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, 
     slides : bool, optional
         Also time the two-site time-slide background (10^6 triggers per site and
         10^5 slides at ``scale=1``).
+    bank : bool, optional
+        Also time the match kernel and place region (a) of the bank targets with a
+        10^4-point coverage check (several minutes; a small region when ``scale < 1``).
     log : callable, optional
         Called with progress lines (e.g. ``print`` to stderr).
 
@@ -369,6 +374,10 @@ def run(workloads=WORKLOADS, *, scale: float = 1.0, threads: int | None = None, 
             rows.extend(memory_rows)
         if slides:
             rows.extend(_measure_slides(scale, say))
+        if bank:
+            rows.extend(measure_match(say, repeats))
+            set_threads(n_threads)  # placement and coverage run on every thread, as users run them
+            rows.extend(measure_placement(say, quick=scale < 1.0))
     finally:
         set_threads(previous)
     return rows, context

@@ -58,6 +58,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              f"and range (default: {SCALING_RUNS}, or {_QUICK_SCALING_RUNS} with --quick)")
     parser.add_argument("--json", dest="json_path", action=Once, what="JSON file", metavar="FILE.json",
                         help="also write the results to this JSON file")
+    parser.add_argument("--bank", action=argparse.BooleanOptionalAction, default=True,
+                        help="time the match kernel and place and check a bank (region (a): 1-3 Msun from 30 Hz "
+                             "with 10^4 coverage points, a few minutes; a small region with --quick); default: on")
     parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
 
 
@@ -73,7 +76,7 @@ def run(args) -> int:
     log = None if args.quiet else (lambda msg: print(f"[bench] {msg}", file=sys.stderr, flush=True))
     started = time.perf_counter()
     rows, context = run_suite(args.workloads, scale=scale, threads=args.threads, repeats=repeats,
-                              scaling_runs=scaling_runs, log=log)
+                              scaling_runs=scaling_runs, bank=args.bank, log=log)
     context["wall_s"] = round(time.perf_counter() - started, 1)
     print(format_table(rows, context))
     if json_path is not None:

@@ -91,7 +91,15 @@ fn required_period(longest: f64) -> f64 {
     overlap::required_period(longest)
 }
 
+/// Points of the inverse transform `matches` performs for a pair whose common band holds
+/// `bins` bins (the smallest `2^a 3^b` at or above it, at least 4).
+#[pyfunction]
+fn transform_length(bins: usize) -> usize {
+    overlap::transform_length(bins)
+}
+
 pub(super) fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_function(wrap_pyfunction!(transform_length, m)?)?;
     m.add_function(wrap_pyfunction!(matches, m)?)?;
     m.add_function(wrap_pyfunction!(best_matches, m)?)?;
     m.add_function(wrap_pyfunction!(required_period, m)?)?;

@@ -5,14 +5,15 @@ use super::fused::PreparedBank;
 use crate::timing::{self, Transform};
 use pyo3::prelude::*;
 
-/// Seconds per transform of length `n`: complex64 inverse, or (`real`) float64
-/// complex-to-real inverse; on the calling thread.
+/// Seconds per transform of length `n`: complex64 inverse, complex128 inverse
+/// (`double`), or (`real`) float64 complex-to-real inverse; on the calling thread.
 #[pyfunction]
-fn transform_seconds(py: Python<'_>, n: usize, real: bool, repeats: usize) -> PyResult<f64> {
-    let kind = if real {
-        Transform::RealFloat64Inverse
-    } else {
-        Transform::Complex64Inverse
+#[pyo3(signature = (n, real, repeats, double=false))]
+fn transform_seconds(py: Python<'_>, n: usize, real: bool, repeats: usize, double: bool) -> PyResult<f64> {
+    let kind = match (real, double) {
+        (true, _) => Transform::RealFloat64Inverse,
+        (false, true) => Transform::Complex128Inverse,
+        (false, false) => Transform::Complex64Inverse,
     };
     Ok(py.detach(|| timing::transform_seconds(n, kind, repeats))?)
 }
