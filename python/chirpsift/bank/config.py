@@ -1,5 +1,7 @@
-"""The keys that describe a bank to place: one table for ``chirpsift bank --config`` and the
-analysis file's ``[bank]`` table, read by one function."""
+"""The keys that describe a bank to place, read by one function.
+
+One table for ``chirpsift bank --config`` and for the analysis file's ``[bank]`` table.
+"""
 
 from __future__ import annotations
 
