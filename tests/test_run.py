@@ -50,7 +50,7 @@ def _edit(path: Path, old: str, new: str) -> Path:
     ("slides = 40", "slides = -1", "slides must be a finite number >= 0, got -1"),
     ("slides = 40", "slides = 2.5", "slides must be an integer, got 2.5"),
     ("min-snr = 5.0", "min-snr = -5.0", "min_snr must be positive"),
-    ('[bank]\nfile = "bank.parquet"', "[bank]", "file (the template bank) must be given"),
+    ('[bank]\nfile = "bank.parquet"', "[bank]", "give file (a template bank) or a region"),
 ])
 def test_bad_analysis_files_are_refused_naming_the_key(tmp_path, old, new, message):
     path = _edit(write_scenario(tmp_path), old, new)

@@ -67,7 +67,7 @@ def _table(args) -> tuple[dict, str]:
 
     table, where = {}, "flags"
     if args.config is not None:
-        doc = read_toml(args.config)
+        _, doc = read_toml(args.config, what="--config file")
         if "bank" not in doc or not isinstance(doc["bank"], dict):
             raise UsageError(f"--config {args.config!r} has no [bank] table")
         table, where = dict(doc["bank"]), f"{args.config} [bank]"
@@ -86,8 +86,8 @@ def _flags(message: str) -> str:
     message = message.removeprefix("flags: ")
     for key in ("mass_ratio", "minimal_match", "f_low", "sample_rate", "max_templates"):
         message = message.replace(key, "--" + key.replace("_", "-"))
-    return re.sub(r"^(m1|m2|chi1|chi2|mtotal|mass-ratio|psd|f-low|minimal-match|sample-rate|seed|method|"
-                  r"max-templates)\b", r"--\1", message)
+    return re.sub(r"(?<![\w'-])(m1|m2|chi1|chi2|mtotal|mass-ratio|psd|f-low|minimal-match|sample-rate|seed|method|"
+                  r"max-templates)(?![\w'-])", r"--\1", message)
 
 
 def run(args) -> int:

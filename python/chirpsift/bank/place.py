@@ -88,12 +88,13 @@ def _masses(mc, eta):
 #: The non-spinning surface is laid out on a grid in (Mc^(-5/3), eta): the first
 #: coordinate is nearly proportional to the Newtonian chirp time, so grid steps are
 #: nearly even in metric length. Cells per axis for the area integral and the
-#: Newton starting points (the integrand is smooth), and for finding the region's
-#: edges, whose samples must lie far closer together than the covering radius
-#: (40,000 steps put them 0.035 apart for components of 1-3 Msun from 30 Hz,
-#: radius 0.17).
+#: Newton starting points (the integrand is smooth).
 AREA_GRID = (2000, 100)
-EDGE_GRID = (40000, 400)
+#: The region's edges are found on a finer grid whose steps are at most this fraction
+#: of the covering radius in the plane (components of 1-3 Msun from 30 Hz: 40,000 x
+#: 60 cells), within EDGE_GRID_LIMITS cells per axis.
+EDGE_STEP = 0.2
+EDGE_GRID_LIMITS = ((200, 100_000), (20, 2_000))
 
 
 class _Surface:
@@ -146,10 +147,37 @@ class _Surface:
         density = np.sqrt(np.maximum(p * r - q * q, 0.0))
         return float(density[inside].sum() * da * de)
 
-    def edges(self) -> np.ndarray:
-        """Plane coordinates of the region's edge: grid cells inside with a neighbour outside."""
-        a = np.linspace(*self.a_range, EDGE_GRID[0])
-        eta = np.linspace(*self.eta_range, EDGE_GRID[1])
+    def perimeter(self, radius: float, bins: int = 2000) -> float:
+        """Length of the region's edge in the plane (metric units).
+
+        From its upper and lower edge over ``bins`` slices of the long axis, and the two ends.
+        """
+        e = self.edges(radius)
+        cuts = np.linspace(e[:, 0].min(), e[:, 0].max(), bins + 1)
+        which = np.clip(np.digitize(e[:, 0], cuts) - 1, 0, bins - 1)
+        top = np.full(bins, -np.inf)
+        bottom = np.full(bins, np.inf)
+        np.maximum.at(top, which, e[:, 1])
+        np.minimum.at(bottom, which, e[:, 1])
+        ok = np.isfinite(top)
+        x = 0.5 * (cuts[:-1] + cuts[1:])[ok]
+        top, bottom = top[ok], bottom[ok]
+        sides = np.hypot(np.diff(x), np.diff(top)).sum() + np.hypot(np.diff(x), np.diff(bottom)).sum()
+        return float(sides + (top[0] - bottom[0]) + (top[-1] - bottom[-1]))
+
+    def edges(self, radius: float) -> np.ndarray:
+        """Plane coordinates of the region's edge: grid cells inside with a neighbour outside.
+
+        The grid's steps are at most :data:`EDGE_STEP` times ``radius`` in the plane.
+        """
+        _, _, inside, xi = self.area_grid
+        uv = self.plane(xi)
+        # plane length of one area-grid step along each axis, at its longest
+        step = [float(np.max(np.hypot(*np.diff(uv, axis=k).transpose(2, 0, 1)))) for k in (0, 1)]
+        shape = [int(np.clip(np.ceil(step[k] * (AREA_GRID[k] - 1) / (EDGE_STEP * radius)), *EDGE_GRID_LIMITS[k]))
+                 for k in (0, 1)]
+        a = np.linspace(*self.a_range, shape[0])
+        eta = np.linspace(*self.eta_range, shape[1])
         aa, ee = np.meshgrid(a, eta, indexing="ij")
         inside = np.pad(self.region.contains(*_masses(aa ** (-0.6), ee)), 1)
         core = inside[:-2, 1:-1] & inside[2:, 1:-1] & inside[1:-1, :-2] & inside[1:-1, 2:]
@@ -166,7 +194,7 @@ def _lattice(surface: _Surface, radius: float):
     """
     from scipy.spatial import cKDTree
 
-    edge = surface.edges()
+    edge = surface.edges(radius)
     lat = _centred_lattice(edge, radius)
     # preimages: Newton steps in (Mc^(-5/3), eta) from the nearest area-grid point
     _, start = cKDTree(surface.start_plane).query(lat, k=1)
@@ -350,22 +378,31 @@ def _fill(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, m
 
 
 class BankEstimate(dict):
-    """The metric's estimate of a bank: ``templates``, ``dimension``, ``volume``, ``seconds``."""
+    """The metric's estimate of a bank.
+
+    Keys ``templates``, ``dimension``, ``volume`` and, 2-D, ``templates_with_edges``.
+    """
 
 
 def estimate_bank_size(region: Region, setup: SweepSetup, minimal_match: float) -> BankEstimate:
     """Templates an ideal lattice would need: metric volume times the A_n* covering density.
 
     Non-spinning regions: the 2-D surface's area over the hexagonal cell
-    ``(3 sqrt 3 / 2)(1 - MM)``. With spins, the surface of equal spins
+    ``(3 sqrt 3 / 2)(1 - MM)`` (``templates``), and with the edges' share added, half a
+    lattice row per unit length of edge, ``perimeter / (2 sqrt 3 r)``
+    (``templates_with_edges``): regions thin in metric terms need far more than the
+    area alone says. With spins, the surface of equal spins
     ``chi1 = chi2`` (3-D) over the A3* cell: an approximation (unequal spins add a
     little volume at unequal masses).
     """
     radius2 = 1.0 - minimal_match
     if not region.spinning:
-        area = _Surface(region, setup).area()
+        surface = _Surface(region, setup)
+        area = surface.area()
         n = area / (1.5 * math.sqrt(3.0) * radius2)
-        return BankEstimate(templates=n, dimension=2, volume=area)
+        # the edges' share: half a lattice row (points sqrt(3) r apart) per unit of edge
+        edge = surface.perimeter(math.sqrt(radius2)) / (2.0 * math.sqrt(3.0) * math.sqrt(radius2))
+        return BankEstimate(templates=n, dimension=2, volume=area, templates_with_edges=n + edge)
     vol = _spin_volume(region, setup)
     theta = lattice_covering_density(3)
     n = theta * vol / (4.0 / 3.0 * math.pi * radius2 ** 1.5)
@@ -482,9 +519,10 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     longest = float(chirp_duration(m_small, m_small, fl)) * 1.05  # spins and the edges' overshoot
     setup = SweepSetup.build(psd, fl, fs, longest, m_lo)
     estimate = estimate_bank_size(region, setup, mm)
-    log(f"metric estimate: {estimate['templates']:.0f} templates ({estimate['dimension']}-D)")
-    if estimate["templates"] > cap:
-        raise ValueError(f"the region needs about {estimate['templates']:.0f} templates by the metric (more than "
+    expected = estimate.get("templates_with_edges", estimate["templates"])
+    log(f"metric estimate: {expected:.0f} templates ({estimate['dimension']}-D)")
+    if expected > cap:
+        raise ValueError(f"the region needs about {expected:.0f} templates by the metric (more than "
                          f"max_templates={cap}); raise max_templates or shrink the region")
     radius = math.sqrt(1.0 - mm)
     if method == "lattice":
@@ -505,6 +543,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         "seed": int(seed),
         "sample_rate": fs,
         "metric_estimate": float(estimate["templates"]),
+        "metric_estimate_with_edges": float(expected),
         "metric_dimension": int(estimate["dimension"]),
     }
     return Bank(bank[0], bank[1], bank[2], bank[3], metadata=metadata)
