@@ -96,7 +96,7 @@ def run(args) -> int:
     from ..io.atomic import write_json_atomic
     from .config import placement_arguments
     from .coverage import bank_coverage
-    from .place import place_bank
+    from .place import FILL_TARGET, place_bank
     from .plot import plot_coverage
 
     out = Path(args.output)
@@ -118,9 +118,14 @@ def run(args) -> int:
         raise UsageError(_flags(str(exc)) if where == "flags" else f"{where}: {exc}") from None
     bank.save(out)
     meta = bank.metadata
-    print(f"Placed {len(bank)} templates in {time.perf_counter() - started:.1f} s "
-          f"({meta['method']}, minimal match {meta['minimal_match']:g}, metric estimate for an ideal "
-          f"lattice {meta['metric_estimate']:.0f}); wrote {out}")
+    edges = meta["metric_estimate_with_edges"]
+    estimate = f"{meta['metric_estimate']:.0f} for an ideal lattice" + (
+        f", {edges:.0f} counting the region's edges" if edges != meta["metric_estimate"] else "")
+    print(f"Placed {len(bank)} templates in {time.perf_counter() - started:.1f} s ({meta['method']}, minimal "
+          f"match {meta['minimal_match']:g}; metric estimate {estimate}); wrote {out}")
+    if meta["last_check_fraction_below"] >= FILL_TARGET:
+        print(f"Note: after {meta['check_rounds']} check rounds {100 * meta['last_check_fraction_below']:.2f}% of "
+              "the last draw was still below the minimal match; check the coverage (--coverage N).")
     if args.coverage:
         started = time.perf_counter()
         cov = bank_coverage(bank, args.coverage, seed=args.coverage_seed, progress=args.progress)

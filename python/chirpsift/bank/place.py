@@ -357,24 +357,41 @@ def _stochastic(region: Region, setup: SweepSetup, radius: float, rng, max_templ
             return bank
 
 
-def _fill(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, max_templates: int, log):
-    """Add points whose exact fitting factor is below ``mm`` until a draw finds almost none."""
+def _fill(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, max_templates: int, log,
+          progress: bool = False):
+    """Add points whose exact fitting factor is below ``mm`` until a draw finds almost none.
+
+    Returns the bank and a record of the rounds: their count and the fraction of the
+    last draw below ``mm`` (above :data:`FILL_TARGET` when the rounds ran out).
+    """
     radius = math.sqrt(1.0 - mm)
+    fraction = 1.0
     for round_ in range(FILL_ROUNDS):
         n = max(FILL_POINTS, bank.shape[1] // 2)
         n_edge = int(EDGE_FRACTION * n)
         pts = np.hstack([np.stack(region.sample(n - n_edge, seed=rng)), _edge_points(region, n_edge, rng)])
-        ff, _ = setup.sweep(pts, bank)
+        bar = None
+        if progress:
+            from tqdm.auto import tqdm
+
+            bar = tqdm(total=pts.shape[1], desc=f"check round {round_ + 1}", unit="point", leave=False)
+        try:
+            ff, _ = setup.sweep(pts, bank, progress=bar)
+        finally:
+            if bar is not None:
+                bar.close()
         low = np.flatnonzero(ff < mm)
-        log(f"fill round {round_ + 1}: {low.size} of {pts.shape[1]} points below {mm} ({bank.shape[1]} templates)")
-        if low.size < FILL_TARGET * pts.shape[1]:
-            return bank
+        fraction = low.size / pts.shape[1]
+        log(f"check round {round_ + 1}: {low.size} of {pts.shape[1]} points below {mm} ({bank.shape[1]} templates)")
+        if fraction < FILL_TARGET:
+            return bank, {"rounds": round_ + 1, "last_fraction_below": fraction}
         order = low[np.argsort(ff[low])]
         new = _dedupe(pts[:, order], setup, 0.5 * radius)
         bank = np.hstack([bank, new])
         if bank.shape[1] > max_templates:
             raise ValueError(f"the bank passed max_templates={max_templates}; raise it or shrink the region")
-    return bank
+    log(f"check rounds ran out with {100 * fraction:.2f}% of the last draw below {mm}: check the coverage")
+    return bank, {"rounds": FILL_ROUNDS, "last_fraction_below": fraction}
 
 
 class BankEstimate(dict):
@@ -455,7 +472,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     max_templates : int, optional
         Refuse (before placing) when the metric estimate exceeds this (default 200,000).
     progress : bool, optional
-        Print the stages and the fill rounds on stderr.
+        Print the stages on stderr, with a progress bar (tqdm) over each check round.
 
     Returns
     -------
@@ -532,7 +549,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     else:
         bank = _stochastic(region, setup, radius, rng, cap)
     log(f"{method}: {bank.shape[1]} templates")
-    bank = _fill(bank, region, setup, mm, rng, cap, log)
+    bank, fill = _fill(bank, region, setup, mm, rng, cap, log, progress)
     log(f"done: {bank.shape[1]} templates")
     metadata = {
         "region": region.as_dict(),
@@ -545,5 +562,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         "metric_estimate": float(estimate["templates"]),
         "metric_estimate_with_edges": float(expected),
         "metric_dimension": int(estimate["dimension"]),
+        "check_rounds": fill["rounds"],
+        "last_check_fraction_below": fill["last_fraction_below"],
     }
     return Bank(bank[0], bank[1], bank[2], bank[3], metadata=metadata)
