@@ -1,15 +1,33 @@
 //! Bindings of `crate::overlap`: matches of explicit templates, fitting factors.
 
 use super::run;
+use crate::filter::AsComplex64;
 use crate::overlap::{self, Params, SweepGrid};
 use num_complex::{Complex32, Complex64};
 use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods};
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
 
+/// `matches` on two template arrays of one complex type.
+fn matches_of<'py, C: AsComplex64 + numpy::Element>(
+    py: Python<'py>,
+    a: PyReadonlyArray2<'py, C>,
+    b: PyReadonlyArray2<'py, C>,
+    inv: &[f64],
+    band: (f64, f64, Option<f64>),
+) -> PyResult<Bound<'py, PyArray1<f64>>> {
+    let n = a.shape()[1];
+    if b.shape()[1] != n {
+        return Err(PyValueError::new_err(format!("h2: has {} frequency bins but h1 has {n}", b.shape()[1])));
+    }
+    let (x, y) = (a.as_slice()?, b.as_slice()?);
+    let (df, f_low, f_high) = band;
+    let out = run(py, || overlap::matches(x, y, n, inv, df, f_low, f_high))?;
+    Ok(out.into_pyarray(py))
+}
+
 #[pyfunction]
 #[pyo3(signature = (h1, h2, psd, df, f_low, f_high=None))]
-#[allow(clippy::too_many_arguments)]
 fn matches<'py>(
     py: Python<'py>,
     h1: &Bound<'py, PyAny>,
@@ -20,30 +38,11 @@ fn matches<'py>(
     f_high: Option<f64>,
 ) -> PyResult<Bound<'py, PyArray1<f64>>> {
     let inv = crate::grid::inverse_psd(psd.as_slice()?);
+    let band = (df, f_low, f_high);
     if let (Ok(a), Ok(b)) = (h1.extract::<PyReadonlyArray2<Complex64>>(), h2.extract::<PyReadonlyArray2<Complex64>>()) {
-        if a.shape()[1] != b.shape()[1] {
-            return Err(PyValueError::new_err(format!(
-                "h2: has {} frequency bins but h1 has {}",
-                b.shape()[1],
-                a.shape()[1]
-            )));
-        }
-        let (x, y, n) = (a.as_slice()?, b.as_slice()?, a.shape()[1]);
-        let out = run(py, || overlap::matches(x, y, n, &inv, df, f_low, f_high))?;
-        return Ok(out.into_pyarray(py));
+        return matches_of(py, a, b, &inv, band);
     }
-    let a = h1.extract::<PyReadonlyArray2<Complex32>>()?;
-    let b = h2.extract::<PyReadonlyArray2<Complex32>>()?;
-    if a.shape()[1] != b.shape()[1] {
-        return Err(PyValueError::new_err(format!(
-            "h2: has {} frequency bins but h1 has {}",
-            b.shape()[1],
-            a.shape()[1]
-        )));
-    }
-    let (x, y, n) = (a.as_slice()?, b.as_slice()?, a.shape()[1]);
-    let out = run(py, || overlap::matches(x, y, n, &inv, df, f_low, f_high))?;
-    Ok(out.into_pyarray(py))
+    matches_of::<Complex32>(py, h1.extract()?, h2.extract()?, &inv, band)
 }
 
 #[pyfunction]
