@@ -136,8 +136,21 @@ class SweepSetup:
         return np.concatenate(out_m), np.concatenate(out_i)
 
 
+def template_durations(m1, m2, f_low: float) -> np.ndarray:
+    """Seconds from ``f_low`` to coalescence: the 3.5PN chirp time, or the Newtonian one where that is not positive.
+
+    Close below the ISCO frequency the post-Newtonian series for the duration turns
+    negative; the Newtonian chirp time is positive and bounds such short templates.
+    """
+    d = np.asarray(chirp_duration(m1, m2, f_low), dtype=np.float64).reshape(-1)
+    if (d <= 0).any():
+        newtonian = np.asarray(chirp_duration(m1, m2, f_low, phase_order=0), dtype=np.float64).reshape(-1)
+        d = np.where(d > 0, d, newtonian)
+    return d
+
+
 def _durations(p: np.ndarray, f_low: float) -> np.ndarray:
-    return np.asarray(chirp_duration(p[0], p[1], f_low), dtype=np.float64).reshape(-1)
+    return template_durations(p[0], p[1], f_low)
 
 
 def setup_for(psd, f_low: float, sample_rate: float, *params) -> SweepSetup:
@@ -326,7 +339,7 @@ def bank_coverage(bank, n_points=10000, *, m1=None, m2=None, chi1=(0.0, 0.0), ch
     if not mm < 1:
         raise ValueError(f"minimal_match must lie in (0, 1), got {mm!r}")
     n = integer("n_points", n_points, minimum=1)
-    pts = np.stack(region.sample(n, seed=seed))
+    pts = np.stack(region.sample(n, seed=integer("seed", seed, minimum=0)))
     bar = None
     if progress:
         from tqdm.auto import tqdm

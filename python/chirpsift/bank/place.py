@@ -30,8 +30,7 @@ import time
 import numpy as np
 
 from .._validate import integer, positive_scalar, real_scalar
-from ..waveform import chirp_duration
-from .coverage import SweepSetup
+from .coverage import SweepSetup, template_durations
 from .region import Region
 from .templates import Bank
 
@@ -429,9 +428,11 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     Raises
     ------
     ValueError
-        An empty or inverted range, a minimal match outside (0, 1), ``f_low`` at or
-        above the ISCO frequency of every binary in the region, spins outside (-1, 1),
-        a PSD infinite over the whole band, or an estimate above ``max_templates``.
+        An empty (``lo == hi`` masses) or inverted range, a minimal match outside (0, 1),
+        ``f_low`` at or above the ISCO frequency of every binary in the region or at or
+        above Nyquist, spins outside (-1, 1) or fixed at non-zero values, a PSD infinite
+        over the whole band, a negative ``seed``, or an estimate or a placed bank above
+        ``max_templates``.
 
     References
     ----------
@@ -451,6 +452,12 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     """
     started = time.perf_counter()
     region = Region(m1=m1, m2=m2, chi1=chi1, chi2=chi2, mtotal=mtotal, mass_ratio=mass_ratio)
+    for name, (lo, hi) in (("m1", region.m1), ("m2", region.m2)):
+        if not lo < hi:
+            raise ValueError(f"{name}=({lo!r}, {hi!r}) is empty: place_bank needs a mass range with lo < hi")
+    if region.spinning and region.chi1[0] == region.chi1[1] and region.chi2[0] == region.chi2[1]:
+        raise ValueError(f"chi1={region.chi1!r} and chi2={region.chi2!r} fix the spins at non-zero values; place_bank "
+                         "places non-spinning regions or spin ranges with lo < hi")
     mm = real_scalar("minimal_match", minimal_match)
     if not 0.0 < mm < 1.0:
         raise ValueError(f"minimal_match must lie in (0, 1), got {minimal_match!r}")
@@ -463,13 +470,16 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     if method == "lattice" and region.spinning:
         raise ValueError("method='lattice' places non-spinning regions (2-D); use 'stochastic' with spins")
     cap = DEFAULT_MAX_TEMPLATES if max_templates is None else integer("max_templates", max_templates)
+    seed = integer("seed", seed, minimum=0)
     m_lo = region.total_mass_range[0]
     from ..waveform import isco_frequency
 
     top = float(isco_frequency(m_lo / 2, m_lo / 2))
-    if fl >= min(top, 0.5 * fs):
+    if fl >= 0.5 * fs:
+        raise ValueError(f"sample_rate={fs:g} Hz puts Nyquist ({0.5 * fs:g} Hz) at or below f_low={fl} Hz")
+    if fl >= top:
         raise ValueError(f"f_low={fl} Hz is at or above the ISCO frequency ({top:.1f} Hz) of every binary in the "
-                         f"region (or Nyquist, {0.5 * fs:g} Hz)")
+                         "region")
     rng = np.random.default_rng(seed)
 
     def log(msg):
@@ -479,7 +489,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
             print(f"[place_bank {time.perf_counter() - started:6.1f} s] {msg}", file=sys.stderr, flush=True)
 
     m_small = min(region.m1[0], region.m2[0])
-    longest = float(chirp_duration(m_small, m_small, fl)) * 1.05  # spins and the edges' overshoot
+    longest = float(template_durations(m_small, m_small, fl)[0]) * 1.05  # spins and the edges' overshoot
     setup = SweepSetup.build(psd, fl, fs, longest, m_lo)
     estimate = estimate_bank_size(region, setup, mm)
     log(f"metric estimate: {estimate['templates']:.0f} templates ({estimate['dimension']}-D)")
@@ -495,6 +505,9 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         bank = _stochastic(region, setup, radius, rng, cap)
     log(f"{method}: {bank.shape[1]} templates")
     bank = _fill(bank, region, setup, mm, rng, cap, log)
+    if bank.shape[1] > cap:
+        raise ValueError(f"the bank needs {bank.shape[1]} templates, more than max_templates={cap}; raise it or "
+                         "shrink the region")
     log(f"done: {bank.shape[1]} templates")
     metadata = {
         "region": region.as_dict(),
