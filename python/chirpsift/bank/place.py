@@ -29,8 +29,8 @@ import time
 
 import numpy as np
 
-from .._validate import integer, positive_scalar, real_scalar
-from .coverage import SweepSetup, template_durations
+from .._validate import choice, integer, positive_scalar, real_scalar
+from .coverage import SweepSetup, flag, template_durations
 from .region import Region
 from .templates import Bank
 
@@ -463,8 +463,8 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         raise ValueError(f"minimal_match must lie in (0, 1), got {minimal_match!r}")
     fl = positive_scalar("f_low", f_low)
     fs = positive_scalar("sample_rate", sample_rate)
-    if method not in METHODS:
-        raise ValueError(f"method must be one of {METHODS}, got {method!r}")
+    choice("method", method, METHODS)
+    flag("progress", progress)
     if method == "auto":
         method = "stochastic" if region.spinning else "lattice"
     if method == "lattice" and region.spinning:
