@@ -266,6 +266,7 @@ def test_bank_metadata_records_how_it_was_placed(bns_bank, spin_bank):
         assert meta["seed"] == 1
         assert meta["sample_rate"] == kw["sample_rate"]
         assert meta["metric_dimension"] == (3 if method == "stochastic" else 2)
+        assert 0.0 <= meta["fill_fraction_below"] < 1e-3  # the fill converged (no CoverageWarning)
         assert _region(kw).contains(bank.m1, bank.m2, bank.chi1, bank.chi2).mean() > 0.5
     assert not spin_bank.metadata["region"] == bns_bank.metadata["region"]
     assert np.any(spin_bank.chi1 != 0) and np.all(bns_bank.chi1 == 0)

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 import time
+import warnings
 
 import numpy as np
 
@@ -34,9 +35,15 @@ from .coverage import SweepSetup, flag, template_durations
 from .region import Region
 from .templates import Bank
 
-__all__ = ["place_bank", "estimate_bank_size", "METHODS", "lattice_covering_density", "BankEstimate"]
+__all__ = ["place_bank", "estimate_bank_size", "METHODS", "lattice_covering_density", "BankEstimate", "CoverageWarning"]
 
 METHODS = ("auto", "lattice", "stochastic")
+
+
+class CoverageWarning(UserWarning):
+    """A placed bank's last fill round still found points below the minimal match."""
+
+
 #: Stop the stochastic proposals once a batch keeps fewer than this fraction.
 STOCHASTIC_STOP = 0.005
 #: Fill step: draw points until a draw finds fewer than this fraction below the
@@ -329,7 +336,11 @@ def _stochastic(region: Region, setup: SweepSetup, radius: float, rng, max_templ
 
 
 def _fill(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, max_templates: int, log):
-    """Add points whose exact fitting factor is below ``mm`` until a draw finds almost none."""
+    """Add points whose exact fitting factor is below ``mm`` until a draw finds almost none.
+
+    Returns the bank and the fraction of the last draw below ``mm`` (at or above
+    :data:`FILL_TARGET` when the rounds ran out first).
+    """
     radius = math.sqrt(1.0 - mm)
     for round_ in range(FILL_ROUNDS):
         n = max(FILL_POINTS, bank.shape[1] // 2)
@@ -339,13 +350,13 @@ def _fill(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, m
         low = np.flatnonzero(ff < mm)
         log(f"fill round {round_ + 1}: {low.size} of {pts.shape[1]} points below {mm} ({bank.shape[1]} templates)")
         if low.size < FILL_TARGET * pts.shape[1]:
-            return bank
+            return bank, low.size / pts.shape[1]
         order = low[np.argsort(ff[low])]
         new = _dedupe(pts[:, order], setup, 0.5 * radius)
         bank = np.hstack([bank, new])
         if bank.shape[1] > max_templates:
             raise ValueError(f"the bank passed max_templates={max_templates}; raise it or shrink the region")
-    return bank
+    return bank, low.size / pts.shape[1]
 
 
 class BankEstimate(dict):
@@ -423,7 +434,8 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     -------
     Bank
         With :attr:`Bank.metadata` holding the region, noise curve (when named),
-        ``f_low``, minimal match, method, seed, sample rate and the estimate.
+        ``f_low``, minimal match, method, seed, sample rate, the estimate and the
+        fraction of the last fill draw below the minimal match.
 
     Raises
     ------
@@ -433,6 +445,12 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         above Nyquist, spins outside (-1, 1) or fixed at non-zero values, a PSD infinite
         over the whole band, a negative ``seed``, or an estimate or a placed bank above
         ``max_templates``.
+
+    Warns
+    -----
+    CoverageWarning
+        When the fill rounds ran out with that fraction still at or above
+        :data:`FILL_TARGET` (the bank does not cover the region).
 
     References
     ----------
@@ -504,11 +522,15 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     else:
         bank = _stochastic(region, setup, radius, rng, cap)
     log(f"{method}: {bank.shape[1]} templates")
-    bank = _fill(bank, region, setup, mm, rng, cap, log)
+    bank, below = _fill(bank, region, setup, mm, rng, cap, log)
     if bank.shape[1] > cap:
         raise ValueError(f"the bank needs {bank.shape[1]} templates, more than max_templates={cap}; raise it or "
                          "shrink the region")
     log(f"done: {bank.shape[1]} templates")
+    if below >= FILL_TARGET:
+        warnings.warn(f"place_bank: after {FILL_ROUNDS} fill rounds {below:.1%} of points drawn in the region still "
+                      f"fall below minimal_match={mm}; the bank does not cover the region (is f_low={fl} Hz near "
+                      "the ISCO frequency of part of it?)", CoverageWarning, stacklevel=2)
     metadata = {
         "region": region.as_dict(),
         "psd": psd if isinstance(psd, str) else None,
@@ -519,5 +541,6 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         "sample_rate": fs,
         "metric_estimate": float(estimate["templates"]),
         "metric_dimension": int(estimate["dimension"]),
+        "fill_fraction_below": float(below),
     }
     return Bank(bank[0], bank[1], bank[2], bank[3], metadata=metadata)
