@@ -154,8 +154,14 @@ JUNK_SCALARS = st.one_of(
 JUNK = st.one_of(JUNK_SCALARS, any_array())
 
 
+# Functions whose ``psd`` may be a design-curve name: an unknown name is reported as the
+# ``curve`` of chirpsift.design_psd, as search() does.
+CURVE_NAMED_PSD = {"fitting_factor", "bank_coverage"}
+
+
 def names_for(fn_name, arg, value, extra=()):
-    return {arg} | RELATED.get(arg, set()) | set(extra)
+    curve = {"curve"} if arg == "psd" and fn_name in CURVE_NAMED_PSD else set()
+    return {arg} | RELATED.get(arg, set()) | set(extra) | curve
 
 
 def corrupt(data, base: dict):
