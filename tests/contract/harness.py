@@ -154,8 +154,14 @@ JUNK_SCALARS = st.one_of(
 JUNK = st.one_of(JUNK_SCALARS, any_array())
 
 
+# Functions whose ``psd`` may be a design-curve name: an unknown name is reported as the
+# ``curve`` of chirpsift.design_psd, as search() does.
+CURVE_NAMED_PSD = {"fitting_factor", "bank_coverage"}
+
+
 def names_for(fn_name, arg, value, extra=()):
-    return {arg} | RELATED.get(arg, set()) | set(extra)
+    curve = {"curve"} if arg == "psd" and fn_name in CURVE_NAMED_PSD else set()
+    return {arg} | RELATED.get(arg, set()) | set(extra) | curve
 
 
 def corrupt(data, base: dict):
@@ -181,6 +187,7 @@ DATA_FD = np.fft.rfft(NOISE) / FS
 TEMPLATES = cs.taylorf2(1.4, 1.3, f_low=20.0, df=DF, n_freq=NF)
 STRAIN = _rng.normal(size=int(16 * 128.0)) * 1e-21
 TINY_BANK = Bank([10.0], [10.0])
+MATCH_BANK = Bank([10.0, 11.0], [10.0, 9.0])
 
 BASES = {
     "welch": (cs.welch, dict(x=NOISE, sample_rate=64.0, segment_duration=2.0, overlap=0.5, average="median",
@@ -205,6 +212,13 @@ BASES = {
     "plan_segments": (cs.plan_segments, dict(n_samples=1000, length=200, pad_start=30, pad_end=10)),
     "cluster_in_time": (cs.cluster_in_time, dict(times=[0.0, 0.5, 3.0], values=[5.0, 6.0, 7.0], window=1.0,
                                                  groups=None)),
+    "match": (cs.match, dict(h1=TEMPLATES[0], h2=np.conj(TEMPLATES), psd=WHITE_PSD, df=DF, f_low=20.0, f_high=None)),
+    "fitting_factor": (cs.fitting_factor, dict(points=[[10.5, 9.5]], bank=MATCH_BANK, psd="gen2-zero-detuned",
+                                               f_low=40.0, sample_rate=256.0, search="metric", return_index=False)),
+    "bank_coverage": (cs.bank_coverage, dict(bank=MATCH_BANK, n_points=3, m1=(10.0, 11.0), m2=(9.0, 10.0),
+                                             chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ratio=None,
+                                             psd="gen2-zero-detuned", f_low=40.0, sample_rate=256.0,
+                                             minimal_match=0.97, seed=0, progress=False)),
 }
 
 # Arguments whose corruption may legitimately surface as a complaint about a
@@ -233,6 +247,16 @@ RELATED = {
     "groups": {"times"},
     "snr": {"chi2", "dof"},
     "dof": {"snr", "chi2"},
+    "h1": {"h2", "psd"},
+    "h2": {"h1", "psd"},
+    "points": set(),
+    "bank": set(),
+    "search": set(),
+    "n_points": set(),
+    "minimal_match": set(),
+    "seed": set(),
+    "mtotal": {"mass_ratio", "m1", "m2"},
+    "mass_ratio": {"mtotal", "m1", "m2"},
     "n_samples": {"length"},
     "length": {"n_samples", "pad_start", "pad_end"},
     "pad_start": {"length", "pad_end"},

@@ -11,7 +11,7 @@
 from .templates import BANK_FORMAT, BANK_VERSION, Bank
 from .region import Region
 from .coverage import Coverage, bank_coverage, coverage_summary, fitting_factor
-from .place import METHODS, estimate_bank_size, place_bank
+from .place import METHODS, CoverageWarning, estimate_bank_size, place_bank
 
 __all__ = ["Bank", "BANK_FORMAT", "BANK_VERSION", "Region", "place_bank", "estimate_bank_size", "METHODS",
-           "fitting_factor", "bank_coverage", "Coverage", "coverage_summary"]
+           "fitting_factor", "bank_coverage", "Coverage", "coverage_summary", "CoverageWarning"]

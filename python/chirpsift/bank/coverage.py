@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._validate import integer, positive_scalar, real_array
+from .._validate import choice, integer, positive_scalar, real_array
 from ..overlap import best_matches, required_period
 from ..spectrum import psd_on_grid
 from ..waveform import chirp_duration, isco_frequency
@@ -31,6 +31,13 @@ CANDIDATE_SLACK = 0.01
 CANDIDATE_MISMATCH = 0.2
 #: Points per call of the kernel: bounds memory and paces the progress bar.
 CHUNK = 256
+
+
+def flag(name: str, x) -> bool:
+    """``x`` as a bool, or a ``TypeError`` naming ``name`` (arrays and strings are not flags)."""
+    if not isinstance(x, (bool, np.bool_)):
+        raise TypeError(f"{name} must be True or False, got {type(x).__name__}")
+    return bool(x)
 
 
 def _points(points) -> np.ndarray:
@@ -136,8 +143,21 @@ class SweepSetup:
         return np.concatenate(out_m), np.concatenate(out_i)
 
 
+def template_durations(m1, m2, f_low: float) -> np.ndarray:
+    """Seconds from ``f_low`` to coalescence: the 3.5PN chirp time, or the Newtonian one where that is not positive.
+
+    Close below the ISCO frequency the post-Newtonian series for the duration turns
+    negative; the Newtonian chirp time is positive and bounds such short templates.
+    """
+    d = np.asarray(chirp_duration(m1, m2, f_low), dtype=np.float64).reshape(-1)
+    if (d <= 0).any():
+        newtonian = np.asarray(chirp_duration(m1, m2, f_low, phase_order=0), dtype=np.float64).reshape(-1)
+        d = np.where(d > 0, d, newtonian)
+    return d
+
+
 def _durations(p: np.ndarray, f_low: float) -> np.ndarray:
-    return np.asarray(chirp_duration(p[0], p[1], f_low), dtype=np.float64).reshape(-1)
+    return template_durations(p[0], p[1], f_low)
 
 
 def setup_for(psd, f_low: float, sample_rate: float, *params) -> SweepSetup:
@@ -204,8 +224,8 @@ def fitting_factor(points, bank, *, psd, f_low, sample_rate=4096.0, search="metr
         raise TypeError(f"bank must be a chirpsift.Bank, got {type(bank).__name__}")
     if len(bank) == 0:
         raise ValueError("bank holds no templates")
-    if search not in ("metric", "all"):
-        raise ValueError(f"search must be 'metric' or 'all', got {search!r}")
+    choice("search", search, ("metric", "all"))
+    flag("return_index", return_index)
     fl = positive_scalar("f_low", f_low)
     fs = positive_scalar("sample_rate", sample_rate)
     b = _points(bank)
@@ -326,7 +346,8 @@ def bank_coverage(bank, n_points=10000, *, m1=None, m2=None, chi1=(0.0, 0.0), ch
     if not mm < 1:
         raise ValueError(f"minimal_match must lie in (0, 1), got {mm!r}")
     n = integer("n_points", n_points, minimum=1)
-    pts = np.stack(region.sample(n, seed=seed))
+    flag("progress", progress)
+    pts = np.stack(region.sample(n, seed=integer("seed", seed, minimum=0)))
     bar = None
     if progress:
         from tqdm.auto import tqdm

@@ -26,18 +26,24 @@ from __future__ import annotations
 
 import math
 import time
+import warnings
 
 import numpy as np
 
-from .._validate import integer, positive_scalar, real_scalar
-from ..waveform import chirp_duration
-from .coverage import SweepSetup
+from .._validate import choice, integer, positive_scalar, real_scalar
+from .coverage import SweepSetup, flag, template_durations
 from .region import Region
 from .templates import Bank
 
-__all__ = ["place_bank", "estimate_bank_size", "METHODS", "lattice_covering_density", "BankEstimate"]
+__all__ = ["place_bank", "estimate_bank_size", "METHODS", "lattice_covering_density", "BankEstimate", "CoverageWarning"]
 
 METHODS = ("auto", "lattice", "stochastic")
+
+
+class CoverageWarning(UserWarning):
+    """A placed bank's last check round still found points below the minimal match."""
+
+
 #: Stop the stochastic proposals once a batch keeps fewer than this fraction.
 STOCHASTIC_STOP = 0.005
 #: Fill step: draw points until a draw finds fewer than this fraction below the
@@ -254,7 +260,8 @@ def _centred_lattice(edge: np.ndarray, radius: float) -> np.ndarray:
     np.maximum.at(hi, which, n)
     filled = np.isfinite(lo)
     mid_s = 0.5 * (bins[:-1] + bins[1:])[filled]
-    centre = np.polynomial.Polynomial.fit(mid_s, 0.5 * (lo + hi)[filled], deg=min(CENTRE_DEGREE, filled.sum() - 1))
+    degree = min(CENTRE_DEGREE, int(filled.sum()) - 1)
+    centre = np.polynomial.Polynomial.fit(mid_s, 0.5 * (lo[filled] + hi[filled]), deg=degree)
     offset = n - centre(s)
     spacing, row = math.sqrt(3.0) * radius, 1.5 * radius
     j_lo = int(math.floor((offset.min() - radius) / row))
@@ -478,14 +485,23 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     -------
     Bank
         With :attr:`Bank.metadata` holding the region, noise curve (when named),
-        ``f_low``, minimal match, method, seed, sample rate and the estimate.
+        ``f_low``, minimal match, method, seed, sample rate, the estimate and the
+        fraction of the last fill draw below the minimal match.
 
     Raises
     ------
     ValueError
-        An empty or inverted range, a minimal match outside (0, 1), ``f_low`` at or
-        above the ISCO frequency of every binary in the region, spins outside (-1, 1),
-        a PSD infinite over the whole band, or an estimate above ``max_templates``.
+        An empty (``lo == hi`` masses) or inverted range, a minimal match outside (0, 1),
+        ``f_low`` at or above the ISCO frequency of every binary in the region or at or
+        above Nyquist, spins outside (-1, 1) or fixed at non-zero values, a PSD infinite
+        over the whole band, a negative ``seed``, or an estimate or a placed bank above
+        ``max_templates``.
+
+    Warns
+    -----
+    CoverageWarning
+        When the check rounds ran out with that fraction still at or above
+        :data:`FILL_TARGET` (the bank does not cover the region).
 
     References
     ----------
@@ -505,25 +521,34 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     """
     started = time.perf_counter()
     region = Region(m1=m1, m2=m2, chi1=chi1, chi2=chi2, mtotal=mtotal, mass_ratio=mass_ratio)
+    for name, (lo, hi) in (("m1", region.m1), ("m2", region.m2)):
+        if not lo < hi:
+            raise ValueError(f"{name}=({lo!r}, {hi!r}) is empty: place_bank needs a mass range with lo < hi")
+    if region.spinning and region.chi1[0] == region.chi1[1] and region.chi2[0] == region.chi2[1]:
+        raise ValueError(f"chi1={region.chi1!r} and chi2={region.chi2!r} fix the spins at non-zero values; place_bank "
+                         "places non-spinning regions or spin ranges with lo < hi")
     mm = real_scalar("minimal_match", minimal_match)
     if not 0.0 < mm < 1.0:
         raise ValueError(f"minimal_match must lie in (0, 1), got {minimal_match!r}")
     fl = positive_scalar("f_low", f_low)
     fs = positive_scalar("sample_rate", sample_rate)
-    if method not in METHODS:
-        raise ValueError(f"method must be one of {METHODS}, got {method!r}")
+    choice("method", method, METHODS)
+    flag("progress", progress)
     if method == "auto":
         method = "stochastic" if region.spinning else "lattice"
     if method == "lattice" and region.spinning:
         raise ValueError("method='lattice' places non-spinning regions (2-D); use 'stochastic' with spins")
     cap = DEFAULT_MAX_TEMPLATES if max_templates is None else integer("max_templates", max_templates)
+    seed = integer("seed", seed, minimum=0)
     m_lo = region.total_mass_range[0]
     from ..waveform import isco_frequency
 
     top = float(isco_frequency(m_lo / 2, m_lo / 2))
-    if fl >= min(top, 0.5 * fs):
+    if fl >= 0.5 * fs:
+        raise ValueError(f"sample_rate={fs:g} Hz puts Nyquist ({0.5 * fs:g} Hz) at or below f_low={fl} Hz")
+    if fl >= top:
         raise ValueError(f"f_low={fl} Hz is at or above the ISCO frequency ({top:.1f} Hz) of every binary in the "
-                         f"region (or Nyquist, {0.5 * fs:g} Hz)")
+                         "region")
     rng = np.random.default_rng(seed)
 
     def log(msg):
@@ -533,7 +558,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
             print(f"[place_bank {time.perf_counter() - started:6.1f} s] {msg}", file=sys.stderr, flush=True)
 
     m_small = min(region.m1[0], region.m2[0])
-    longest = float(chirp_duration(m_small, m_small, fl)) * 1.05  # spins and the edges' overshoot
+    longest = float(template_durations(m_small, m_small, fl)[0]) * 1.05  # spins and the edges' overshoot
     setup = SweepSetup.build(psd, fl, fs, longest, m_lo)
     estimate = estimate_bank_size(region, setup, mm)
     expected = estimate.get("templates_with_edges", estimate["templates"])
@@ -550,7 +575,15 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
         bank = _stochastic(region, setup, radius, rng, cap)
     log(f"{method}: {bank.shape[1]} templates")
     bank, fill = _fill(bank, region, setup, mm, rng, cap, log, progress)
+    below = fill["last_fraction_below"]
+    if bank.shape[1] > cap:
+        raise ValueError(f"the bank needs {bank.shape[1]} templates, more than max_templates={cap}; raise it or "
+                         "shrink the region")
     log(f"done: {bank.shape[1]} templates")
+    if below >= FILL_TARGET:
+        warnings.warn(f"place_bank: after {FILL_ROUNDS} check rounds {below:.1%} of points drawn in the region still "
+                      f"fall below minimal_match={mm}; the bank does not cover the region (is f_low={fl} Hz near "
+                      "the ISCO frequency of part of it?)", CoverageWarning, stacklevel=2)
     metadata = {
         "region": region.as_dict(),
         "psd": psd if isinstance(psd, str) else None,

@@ -51,6 +51,11 @@ def match(h1, h2, psd, df, f_low, f_high=None):
     finite = np.isfinite(p[k_lo:k_hi]) & (p[k_lo:k_hi] > 0)
     w[k_lo:k_hi][finite] = 1.0 / p[k_lo:k_hi][finite]
     a, b = np.broadcast_arrays(a, b)
+    for name, h in (("h1", a), ("h2", b)):
+        power = np.sum(np.abs(h) ** 2 * w, axis=1)
+        if not (power > 0).all():
+            raise ValueError(f"{name}: row {int(np.argmin(power > 0))} has no power between f_low and f_high "
+                             "where the PSD is finite")
     norm = np.sqrt(np.sum(np.abs(a) ** 2 * w, axis=1) * np.sum(np.abs(b) ** 2 * w, axis=1))
     n = OVERSAMPLE * 2 * (n_freq - 1)
     product = np.zeros((a.shape[0], n), dtype=np.complex128)
