@@ -5,21 +5,22 @@ Two published methods, in the flat coordinates of :mod:`chirpsift.bank.metric`
 
 - ``"lattice"`` (non-spinning regions, a 2-D template surface): a hexagonal
   (A2*) lattice, the thinnest covering of the plane, in the plane that best fits the
-  surface (Owen 1996; Owen & Sathyaprakash 1999; Cokelaer 2007). Its covering radius
-  is ``sqrt(1 - MM)``, so every point of the plane lies within the minimal mismatch of
-  a lattice point. Lattice points within that radius of the region are kept (so the
-  edges are covered) and mapped back to masses; points beyond the equal-mass edge move
+  surface (Owen 1996; Owen & Sathyaprakash 1999; Cokelaer 2007), its middle row along
+  the region's centre line. Its covering radius is ``sqrt(1 - MM)``, so every point of
+  the plane lies within the minimal mismatch of a lattice point. Lattice points whose
+  preimage lies in the region are mapped back to masses; of those outside, a greedy
+  cover keeps the ones the region's edges need; points beyond the equal-mass edge move
   onto it.
 - ``"stochastic"`` (aligned spins, or any region): random proposals drawn uniformly in
   the region are kept when no template lies within the minimal mismatch of them
   (Babak 2008; Harry, Allen & Sathyaprakash 2009), until fewer than
   :data:`STOCHASTIC_STOP` of a batch are kept.
 
-Both end with the same check-and-fill step: points drawn in the region (and on its
-edges) whose exact fitting factor (:func:`chirpsift.fitting_factor`) falls below the
-minimal match become templates, until a fresh draw finds fewer than
-:data:`FILL_TARGET` of them below it. The metric is an approximation; this step
-makes the exact match the judge.
+Both end with the same check rounds: points drawn in the region (and on its edges)
+whose exact fitting factor (:func:`chirpsift.fitting_factor`) falls below the minimal
+match become templates, until a fresh draw finds fewer than :data:`FILL_TARGET` of
+them below it. The metric is an approximation; these rounds make the exact match the
+judge.
 """
 
 from __future__ import annotations
@@ -46,13 +47,13 @@ class CoverageWarning(UserWarning):
 
 #: Stop the stochastic proposals once a batch keeps fewer than this fraction.
 STOCHASTIC_STOP = 0.005
-#: Fill step: draw points until a draw finds fewer than this fraction below the
+#: Check rounds: draw points until a draw finds fewer than this fraction below the
 #: minimal match; the coverage target asks for under 1% (1e-3 leaves margin).
 FILL_TARGET = 1e-3
-#: Points per fill draw (at least), and how many of them lie on the region's edges.
+#: Points per check draw (at least), and how many of them lie on the region's edges.
 FILL_POINTS = 2000
 EDGE_FRACTION = 0.25
-#: Fill rounds at most (each adds the failed points of one draw).
+#: Check rounds at most (each adds the short points of one draw).
 FILL_ROUNDS = 8
 #: Template count above which place_bank refuses unless max_templates allows it.
 DEFAULT_MAX_TEMPLATES = 200_000
@@ -249,7 +250,7 @@ def _centred_lattice(edge: np.ndarray, radius: float) -> np.ndarray:
     row alone; an unaligned lattice would often straddle it with two half-used rows.
     Across the long axis the rows follow the centre line, a shear that changes
     distances by a factor ``sqrt(1 + c'^2)``, ``c'`` the centre's slope (below 1e-2 on
-    the non-spinning surfaces); the fill step checks what remains.
+    the non-spinning surfaces); the check rounds catch what remains.
     """
     s, n = edge[:, 0], edge[:, 1]
     bins = np.linspace(s.min(), s.max(), CENTRE_BINS + 1)
@@ -279,7 +280,7 @@ def _edge_cover(lat: np.ndarray, inside: np.ndarray, near_edge: np.ndarray, edge
     Greedy set cover (the candidate covering most uncovered samples first), so a thin
     region is not paid for twice, once by the lattice points inside it and again by
     every lattice point within reach of its edges. What is left between edge samples
-    and the nearest kept point is the fill step's to check.
+    and the nearest kept point is for the check rounds to catch.
     """
     from scipy.spatial import cKDTree
 
@@ -364,7 +365,7 @@ def _stochastic(region: Region, setup: SweepSetup, radius: float, rng, max_templ
             return bank
 
 
-def _fill(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, max_templates: int, log,
+def _check_rounds(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, max_templates: int, log,
           progress: bool = False):
     """Add points whose exact fitting factor is below ``mm`` until a draw finds almost none.
 
@@ -486,7 +487,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     Bank
         With :attr:`Bank.metadata` holding the region, noise curve (when named),
         ``f_low``, minimal match, method, seed, sample rate, the estimate and the
-        fraction of the last fill draw below the minimal match.
+        fraction of the last check draw below the minimal match.
 
     Raises
     ------
@@ -574,7 +575,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     else:
         bank = _stochastic(region, setup, radius, rng, cap)
     log(f"{method}: {bank.shape[1]} templates")
-    bank, fill = _fill(bank, region, setup, mm, rng, cap, log, progress)
+    bank, fill = _check_rounds(bank, region, setup, mm, rng, cap, log, progress)
     below = fill["last_fraction_below"]
     if bank.shape[1] > cap:
         raise ValueError(f"the bank needs {bank.shape[1]} templates, more than max_templates={cap}; raise it or "
