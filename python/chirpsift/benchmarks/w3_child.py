@@ -3,7 +3,8 @@
 Run as ``python -m chirpsift.benchmarks.w3_child STRAIN.npy BANK.npz SETTINGS.json``;
 it prints one JSON line with the wall time, the trigger count and the process's peak
 resident memory (its own address space's high-water mark, :func:`peak_rss_mib`, so
-neither the parent nor one measurement can leak into the next). :func:`search_in_child` starts it and reads the line back.
+neither the parent nor one measurement can leak into the next). :func:`search_in_child`
+starts it and reads the line back.
 """
 
 from __future__ import annotations
