@@ -23,6 +23,7 @@ import base64
 import html
 import json
 import math
+import re
 import platform
 from pathlib import Path
 
@@ -305,6 +306,25 @@ def _sensitivity_section(sens: dict, cfg: dict, out: Path) -> str:
                       "site's median PSD), and the fraction found per distance bin."))
 
 
+
+#: What a search's warning categories mean, in the report's words.
+_WARNING_WORDS = {"GatingWarning": "gating", "AnalysedFractionWarning": "little of the data analysed",
+                  "ExcludedDataWarning": "data left out"}
+
+
+def _plain_warning(text: str) -> str:
+    """Put a search warning as a reader needs it: its kind in words, without pointers into the API.
+
+    >>> from chirpsift.report.html import _plain_warning
+    >>> _plain_warning("GatingWarning: 1 gate(s); see info['gates']")
+    'gating: 1 gate(s)'
+    """
+    kind, _, message = text.partition(": ")
+    if kind in _WARNING_WORDS:
+        text = f"{_WARNING_WORDS[kind]}: {message}"
+    return re.sub(r"; see info\[[^\]]*\]", "", text)
+
+
 def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, out) -> str:
     parts = []
     parts.append("<h2>Cautions</h2><div class=\"caution\"><ul>"
@@ -318,7 +338,7 @@ def _page(folder, analysis, doc, names, meta, summary, rows, dof, top_caption, o
     parts.append(f"<p>Time analysed by all sites at once: {_fmt(summary['coincident_live_time'], 6)} s. "
                  f"Time slides: {summary['n_slides']}, background live time {_fmt(summary['background_time'], 6)} s "
                  f"({summary['background_coincidences']} background coincidences).</p>")
-    notes = [f"{_esc(n)}: {_esc(w)}" for n in names for w in meta[n].get("warnings", [])]
+    notes = [f"{_esc(n)}: {_esc(_plain_warning(w))}" for n in names for w in meta[n].get("warnings", [])]
     if notes:
         parts.append("<p>What the searches reported:</p><ul>" + "".join(f"<li>{w}</li>" for w in notes) + "</ul>")
     parts.append(_figure(out, "timeline.png", "time line of analysed and left-out data per site",
