@@ -8,7 +8,7 @@ probe runs on the calling thread only, whatever :func:`chirpsift.set_threads` sa
 from __future__ import annotations
 
 from . import _core
-from ._validate import integer, positive_scalar
+from ._validate import integer, positive_scalar, switch
 from .fused import prepare_bank
 
 __all__ = ["inverse_fft_seconds", "generation_seconds"]
@@ -43,9 +43,7 @@ def inverse_fft_seconds(n, *, real=False, double=False, repeats=10):
     >>> _timing.inverse_fft_seconds(4096, repeats=3) > 0
     True
     """
-    for name, flag in (("real", real), ("double", double)):
-        if not isinstance(flag, bool):
-            raise TypeError(f"{name} must be True or False, got {flag!r}")
+    real, double = switch("real", real), switch("double", double)
     return float(_core.timing.transform_seconds(integer("n", n), real, integer("repeats", repeats), double))
 
 

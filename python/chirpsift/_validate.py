@@ -26,6 +26,7 @@ __all__ = [
     "integer",
     "psd_array",
     "choice",
+    "switch",
 ]
 
 
@@ -273,3 +274,10 @@ def choice(name: str, x, options) -> str:
     if not isinstance(x, str) or x not in options:
         raise ValueError(f"{name} must be one of {', '.join(map(repr, options))}, got {_describe(x)}")
     return x
+
+
+def switch(name: str, x) -> bool:
+    """``x`` as a bool, or a ``TypeError`` naming ``name`` (arrays, numbers and strings are not switches)."""
+    if not isinstance(x, (bool, np.bool_)):
+        raise TypeError(f"{name} must be True or False, got {x!r}")
+    return bool(x)

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._validate import choice, integer, positive_scalar, real_array
+from .._validate import choice, integer, positive_scalar, real_array, switch
 from ..overlap import best_matches, required_period
 from ..spectrum import psd_on_grid
 from ..waveform import chirp_duration, isco_frequency
@@ -23,21 +23,14 @@ __all__ = ["fitting_factor", "bank_coverage", "Coverage", "coverage_summary", "S
 #: CANDIDATE_MISMATCH). The metric predicts mismatches to a few per cent below 0.03
 #: (0.01316 predicted for 0.01305 exact, 0.0353 for 0.0345) and over-predicts beyond
 #: (0.082 for 0.072; tests/test_bank_metric.py), so a template predicted 1.5 times
-#: worse than the nearest, plus 0.01, does not beat it; tests/test_bank.py compares
-#: with a sweep over the whole bank.
+#: worse than the nearest, plus 0.01, does not beat it; tests/test_bank_placement.py
+#: compares with a sweep over the whole bank.
 NEAREST_CANDIDATES = 2
 CANDIDATE_FACTOR = 1.5
 CANDIDATE_SLACK = 0.01
 CANDIDATE_MISMATCH = 0.2
 #: Points per call of the kernel: bounds memory and paces the progress bar.
 CHUNK = 256
-
-
-def flag(name: str, x) -> bool:
-    """``x`` as a bool, or a ``TypeError`` naming ``name`` (arrays and strings are not flags)."""
-    if not isinstance(x, (bool, np.bool_)):
-        raise TypeError(f"{name} must be True or False, got {type(x).__name__}")
-    return bool(x)
 
 
 def _points(points) -> np.ndarray:
@@ -232,7 +225,7 @@ def fitting_factor(points, bank, *, psd, f_low, sample_rate=4096.0, search="metr
     if len(bank) == 0:
         raise ValueError("bank holds no templates")
     choice("search", search, ("metric", "all"))
-    flag("return_index", return_index)
+    switch("return_index", return_index)
     fl = positive_scalar("f_low", f_low)
     fs = positive_scalar("sample_rate", sample_rate)
     b = _points(bank)
@@ -353,7 +346,7 @@ def bank_coverage(bank, n_points=10000, *, m1=None, m2=None, chi1=(0.0, 0.0), ch
     if not mm < 1:
         raise ValueError(f"minimal_match must lie in (0, 1), got {mm!r}")
     n = integer("n_points", n_points, minimum=1)
-    flag("progress", progress)
+    switch("progress", progress)
     pts = np.stack(region.sample(n, seed=integer("seed", seed, minimum=0)))
     bar = None
     if progress:

@@ -31,8 +31,8 @@ import warnings
 
 import numpy as np
 
-from .._validate import choice, integer, positive_scalar, real_scalar
-from .coverage import SweepSetup, flag, template_durations
+from .._validate import choice, integer, positive_scalar, real_scalar, switch
+from .coverage import SweepSetup, template_durations
 from .region import Region
 from .templates import Bank
 
@@ -534,7 +534,7 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     fl = positive_scalar("f_low", f_low)
     fs = positive_scalar("sample_rate", sample_rate)
     choice("method", method, METHODS)
-    flag("progress", progress)
+    switch("progress", progress)
     if method == "auto":
         method = "stochastic" if region.spinning else "lattice"
     if method == "lattice" and region.spinning:

@@ -12,9 +12,8 @@ from __future__ import annotations
 import difflib
 from dataclasses import asdict, dataclass
 
-import numpy as np
 
-from .._validate import choice, nonnegative_scalar, integer, positive_scalar
+from .._validate import choice, nonnegative_scalar, integer, positive_scalar, switch
 
 __all__ = ["SearchSettings", "SearchOption", "SEARCH_OPTIONS", "option_key"]
 
@@ -107,9 +106,7 @@ def _check(option: SearchOption, value):
     if option.kind == "order":
         return integer(name, value, minimum=0, maximum=7)
     if option.kind == "switch":
-        if not isinstance(value, (bool, np.bool_)):
-            raise TypeError(f"{name} must be True or False, got {value!r}")
-        return bool(value)
+        return switch(name, value)
     if option.kind == "choice":
         return choice(name, value, option.choices)
     raise AssertionError(f"unknown option kind {option.kind!r}")
