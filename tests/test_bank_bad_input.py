@@ -280,3 +280,11 @@ def test_match_with_a_template_without_power_is_refused(impl, where):
     short = np.where(np.arange(_N) * _DF < 100.0, _H, 0.0)
     a, b = (short, _H) if where == "h1" else (_H, short)
     _raises_naming(lambda: impl.match(a, b, psd, _DF, 30.0), where, ValueError, "no power")
+
+
+def test_a_spinning_region_above_max_templates_is_refused_while_placing():
+    # the 3-D volume estimate of a spinning region is only a lower bound, so the cap is
+    # enforced by the metric-only stochastic stage: it stops once it passes the cap
+    with pytest.raises(ValueError, match=r"needs more than max_templates=50 templates"):
+        place_bank(m1=(5.0, 10.0), m2=(5.0, 10.0), chi1=(-0.5, 0.5), chi2=(-0.5, 0.5), psd="gen2-zero-detuned",
+                   f_low=30.0, max_templates=50)
