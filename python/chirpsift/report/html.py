@@ -93,12 +93,12 @@ def _read_manifest(folder: Path) -> dict:
     path = folder / "manifest.json"
     if not path.is_file():
         raise FileNotFoundError(f"{folder} is not a run folder: no manifest.json (write one with chirpsift run)")
+    from ..run.manifest import read_manifest  # here: the run package imports this module
+
     try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-        doc["analysis"], doc["units"]
-    except (ValueError, KeyError, TypeError, UnicodeDecodeError):
+        return read_manifest(folder)  # the snapshot with the units journalled since
+    except ValueError:
         raise ValueError(f"{path} is not a chirpsift run manifest") from None
-    return doc
 
 
 def _png_uri(path: Path) -> str:

@@ -214,6 +214,7 @@ def _run(analysis, manifest, engine, client, progress, every, seconds, stream, s
         manifest.write()
     result.skipped = [u.key for u in units if u.key not in todo]
     if not todo:
+        manifest.fold()  # a journal left by a killed run
         return result
     close = None
     if engine.uses_dask and client is None:
@@ -278,6 +279,7 @@ def _run(analysis, manifest, engine, client, progress, every, seconds, stream, s
             display.finished(unit.key, out.seconds)
             completed(unit.key)
     finally:
+        manifest.fold()
         ex.close()
         display.close()
         if close is not None:
