@@ -5,8 +5,8 @@ one span each, a bank of binary-neutron-star templates split into sub-banks of t
 default ``templates-per-unit``):
 
 - the throughput ratio: in-process time at 1 thread over the time of a ``LocalCluster``
-  of 2 worker processes x 1 thread (target >= 1.8; the cluster's start, and each worker's
-  import of chirpsift, once per worker's life, are not counted);
+  of 2 worker processes x 1 thread (target >= 1.8; the cluster's start, in which each
+  worker imports chirpsift, is not counted);
 - the scheduling overhead per unit: ``(workers x wall - sum of unit compute) / units``
   over the mean compute of a unit (target < 2 %). Idle time at the end, when fewer units
   remain than workers, counts as overhead, so this is an upper bound;
@@ -82,8 +82,7 @@ def run(size: str = "full", folder: str | None = None) -> dict:
     t1 = time.perf_counter() - t
     client, close = make_client(a2.engine)
     try:
-        # workers up, chirpsift imported in each: once per worker's life, like the cluster's start
-        client.run(lambda: __import__("chirpsift") and None)
+        client.run(lambda: None)  # workers up (make_client has them import chirpsift as they start)
         t = time.perf_counter()
         r2 = run_analysis(a2, stop_after="search", client=client)
         t2 = time.perf_counter() - t
