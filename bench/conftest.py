@@ -17,6 +17,8 @@ def pytest_addoption(parser):
                     help="workload scale (default %(default)s: full data lengths, few templates)")
     group.addoption("--bench-threads", type=int, default=1,
                     help="threads of the compiled kernels (default 1, like the yardstick)")
+    group.addoption("--bank-region-b", action="store_true", default=False,
+                    help="also place and check region (b) of the bank targets (hours on 2 cores)")
 
 
 @pytest.fixture(scope="session")

@@ -6,7 +6,9 @@
 - region (a): non-spinning components of 1-3 Msun from 30 Hz on gen2-zero-detuned at
   minimal match 0.97, placed and checked with 10^4 points (target: under 5 minutes on
   2 cores, >= 99% covered, 0.1 percentile >= 0.96; size over the ideal lattice's,
-  aim <= 1.15).
+  aim <= 1.15);
+- region (b): components of 1-10 Msun with aligned spins |chi| <= 0.5 from 30 Hz, the
+  same coverage target; more than 200,000 templates, so only with ``--bank-region-b``.
 
 Run ``pytest bench/test_bank.py --benchmark-only -s`` (several minutes), or
 ``python bench/test_bank.py`` (``--quick``: a small region).
@@ -51,6 +53,14 @@ def test_match_per_bare_transform(benchmark):
 @pytest.mark.parametrize("quick", [False])
 def test_region_a(benchmark, quick):
     rows = benchmark.pedantic(measure_placement, args=(print,), kwargs={"quick": quick}, rounds=1, iterations=1)
+    benchmark.extra_info.update({r.key: r.value for r in rows})
+    _print(rows)
+
+
+@pytest.mark.skipif("not config.getoption('--bank-region-b')",
+                    reason="region (b) needs more than 200,000 templates: hours on 2 cores (--bank-region-b)")
+def test_region_b(benchmark):
+    rows = benchmark.pedantic(measure_placement, args=(print,), kwargs={"region_b": True}, rounds=1, iterations=1)
     benchmark.extra_info.update({r.key: r.value for r in rows})
     _print(rows)
 
