@@ -1,4 +1,4 @@
-"""Benchmarks of the match kernel and of bank placement, with the bank issue's targets."""
+"""Benchmarks of the match kernel and of bank placement, with their targets."""
 
 from __future__ import annotations
 
@@ -34,7 +34,7 @@ REGION_QUICK = {**REGION_A, "m1": (1.3, 1.6), "m2": (1.3, 1.6), "f_low": 40.0}
 QUICK_POINTS = 2_000
 #: One template against this many in the match row (the target's count).
 MATCH_ROWS = 1000
-#: Targets of the bank issue.
+#: Targets of the match kernel and of bank placement.
 MATCH_TARGET = 1.5
 PLACEMENT_TARGET_S = 300.0
 EFFICIENCY_AIM = 1.15
