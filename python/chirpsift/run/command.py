@@ -150,7 +150,7 @@ def print_summary(folder, names, top: int, out=None) -> None:
                            for n in names)
             ifar = float(row["ifar"])
             ifar_text = "n/a" if not math.isfinite(ifar) else (">" if row["far_bound"] else "") + f"{ifar:.3g}"
-            masses = f"{row['m1']:.3g} + {row['m2']:.3g}"
+            masses = f"{row['m1']:#.4g} + {row['m2']:#.4g}"  # neighbouring templates differ in the third digit
             print(f"{i + 1:>3} {row['time']:17.4f} {masses:>15}{snrs} {row['statistic']:9.3f} {ifar_text:>10}",
                   file=out)
     print(CAUTIONS, file=out)
