@@ -236,7 +236,7 @@ def test_the_command_runs_and_reports(done, capsys):
     text = capsys.readouterr().out
     assert "0 units run, 11 already complete" in text and "report.html" in text
     assert text.count("where each second went") == 2 and "Cautions:" in text
-    top = re.search(r"^\s+1\s+(\d+\.\d+)\s+14 \+ 12\s", text, flags=re.M)  # the injected binary ranks first
+    top = re.search(r"^\s+1\s+(\d+\.\d+)\s+14.00 \+ 12.00\s", text, flags=re.M)  # the injected binary ranks first
     assert top and abs(float(top.group(1)) - T_SIGNAL) < 0.01
     assert main(["run", str(folder / "missing.toml")]) == 2
     assert "analysis file not found" in capsys.readouterr().err
