@@ -110,7 +110,7 @@ def _params(name: str, x) -> np.ndarray:
     return np.ascontiguousarray(a)
 
 
-def best_matches(points, templates, indptr, indices, inv_psd, df_fine, f_low, f_cap):
+def best_matches(points, templates, indptr, indices, psd, df_fine, f_low, f_cap):
     """Best match of each point over its candidate templates (the fitting-factor kernel).
 
     Parameters
@@ -121,12 +121,12 @@ def best_matches(points, templates, indptr, indices, inv_psd, df_fine, f_low, f_
     indptr, indices : array_like of int
         Candidates in compressed rows: point ``p`` is compared with templates
         ``indices[indptr[p]:indptr[p + 1]]``.
-    inv_psd : array_like, shape (n_fine,)
-        ``1/S`` (Hz) on the finest grid ``k df_fine`` (zero where excluded). Each point
-        is compared on the coarsest grid ``k df_fine 2^s`` whose period ``1/df`` still
-        exceeds :func:`required_period` of its longest comparison.
+    psd : array_like, shape (n_fine,)
+        One-sided PSD (1/Hz) on the finest grid ``k df_fine``; ``inf`` excludes a bin.
+        Each point is compared on the coarsest grid ``k df_fine 2^s`` whose period
+        ``1/df`` still exceeds :func:`required_period` of its longest comparison.
     df_fine : float
-        Bin spacing of ``inv_psd`` (Hz).
+        Bin spacing of ``psd`` (Hz).
     f_low : float
         Lower edge of every template (Hz).
     f_cap : float
@@ -146,8 +146,8 @@ def best_matches(points, templates, indptr, indices, inv_psd, df_fine, f_low, f_
     >>> from chirpsift.overlap import best_matches
     >>> pts = np.array([[10.0], [10.0], [0.0], [0.0]])
     >>> bank = np.array([[10.0, 12.0], [10.0, 9.0], [0.0, 0.0], [0.0, 0.0]])
-    >>> inv = np.ones(2048 * 16 + 1)
-    >>> m, i = best_matches(pts, bank, [0, 2], [0, 1], inv, 1 / 16, 30.0, 2048.0)
+    >>> flat = np.ones(2048 * 16 + 1)
+    >>> m, i = best_matches(pts, bank, [0, 2], [0, 1], flat, 1 / 16, 30.0, 2048.0)
     >>> int(i[0]), round(float(m[0]), 6)
     (0, 1.0)
     """
@@ -155,8 +155,8 @@ def best_matches(points, templates, indptr, indices, inv_psd, df_fine, f_low, f_
     t = _params("templates", templates)
     ip = np.ascontiguousarray(_integer_array("indptr", indptr))
     ix = np.ascontiguousarray(_integer_array("indices", indices))
-    w = np.ascontiguousarray(real_array("inv_psd", inv_psd, ndim=1))
-    return _core.best_matches(p, t, ip, ix, w, positive_scalar("df_fine", df_fine), positive_scalar("f_low", f_low),
+    s = np.ascontiguousarray(psd_array("psd", psd, ndim=1))
+    return _core.best_matches(p, t, ip, ix, s, positive_scalar("df_fine", df_fine), positive_scalar("f_low", f_low),
                               positive_scalar("f_cap", f_cap))
 
 

@@ -18,7 +18,7 @@ use crate::filter::AsComplex64;
 use crate::grid::{band, bin_at_or_above};
 use crate::peaks::vertex;
 use crate::scratch::Pool;
-use crate::waveform::Model;
+use crate::waveform::{Binary, Model};
 use num_complex::Complex64;
 use rayon::prelude::*;
 use rustfft::Fft;
@@ -319,12 +319,23 @@ pub fn best_matches(
     ensure(indices.iter().all(|&i| i < nb), "indices", || {
         format!("a candidate index is out of range for a bank of {nb}")
     })?;
-    let models = |p: &Params<'_>| -> Result<Vec<Model>> {
-        crate::waveform::models(p.m1, p.m2, p.chi1, p.chi2, 1.0, 7)
-    };
-    let (pm, bm) = (models(points)?, models(bank)?);
+    let pm = crate::waveform::models(points.m1, points.m2, points.chi1, points.chi2, 1.0, 7)?;
     let duration = |m: &Model| m.duration(grid.f_low);
-    let bank_durations: Vec<f64> = bm.par_iter().map(duration).collect();
+    // Only the templates some point names are built, once per call: a sweep comes in
+    // chunks of points, and a large bank's other templates would be built per chunk.
+    let mut used = indices.to_vec();
+    used.sort_unstable();
+    used.dedup();
+    let built: Vec<(Model, f64)> = used
+        .par_iter()
+        .map(|&c| {
+            let b = Binary::new(bank.m1[c], bank.m2[c], bank.chi1[c], bank.chi2[c])?;
+            let m = Model::taylorf2(&b, 1.0, 7)?;
+            let d = duration(&m);
+            Ok((m, d))
+        })
+        .collect::<Result<_>>()?;
+    let template = |c: usize| &built[used.binary_search(&c).expect("every candidate was built")];
     let period_fine = 1.0 / grid.df_fine;
     let n_fine = grid.inv_psd.len();
     let pool = Pool::new(Scratch::default);
@@ -337,7 +348,7 @@ pub fn best_matches(
             }
             let longest = cands
                 .iter()
-                .map(|&c| bank_durations[c])
+                .map(|&c| template(c).1)
                 .fold(duration(&pm[p]), f64::max);
             let need = required_period(longest);
             if need > period_fine {
@@ -370,13 +381,14 @@ pub fn best_matches(
             let mut best = (0.0f64, -1i64);
             if norm_p > 0.0 {
                 for &c in cands {
-                    let k_hi_c = bin_at_or_above(upper(&bm[c]), df).min(n_freq).max(k_lo);
+                    let model = &template(c).0;
+                    let k_hi_c = bin_at_or_above(upper(model), df).min(n_freq).max(k_lo);
                     let m = k_hi_c.min(k_hi_p).saturating_sub(k_lo);
                     s.product.clear();
                     s.product.resize(m, Complex64::new(0.0, 0.0));
                     let mut norm_c = 0.0;
                     let product = &mut s.product;
-                    bm[c].for_each_block(k_lo, k_hi_c, df, |k0, block| {
+                    model.for_each_block(k_lo, k_hi_c, df, |k0, block| {
                         for (j, &h) in block.iter().enumerate() {
                             let k = k0 + j;
                             norm_c += h.norm_sqr() * w(k);
@@ -411,7 +423,6 @@ pub fn best_matches(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::waveform::Binary;
 
     /// Brute force: the overlap at `n_t` trial lags on a fine grid, by direct sums.
     fn brute(h1: &[Complex64], h2: &[Complex64], w: &[f64], df: f64, n_t: usize) -> f64 {

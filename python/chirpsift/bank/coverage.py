@@ -3,16 +3,17 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
 from .._validate import choice, integer, positive_scalar, real_array, switch
+from ..filter import checked_band
 from ..overlap import best_matches, required_period
 from ..spectrum import psd_on_grid
 from ..waveform import chirp_duration, isco_frequency
 from .metric import flat_coordinates
-from .region import Region
+from .region import Region, heavier_first
 from .templates import Bank
 
 __all__ = ["fitting_factor", "bank_coverage", "Coverage", "coverage_summary", "SweepSetup"]
@@ -45,29 +46,22 @@ def _points(points) -> np.ndarray:
         raise ValueError("points: masses must be positive (solar masses)")
     if (np.abs(a[:, 2:]) >= 1).any():
         raise ValueError("points: spins must satisfy |chi| < 1")
-    p = a.T.copy()
-    swap = p[1] > p[0]
-    p[[0, 1]] = np.where(swap, p[[1, 0]], p[[0, 1]])
-    p[[2, 3]] = np.where(swap, p[[3, 2]], p[[2, 3]])
-    return p
+    return heavier_first(a.T)
 
 
 @dataclass
 class SweepSetup:
     """What every fitting-factor call over one bank shares.
 
-    The grid, ``1/S`` on it and the flat coordinates, built once by :meth:`build` and
+    The grid, the PSD on it and the flat coordinates, built once by :meth:`build` and
     reused by placement's many calls.
     """
 
     f_low: float
     sample_rate: float
     df_fine: float
-    inv_psd: np.ndarray
+    psd: np.ndarray
     coordinates: object
-    longest: float
-    psd_name: object = None
-    trees: dict = field(default_factory=dict)
 
     @classmethod
     def build(cls, psd, f_low: float, sample_rate: float, longest: float, lightest_total: float) -> "SweepSetup":
@@ -77,16 +71,10 @@ class SweepSetup:
             raise ValueError(f"f_low={f_low} Hz must be below the Nyquist frequency {f_cap} Hz")
         period = 2.0 ** math.ceil(math.log2(required_period(longest)))
         df = 1.0 / period
-        n = int(math.floor(f_cap / df)) + 1
-        s = psd_on_grid(psd, df, n)
-        k_lo = int(math.ceil(f_low / df))
-        band = s[k_lo:]
-        if not (np.isfinite(band) & (band > 0)).any():
-            raise ValueError(f"psd is infinite or zero over the whole band [{f_low}, {f_cap}] Hz")
-        with np.errstate(divide="ignore"):
-            inv = np.where(np.isfinite(s) & (s > 0), 1.0 / np.where(s > 0, s, 1.0), 0.0)
+        grid = psd_on_grid(psd, df, int(math.floor(f_cap / df)) + 1)
+        checked_band(grid, df, f_low, None)  # the one band rule; refuses a PSD infinite over all of it
         f_high = min(f_cap, float(isco_frequency(lightest_total / 2, lightest_total / 2)))
-        return cls(f_low, sample_rate, df, inv, flat_coordinates(psd, f_low, max(f_high, 1.01 * f_low)), longest)
+        return cls(f_low, sample_rate, df, grid, flat_coordinates(psd, f_low, max(f_high, 1.01 * f_low)))
 
     def xi(self, p: np.ndarray) -> np.ndarray:
         """Flat coordinates of parameters ``p`` (4, n)."""
@@ -127,7 +115,7 @@ class SweepSetup:
                 indices = np.tile(np.arange(bank_p.shape[1], dtype=np.int64), n)
             else:
                 indptr, indices = self.candidates(chunk, bank_p, tree)
-            m, i = best_matches(chunk, bank_p, indptr, indices, self.inv_psd, self.df_fine, self.f_low,
+            m, i = best_matches(chunk, bank_p, indptr, indices, self.psd, self.df_fine, self.f_low,
                                 0.5 * self.sample_rate)
             out_m.append(m)
             out_i.append(i)
@@ -149,14 +137,10 @@ def template_durations(m1, m2, f_low: float) -> np.ndarray:
     return d
 
 
-def _durations(p: np.ndarray, f_low: float) -> np.ndarray:
-    return template_durations(p[0], p[1], f_low)
-
-
 def setup_for(psd, f_low: float, sample_rate: float, *params) -> SweepSetup:
     """Build a :class:`SweepSetup` for comparisons among parameter sets ``params`` ((4, n) each)."""
     allp = np.hstack([q for q in params if q.shape[1]])
-    longest = float(_durations(allp, f_low).max())
+    longest = float(template_durations(allp[0], allp[1], f_low).max())
     return SweepSetup.build(psd, f_low, sample_rate, longest, float((allp[0] + allp[1]).min()))
 
 
@@ -179,9 +163,9 @@ def fitting_factor(points, bank, *, psd, f_low, sample_rate=4096.0, search="metr
         Nyquist, whichever is lower (default 4096).
     search : {"metric", "all"}, optional
         ``"metric"`` (default) compares each point only with the templates the flat
-        metric puts near it (:data:`NEAREST_CANDIDATES` nearest, and all within predicted
-        mismatch :data:`CANDIDATE_MISMATCH`); ``"all"`` with every template (slow; for
-        checks).
+        metric puts near it (its :data:`NEAREST_CANDIDATES` nearest, and every template
+        predicted within :data:`CANDIDATE_FACTOR` times the nearest one's mismatch plus
+        :data:`CANDIDATE_SLACK`); ``"all"`` with every template (slow; for checks).
     return_index : bool, optional
         Also return the best template's row for each point.
 

@@ -33,7 +33,7 @@ import numpy as np
 
 from .._validate import choice, integer, positive_scalar, real_scalar, switch
 from .coverage import SweepSetup, template_durations
-from .region import Region
+from .region import Region, heavier_first
 from .templates import Bank
 
 __all__ = ["place_bank", "estimate_bank_size", "METHODS", "lattice_covering_density", "BankEstimate", "CoverageWarning"]
@@ -126,11 +126,11 @@ class _Surface:
         self.area_grid = (a, eta, inside, xi)
         pts = xi[inside]
         self.centre = pts.mean(axis=0)
-        _, sv, vt = np.linalg.svd(pts - self.centre, full_matrices=False)
+        _, _, vt = np.linalg.svd(pts - self.centre, full_matrices=False)
         self.axes = vt[:2].T  # (r, 2): the best-fitting plane
-        self.singular_values = sv
         self.start_params = np.stack([a[inside], eta[inside]])
         self.start_plane = self.plane(pts)
+        self._edges: dict[float, np.ndarray] = {}
 
     def _grid(self, shape):
         a = np.linspace(*self.a_range, shape[0])
@@ -182,7 +182,13 @@ class _Surface:
         """Plane coordinates of the region's edge: grid cells inside with a neighbour outside.
 
         The grid's steps are at most :data:`EDGE_STEP` times ``radius`` in the plane.
+        Computed once per radius (the estimate and the lattice both need them).
         """
+        if radius not in self._edges:
+            self._edges[radius] = self._find_edges(radius)
+        return self._edges[radius]
+
+    def _find_edges(self, radius: float) -> np.ndarray:
         _, _, inside, xi = self.area_grid
         uv = self.plane(xi)
         # plane length of one area-grid step along each axis, at its longest
@@ -202,8 +208,8 @@ def _lattice(surface: _Surface, radius: float):
     """Lay hexagonal lattice points and map them back to masses (non-spinning).
 
     The lattice has covering radius ``radius``. A lattice point whose preimage lies in
-    the region is kept, and so is one within ``radius`` of the region's edge (so the
-    edges are covered); a preimage beyond the equal-mass edge moves onto it.
+    the region is kept; of the others, :func:`_edge_cover` keeps those the region's
+    edge needs; a preimage beyond the equal-mass edge moves onto it.
     """
     from scipy.spatial import cKDTree
 
@@ -338,11 +344,7 @@ def _edge_points(region: Region, n: int, rng) -> np.ndarray:
     m1 = np.where(which == 0, region.m1[0], np.where(which == 1, region.m1[1], m1))
     m2 = np.where(which == 2, region.m2[0], np.where(which == 3, region.m2[1], m2))
     ok = region.contains(m1, m2, c1, c2)
-    p = np.stack([m1, m2, c1, c2])[:, ok]
-    swap = p[1] > p[0]
-    p[[0, 1]] = np.where(swap, p[[1, 0]], p[[0, 1]])
-    p[[2, 3]] = np.where(swap, p[[3, 2]], p[[2, 3]])
-    return p
+    return heavier_first(np.stack([m1, m2, c1, c2])[:, ok])
 
 
 def _stochastic(region: Region, setup: SweepSetup, radius: float, rng, max_templates: int, batch: int = 4000):
@@ -373,7 +375,7 @@ def _stochastic(region: Region, setup: SweepSetup, radius: float, rng, max_templ
 
 
 def _check_rounds(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float, rng, max_templates: int, log,
-          progress: bool = False):
+                  progress: bool = False):
     """Add points whose exact fitting factor is below ``mm`` until a draw finds almost none.
 
     Returns the bank and a record of the rounds: their count and the fraction of the
@@ -416,7 +418,7 @@ class BankEstimate(dict):
     """
 
 
-def estimate_bank_size(region: Region, setup: SweepSetup, minimal_match: float) -> BankEstimate:
+def estimate_bank_size(region: Region, setup: SweepSetup, minimal_match: float, *, surface=None) -> BankEstimate:
     """Templates an ideal lattice would need: metric volume times the A_n* covering density.
 
     Non-spinning regions: the 2-D surface's area over the hexagonal cell
@@ -425,11 +427,12 @@ def estimate_bank_size(region: Region, setup: SweepSetup, minimal_match: float) 
     (``templates_with_edges``): regions thin in metric terms need far more than the
     area alone says. With spins, the surface of equal spins
     ``chi1 = chi2`` (3-D) over the A3* cell: an approximation (unequal spins add a
-    little volume at unequal masses).
+    little volume at unequal masses). ``surface``: the region's non-spinning surface,
+    when the caller has already built it for the lattice.
     """
     radius2 = 1.0 - minimal_match
     if not region.spinning:
-        surface = _Surface(region, setup)
+        surface = surface if surface is not None else _Surface(region, setup)
         area = surface.area()
         n = area / (1.5 * math.sqrt(3.0) * radius2)
         # the edges' share: half a lattice row (points sqrt(3) r apart) per unit of edge
@@ -568,7 +571,8 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
     m_small = min(region.m1[0], region.m2[0])
     longest = float(template_durations(m_small, m_small, fl)[0]) * 1.05  # spins and the edges' overshoot
     setup = SweepSetup.build(psd, fl, fs, longest, m_lo)
-    estimate = estimate_bank_size(region, setup, mm)
+    surface = _Surface(region, setup) if method == "lattice" else None
+    estimate = estimate_bank_size(region, setup, mm, surface=surface)
     expected = estimate.get("templates_with_edges", estimate["templates"])
     log(f"metric estimate: {expected:.0f} templates ({estimate['dimension']}-D)")
     # The 3-D estimate of a spinning region is a lower bound only (a region thin in one
@@ -579,7 +583,6 @@ def place_bank(*, m1, m2, chi1=(0.0, 0.0), chi2=(0.0, 0.0), mtotal=None, mass_ra
                          f"max_templates={cap}); raise max_templates or shrink the region")
     radius = math.sqrt(1.0 - mm)
     if method == "lattice":
-        surface = _Surface(region, setup)
         b1, b2 = _lattice(surface, radius)
         bank = _dedupe(np.stack([b1, b2, np.zeros_like(b1), np.zeros_like(b1)]), setup, 0.25 * radius)
     else:

@@ -12,7 +12,7 @@ import numpy as np
 
 from .._validate import real_scalar
 
-__all__ = ["Region"]
+__all__ = ["Region", "heavier_first"]
 
 _SPIN_LIMIT = 1.0
 
@@ -33,6 +33,33 @@ def _range(name: str, value, *, positive: bool = False, spin: bool = False) -> t
     if spin and not (-_SPIN_LIMIT < lo and hi < _SPIN_LIMIT):
         raise ValueError(f"{name} must lie inside (-1, 1), got {value!r}")
     return lo, hi
+
+
+def heavier_first(p: np.ndarray) -> np.ndarray:
+    """Label binaries so the first component is the heavier, the spins following their masses.
+
+    Parameters
+    ----------
+    p : ndarray, shape (4, n)
+        Rows ``m1, m2, chi1, chi2``.
+
+    Returns
+    -------
+    ndarray, shape (4, n)
+        A new array; TaylorF2 templates do not depend on the labelling.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from chirpsift.bank.region import heavier_first
+    >>> heavier_first(np.array([[1.0], [2.0], [0.1], [0.2]]))[:, 0].tolist()
+    [2.0, 1.0, 0.2, 0.1]
+    """
+    p = np.array(p, dtype=np.float64)
+    swap = p[1] > p[0]
+    p[[0, 1]] = np.where(swap, p[[1, 0]], p[[0, 1]])
+    p[[2, 3]] = np.where(swap, p[[3, 2]], p[[2, 3]])
+    return p
 
 
 @dataclass(frozen=True)
@@ -156,9 +183,8 @@ class Region:
             have += int(keep.sum())
             if not strict or have >= n:
                 break
-        a, b, sa, sb = (np.concatenate([p[i] for p in parts])[:n] for i in range(4))
-        swap = b > a
-        return (np.where(swap, b, a), np.where(swap, a, b), np.where(swap, sb, sa), np.where(swap, sa, sb))
+        drawn = np.stack([np.concatenate([p[i] for p in parts])[:n] for i in range(4)])
+        return tuple(heavier_first(drawn))
 
     def as_dict(self) -> dict:
         """Return the region as plain lists (for file metadata and JSON)."""

@@ -54,7 +54,7 @@ fn best_matches<'py>(
     bank: PyReadonlyArray2<'py, f64>,
     indptr: PyReadonlyArray1<'py, i64>,
     indices: PyReadonlyArray1<'py, i64>,
-    inv_psd: PyReadonlyArray1<'py, f64>,
+    psd: PyReadonlyArray1<'py, f64>,
     df_fine: f64,
     f_low: f64,
     f_cap: f64,
@@ -72,14 +72,14 @@ fn best_matches<'py>(
             .collect()
     };
     let (ip, ix) = (to_usize(&indptr)?, to_usize(&indices)?);
-    let w = inv_psd.as_slice()?;
+    let w = crate::grid::inverse_psd(psd.as_slice()?);
     let (values, which) = run(py, || {
         overlap::best_matches(
             &Params { m1: &p[0], m2: &p[1], chi1: &p[2], chi2: &p[3] },
             &Params { m1: &b[0], m2: &b[1], chi1: &b[2], chi2: &b[3] },
             &ip,
             &ix,
-            &SweepGrid { inv_psd: w, df_fine, f_low, f_cap },
+            &SweepGrid { inv_psd: &w, df_fine, f_low, f_cap },
         )
     })?;
     Ok((values.into_pyarray(py), which.into_pyarray(py)))
