@@ -9,6 +9,7 @@ Wrong types raise ``TypeError``; wrong values raise ``ValueError``.
 
 from __future__ import annotations
 
+import math
 import numbers
 
 import numpy as np
@@ -27,6 +28,7 @@ __all__ = [
     "psd_array",
     "choice",
     "switch",
+    "table_number",
 ]
 
 
@@ -281,3 +283,40 @@ def switch(name: str, x) -> bool:
     if not isinstance(x, (bool, np.bool_)):
         raise TypeError(f"{name} must be True or False, got {x!r}")
     return bool(x)
+
+
+def table_number(where: str, key: str, value, *, integer: bool = False, minimum=None, positive: bool = False):
+    """Check a number read from a TOML table; a ``ValueError`` names the table and key otherwise.
+
+    Parameters
+    ----------
+    where : str
+        The file and table, e.g. ``"run.toml [network]"``.
+    key : str
+        The key as the file spells it.
+    value : object
+        What the file holds (TOML gives int or float).
+    integer : bool, optional
+        Require an integer (a float that happens to be whole is refused).
+    minimum : float, optional
+        Inclusive lower bound.
+    positive : bool, optional
+        Require ``value > 0``.
+
+    Returns
+    -------
+    int or float
+
+    Examples
+    --------
+    >>> from chirpsift._validate import table_number
+    >>> table_number("run.toml [network]", "slides", 40, integer=True, minimum=0)
+    40
+    """
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or (integer and not isinstance(value, int)):
+        kind = "an integer" if integer else "a number"
+        raise ValueError(f"{where}: {key} must be {kind}, got {value!r}")
+    if not math.isfinite(value) or (positive and value <= 0) or (minimum is not None and value < minimum):
+        need = "positive" if positive else f">= {minimum}"
+        raise ValueError(f"{where}: {key} must be a finite number {need}, got {value!r}")
+    return int(value) if integer else float(value)

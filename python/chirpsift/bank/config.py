@@ -6,8 +6,8 @@ One table for ``chirpsift bank --config`` and for the analysis file's ``[bank]``
 from __future__ import annotations
 
 import difflib
-import math
 
+from .._validate import table_number
 from ..spectrum import DESIGN_CURVES
 from .place import METHODS
 from .region import Region
@@ -32,19 +32,10 @@ PLACEMENT_KEYS = {
 }
 
 
-def _number(where: str, key: str, value, *, integer: bool = False, positive: bool = False, minimum=None):
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or (integer and not isinstance(value, int)):
-        raise ValueError(f"{where}: {key} must be {'an integer' if integer else 'a number'}, got {value!r}")
-    if not math.isfinite(value) or (positive and value <= 0) or (minimum is not None and value < minimum):
-        need = "positive" if positive else f">= {minimum}"
-        raise ValueError(f"{where}: {key} must be a finite number {need}, got {value!r}")
-    return value
-
-
 def _pair(where: str, key: str, value) -> tuple:
     if not (isinstance(value, (list, tuple)) and len(value) == 2):
         raise ValueError(f"{where}: {key} must be a [lo, hi] pair, got {value!r}")
-    return tuple(float(_number(where, f"{key}[{i}]", v)) for i, v in enumerate(value))
+    return tuple(table_number(where, f"{key}[{i}]", v) for i, v in enumerate(value))
 
 
 def placement_arguments(table: dict, where: str, *, f_low: float | None = None) -> dict:
@@ -104,17 +95,17 @@ def placement_arguments(table: dict, where: str, *, f_low: float | None = None) 
         hint = f"; did you mean {near[0]!r}?" if near else f"; the curves are {', '.join(DESIGN_CURVES)}"
         raise ValueError(f"{where}: psd {psd!r} is not a design curve{hint}")
     args["psd"] = psd
-    args["f_low"] = float(_number(where, "f-low", table.get("f-low", f_low), positive=True))
-    mm = _number(where, "minimal-match", table.get("minimal-match", 0.97), positive=True)
+    args["f_low"] = table_number(where, "f-low", table.get("f-low", f_low), positive=True)
+    mm = table_number(where, "minimal-match", table.get("minimal-match", 0.97), positive=True)
     if not mm < 1:
         raise ValueError(f"{where}: minimal-match must lie in (0, 1), got {mm!r}")
-    args["minimal_match"] = float(mm)
-    args["sample_rate"] = float(_number(where, "sample-rate", table.get("sample-rate", 4096.0), positive=True))
-    args["seed"] = _number(where, "seed", table.get("seed", 0), integer=True, minimum=0)
+    args["minimal_match"] = mm
+    args["sample_rate"] = table_number(where, "sample-rate", table.get("sample-rate", 4096.0), positive=True)
+    args["seed"] = table_number(where, "seed", table.get("seed", 0), integer=True, minimum=0)
     method = table.get("method", "auto")
     if method not in METHODS:
         raise ValueError(f"{where}: method must be one of {', '.join(METHODS)}, got {method!r}")
     args["method"] = method
     if "max-templates" in table:
-        args["max_templates"] = _number(where, "max-templates", table["max-templates"], integer=True, minimum=1)
+        args["max_templates"] = table_number(where, "max-templates", table["max-templates"], integer=True, minimum=1)
     return args

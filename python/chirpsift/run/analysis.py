@@ -64,6 +64,7 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
+from .._validate import table_number
 from ..bank.config import PLACEMENT_KEYS, placement_arguments
 from ..distributed.settings import ENGINE_KEYS, EngineSettings, engine_settings
 from ..io.readers import read_toml
@@ -283,16 +284,6 @@ def _path(base: Path, where: str, key: str, value) -> Path:
     return p if p.is_absolute() else base / p
 
 
-def _number(where: str, key: str, value, *, integer=False, minimum=None, positive=False):
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or (integer and not isinstance(value, int)):
-        kind = "an integer" if integer else "a number"
-        raise ValueError(f"{where}: {key} must be {kind}, got {value!r}")
-    if not math.isfinite(value) or (positive and value <= 0) or (minimum is not None and value < minimum):
-        need = "positive" if positive else f">= {minimum}"
-        raise ValueError(f"{where}: {key} must be a finite number {need}, got {value!r}")
-    return int(value) if integer else float(value)
-
-
 def _inline_sites(where: str, entries) -> dict[str, Site]:
     if not isinstance(entries, list) or not entries or not all(isinstance(e, dict) for e in entries):
         raise ValueError(f"{where}: [[sites.site]] must be one or more tables, got {entries!r}")
@@ -336,7 +327,7 @@ def _site_data(base: Path, where: str, table) -> SiteData:
         files=resolved,
         vetoes=vetoes,
         dataset=None if "dataset" not in table else _string(where, "dataset", table["dataset"]),
-        sample_rate=None if rate is None else _number(where, "sample-rate", rate, positive=True),
+        sample_rate=None if rate is None else table_number(where, "sample-rate", rate, positive=True),
         sample_rate_attr=_string(where, "sample-rate-attr", table.get("sample-rate-attr", "sample_rate")),
         t0_attr=_string(where, "t0-attr", table.get("t0-attr", "t0")),
     )
@@ -346,7 +337,7 @@ def _range(where: str, key: str, value, *, positive=True, bound=None):
     values = value if isinstance(value, list) else [value]
     if not 1 <= len(values) <= 2:
         raise ValueError(f"{where}: {key} must be one value or a [low, high] range, got {value!r}")
-    out = [_number(where, key, v, minimum=None if bound else 0.0) for v in values]
+    out = [table_number(where, key, v, minimum=None if bound else 0.0) for v in values]
     if positive and min(out) <= 0:
         raise ValueError(f"{where}: {key} must be positive, got {value!r}")
     if bound is not None and max(abs(v) for v in out) >= bound:
@@ -371,15 +362,15 @@ def _injections(where: str, table: dict) -> dict | None:
     if kind not in ("volume", "uniform", "log"):
         raise ValueError(f"{where}: distance-distribution must be 'volume', 'uniform' or 'log', got {kind!r}")
     return {
-        "count": _number(where, "count", table["count"], integer=True, minimum=1),
+        "count": table_number(where, "count", table["count"], integer=True, minimum=1),
         "m1": _range(where, "m1", table["m1"]),
         "m2": _range(where, "m2", table["m2"]),
         "spin1": _range(where, "spin1", table.get("spin1", 0.0), positive=False, bound=1.0),
         "spin2": _range(where, "spin2", table.get("spin2", 0.0), positive=False, bound=1.0),
         "distance": distance,
         "distance_distribution": kind,
-        "seed": _number(where, "seed", table.get("seed", 0), integer=True, minimum=0),
-        "found_ifar": _number(where, "found-ifar", table.get("found-ifar", 0.0), minimum=0),
+        "seed": table_number(where, "seed", table.get("seed", 0), integer=True, minimum=0),
+        "found_ifar": table_number(where, "found-ifar", table.get("found-ifar", 0.0), minimum=0),
     }
 
 
@@ -479,17 +470,17 @@ def load_analysis(path) -> Analysis:
     where = f"{p} [network]"
     net = _table(doc, "network", str(p), required=False)
     _check_keys(where, net, SCHEMA["network"])
-    slides = _number(where, "slides", net.get("slides", 0), integer=True, minimum=0)
+    slides = table_number(where, "slides", net.get("slides", 0), integer=True, minimum=0)
     step = net.get("slide-step")
-    step = None if step is None else _number(where, "slide-step", step, positive=True)
-    allowance = _number(where, "allowance", net.get("allowance", DEFAULT_ALLOWANCE), minimum=0)
+    step = None if step is None else table_number(where, "slide-step", step, positive=True)
+    allowance = table_number(where, "allowance", net.get("allowance", DEFAULT_ALLOWANCE), minimum=0)
 
     injections = _injections(f"{p} [injections]", _table(doc, "injections", str(p), required=False))
 
     where = f"{p} [report]"
     rep = _table(doc, "report", str(p), required=False)
     _check_keys(where, rep, SCHEMA["report"])
-    top = _number(where, "top", rep.get("top", 10), integer=True, minimum=1)
+    top = table_number(where, "top", rep.get("top", 10), integer=True, minimum=1)
     engine = engine_settings(_table(doc, "engine", str(p), required=False), where=f"{p} [engine]", base=base)
     return Analysis(path=p, output=output, sites=tuple(known[n] for n in names), data=data, bank_file=bank_file,
                     search=search, slides=slides, slide_step=step, allowance=allowance, top=top,

@@ -134,7 +134,8 @@ class Manifest:
         path = folder / MANIFEST_NAME
         if not path.exists():
             return cls(folder, settings_hash, analysis)
-        old_hash, old_analysis, units = _read(folder)
+        doc = read_manifest(folder)
+        old_hash, old_analysis, units = doc["settings_hash"], doc["analysis"], doc["units"]
         if old_hash != settings_hash:
             changed = _changed_keys(old_analysis, json.loads(to_json(analysis)))
             raise ManifestMismatch(
@@ -256,11 +257,6 @@ def read_manifest(folder) -> dict:
     return doc
 
 
-def _read(folder: Path) -> tuple[str, dict, dict]:
-    doc = read_manifest(folder)
-    return doc["settings_hash"], doc["analysis"], doc["units"]
-
-
 def read_units(folder) -> dict:
     """Units recorded in a run folder's manifest so far (the journal replayed), for watching a run.
 
@@ -277,4 +273,4 @@ def read_units(folder) -> dict:
     folder = Path(os.fspath(folder))
     if not (folder / MANIFEST_NAME).exists():
         return {}
-    return _read(folder)[2]
+    return read_manifest(folder)["units"]
