@@ -149,22 +149,16 @@ def test_coverage_summary_against_numpy(spin_bank):
 # ---------------------------------------------------------------------------
 
 
-def test_metric_candidate_search_equals_the_full_sweep_spinning(spin_bank):
-    # consistency test: the candidate search must find the template the full sweep finds.
-    # Values may differ in the last digits (each point is compared on a grid sized to its
-    # longest comparison, which the full sweep makes longer); the best template must not.
-    pts = np.stack(_region(SPIN).sample(100, seed=5), axis=1)
-    a, ia = fitting_factor(pts, spin_bank, **_ff_args(SPIN), search="metric", return_index=True)
-    b, ib = fitting_factor(pts, spin_bank, **_ff_args(SPIN), search="all", return_index=True)
-    np.testing.assert_array_equal(ia, ib)
-    np.testing.assert_allclose(a, b, rtol=0, atol=1e-4)
-
-
-def test_metric_candidate_search_equals_the_full_sweep_lattice(mid_bank):
-    # consistency test, as above, on a lattice bank (a full sweep of 30 points)
-    pts = np.stack(_region(MID).sample(30, seed=6), axis=1)
-    a, ia = fitting_factor(pts, mid_bank, **_ff_args(MID), search="metric", return_index=True)
-    b, ib = fitting_factor(pts, mid_bank, **_ff_args(MID), search="all", return_index=True)
+@pytest.mark.parametrize("which, n_points, seed", [("spin", 100, 5), ("mid", 30, 6)])
+def test_metric_candidate_search_equals_the_full_sweep(request, which, n_points, seed):
+    # consistency test: the candidate search must find the template the full sweep finds,
+    # on a stochastic (spinning) bank and on a lattice bank. Values may differ in the last
+    # digits (each point is compared on a grid sized to its longest comparison, which the
+    # full sweep makes longer); the best template must not.
+    bank, kw = request.getfixturevalue(f"{which}_bank"), {"spin": SPIN, "mid": MID}[which]
+    pts = np.stack(_region(kw).sample(n_points, seed=seed), axis=1)
+    a, ia = fitting_factor(pts, bank, **_ff_args(kw), search="metric", return_index=True)
+    b, ib = fitting_factor(pts, bank, **_ff_args(kw), search="all", return_index=True)
     np.testing.assert_array_equal(ia, ib)
     np.testing.assert_allclose(a, b, rtol=0, atol=1e-4)
 
