@@ -317,8 +317,8 @@ def _bank(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
         bank = place_bank(**analysis.bank_region, progress=progress)
     else:
         bank = Bank.load(analysis.bank_file)
-    if len(bank) == 0:
-        raise ValueError(f"{analysis.bank_file}: the bank holds no templates")
+        if len(bank) == 0:
+            raise ValueError(f"{analysis.bank_file}: the bank holds no templates")
     bank.save(folder / unit.outputs[0])
     return {"rows": len(bank)}
 
