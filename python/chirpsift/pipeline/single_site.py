@@ -8,14 +8,15 @@ The flow, one step per function, in the order :func:`search` calls them:
    and the segments of each (:mod:`chirpsift.segments`);
 4. :func:`_gate_stretches`: loud transients zeroed, live time counted;
 5. :func:`_search_stretches`: per stretch, per segment, the PSD (given or estimated),
-   the data FFT and the fused kernel (:func:`_filter_segments`), then clustering and
-   ranking within the stretch (:func:`_cluster_and_rank`);
+   the data FFT and the fused kernel (:func:`filter_stretch`, :func:`_filter_segments`),
+   then clustering and ranking within the stretch (:func:`cluster_and_rank`);
 6. the trigger table (:func:`chirpsift.triggers.trigger_table`) and :func:`_info`.
 
 The steps that concern one stretch (:func:`plan_stretch`, :func:`find_stretch_gates`,
-:func:`live_after_gates`, :func:`search_stretch`) take the stretch's data as an array
-or as a lazy view that slices into arrays, so :mod:`chirpsift.pipeline.streaming`
-runs the very same steps over data read from files block by block.
+:func:`live_after_gates`, :func:`filter_stretch`, :func:`cluster_and_rank`) take the
+stretch's data as an array or as a lazy view that slices into arrays, so
+:mod:`chirpsift.pipeline.streaming` runs the very same steps over data read from files
+block by block, and ``chirpsift run`` over blocks of time in separate units.
 """
 
 from __future__ import annotations
@@ -357,8 +358,14 @@ def _filter_segments(x, sample_rate, plans, bank, settings, psd_of, cluster_samp
         yield plan, peaks
 
 
-def _cluster_and_rank(peaks, settings):
-    """Per-template clustering in time, reweighted SNR, then optionally across the bank."""
+def cluster_and_rank(peaks, settings):
+    """Per-template clustering in time, reweighted SNR, then optionally across the bank.
+
+    ``peaks`` are the columns of every segment's kernel peaks of one stretch (with
+    absolute ``time``), in any order: the survivors of :func:`chirpsift.clustering.cluster_in_time`
+    depend on the set of peaks, not on their order (no two peaks of a template share a
+    time), which is what lets a run filter a stretch's segments in separate units.
+    """
     window = settings.peak_window
     keep = cluster_in_time(peaks["time"], peaks["snr"], window, groups=peaks["template"])
     peaks = {k: v[keep] for k, v in peaks.items()}
@@ -369,17 +376,19 @@ def _cluster_and_rank(peaks, settings):
     return peaks
 
 
-def search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates=()):
-    """Filter one stretch ``x`` (whose first sample is at ``t_first``) segment by segment;
-    returns its clustered, ranked peaks with absolute ``time``. ``gates`` (sample
-    intervals of ``x`` already zeroed) only serve to explain a PSD that cannot be estimated.
+def filter_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates=(), plans=None):
+    """Filter segments of one stretch ``x`` (whose first sample is at ``t_first``); returns
+    the fused kernel's peaks of each segment with absolute ``time``, before the clustering
+    over the stretch (:func:`cluster_and_rank`). ``gates`` (sample intervals of ``x``
+    already zeroed) only serve to explain a PSD that cannot be estimated.
+
+    ``plans`` (default all of ``stretch.plans``, in order) selects the segments: each
+    segment's PSD comes from its own block of the stretch and the kernel clusters within
+    the segment, so the peaks of a segment do not depend on which others are filtered.
 
     ``x`` is read only through ``x.shape[0]`` and slices ``x[a:b]``, per segment in
     order: the segment, then the block its PSD is estimated from (which starts at most
     ``psd_duration - segment`` samples before the segment).
-
-    Each stretch is its own analysis (PSDs from its own data, clustering within it), so
-    a search of the whole input equals searches of its stretches one by one.
     """
     fs = sample_rate
     length = stretch.length
@@ -404,13 +413,26 @@ def search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_ca
 
     cluster_samples = int(round(min(settings.peak_window, m / fs) * fs))
     columns: dict[str, list[np.ndarray]] = {}
-    for plan, found in _filter_segments(x, fs, stretch.plans, bank, settings, psd_of, cluster_samples):
+    chosen = stretch.plans if plans is None else plans
+    for plan, found in _filter_segments(x, fs, chosen, bank, settings, psd_of, cluster_samples):
         found["time"] = t_first + (plan.start + found["position"]) / fs
         for key, value in found.items():
             columns.setdefault(key, []).append(value)
         if bar is not None:
             bar.update(len(bank))
-    return _cluster_and_rank({k: np.concatenate(v) for k, v in columns.items()}, settings)
+    return {k: np.concatenate(v) for k, v in columns.items()}
+
+
+def search_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates=()):
+    """Filter one stretch ``x`` (whose first sample is at ``t_first``) segment by segment;
+    returns its clustered, ranked peaks with absolute ``time`` (:func:`filter_stretch`,
+    then :func:`cluster_and_rank`).
+
+    Each stretch is its own analysis (PSDs from its own data, clustering within it), so
+    a search of the whole input equals searches of its stretches one by one.
+    """
+    peaks = filter_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_cache, bar, gates)
+    return cluster_and_rank(peaks, settings)
 
 
 def progress_bar(stretches, bank):

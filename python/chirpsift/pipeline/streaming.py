@@ -2,7 +2,9 @@
 
 :func:`search_catalogue` runs the steps of :func:`chirpsift.search` (those of
 :mod:`chirpsift.pipeline.single_site` that concern one stretch) over data read from the
-catalogue's files as they are needed:
+catalogue's files as they are needed, each step a method of :class:`CatalogueSearch`
+(which ``chirpsift run`` calls from separate units: a span's layout, a block of time's
+filtering, a site's ranking):
 
 1. per span of abutting files, vetoed times and non-finite runs (found by reading the
    span in chunks of :data:`SCAN_SAMPLES`) split it into stretches, planned exactly as
@@ -12,7 +14,9 @@ catalogue's files as they are needed:
    :func:`chirpsift.gating.find_gates`, read one at a time;
 3. each stretch is filtered segment by segment; a segment and the block its PSD is
    estimated from are read (and gated) when the search reaches them, and samples are
-   dropped once no later segment needs them.
+   dropped once no later segment needs them;
+4. each stretch's kernel peaks are clustered and ranked as :func:`chirpsift.search`
+   does, and the live-time bookkeeping accounts for every sample.
 
 So each sample is read at most three times (once per step), the memory held is a
 few segments (and a PSD block) whatever the amount of data, and the triggers are those of
@@ -33,7 +37,7 @@ from ..condition import find_nonfinite_runs, stretches_between, subtract_interva
 from ..gating import apply_gates
 from ..io.catalogue import Catalogue, Span
 from ..io.vetoes import check_vetoes
-from ..segments import DURATION_MARGIN, padding
+from ..segments import DURATION_MARGIN, padding, plan_segments
 from ..triggers import TRIGGER_DTYPE, trigger_table
 from .live_time import LiveTimeTable
 from .settings import SearchSettings
@@ -47,12 +51,15 @@ from .single_site import (
     fixed_segment_length,
     live_after_gates,
     longest_template,
+    Stretch,
+    cluster_and_rank,
+    filter_stretch,
     plan_stretch,
     progress_bar,
-    search_stretch,
 )
 
-__all__ = ["search_catalogue", "cluster_across_bank", "SCAN_SAMPLES"]
+__all__ = ["search_catalogue", "cluster_across_bank", "CatalogueSearch", "SpanLayout", "Filtered", "PEAK_DTYPE",
+           "SCAN_SAMPLES"]
 
 #: Samples read at a time when a span is scanned for non-finite samples.
 SCAN_SAMPLES = 1 << 20
@@ -106,14 +113,44 @@ class _StretchData:
         return buf[lo - new_lo:hi - new_lo]
 
 
-class _SpanPlan(NamedTuple):
-    """What becomes of each sample of one span (sample intervals of the span)."""
+#: Columns of a stretch's kernel peaks as :class:`CatalogueSearch` passes them between its
+#: steps (:meth:`CatalogueSearch.filter` to :meth:`CatalogueSearch.rank`): those of
+#: :data:`chirpsift.fused.PEAK_COLUMNS` that the trigger table keeps, with absolute time, in
+#: the kernel's own types.
+PEAK_DTYPE = np.dtype([("time", "f8"), ("template", "i8"), ("snr", "f8"), ("phase", "f8"), ("sigma", "f8"),
+                       ("chi2", "f8"), ("chi2_dof", "i8")])
+
+
+class SpanLayout(NamedTuple):
+    """What becomes of each sample of one span: :meth:`CatalogueSearch.lay_out`'s result.
+
+    Intervals are ``(start, stop)`` sample positions in the span; ``gates`` holds, per
+    searched stretch, its gates relative to the stretch's start (empty until
+    :meth:`CatalogueSearch.find_gates`). ``samples_read`` and ``largest`` count the
+    samples read from files and the most held at once while it was made.
+    """
 
     span: Span
     vetoed: list[tuple[int, int]]
     nonfinite: list[tuple[int, int]]  # outside vetoes
     short: list[tuple[int, int]]
     stretches: list  # single_site.Stretch, positions in the span
+    gates: list[list[tuple[int, int]]]
+    samples_read: int = 0
+    largest: int = 0
+
+    def as_dict(self) -> dict:
+        """Return the layout as a JSON-friendly dict (the span as its start time and length).
+
+        Each stretch is ``[start, stop, length]``: its segment plan follows from those and
+        the search's pads (:meth:`CatalogueSearch.layout_from_dict`).
+        """
+        return {"t0": self.span.t0, "n": self.span.n, "sample_rate": self.span.sample_rate,
+                "vetoed": [list(iv) for iv in self.vetoed], "nonfinite": [list(iv) for iv in self.nonfinite],
+                "short": [list(iv) for iv in self.short],
+                "stretches": [[s.start, s.stop, s.length] for s in self.stretches],
+                "gates": [[list(g) for g in gates] for gates in self.gates],
+                "samples_read": self.samples_read, "largest": self.largest}
 
 
 def _union(*lists) -> list[tuple[int, int]]:
@@ -139,29 +176,6 @@ def _nonfinite_runs(span: Span) -> tuple[list[tuple[int, int]], int]:
     return runs, span.n
 
 
-def _plan_span(span, veto_times, settings, longest, pads, fixed_length):
-    fs = span.sample_rate
-    vetoed = span.samples_within(veto_times)
-    runs, read = _nonfinite_runs(span)
-    nonfinite = subtract_intervals(runs, vetoed)
-    if nonfinite and settings.nonfinite == "error":
-        a, b = nonfinite[0]
-        count = sum(y - x for x, y in nonfinite)
-        raise ValueError(
-            f"{span.file_at(a).where}: {count} non-finite samples in {len(nonfinite)} run(s) of the span from "
-            f"{span.t0!r} s, the first from t={span.t0 + a / fs!r} s; veto them, or pass nonfinite='skip' to search "
-            "the finite stretches between them"
-        )
-    short, stretches = [], []
-    for a, b in stretches_between(span.n, _union(vetoed, nonfinite)):
-        stretch = plan_stretch(a, b, fixed_length, longest, settings, fs, pads)
-        if stretch is None:
-            short.append((a, b))
-        else:
-            stretches.append(stretch)
-    return _SpanPlan(span, vetoed, nonfinite, short, stretches), read
-
-
 def _nothing_to_search(plans, settings, longest, pads, fixed_length, fs):
     longest_run = max((b - a for p in plans for a, b in p.short), default=0)
     where = (f"the longest stretch of the catalogue left by gaps, vetoes and non-finite samples has "
@@ -176,6 +190,361 @@ def _nothing_to_search(plans, settings, longest, pads, fixed_length, fs):
 def _seconds(span: Span, intervals):
     fs = span.sample_rate
     return [(span.t0 + a / fs, span.t0 + b / fs) for a, b in intervals]
+
+
+def _as_peaks(columns: dict) -> np.ndarray:
+    out = np.zeros(columns["time"].shape[0], dtype=PEAK_DTYPE)
+    for name in PEAK_DTYPE.names:
+        out[name] = columns[name]
+    return out
+
+
+class CatalogueSearch:
+    """The steps of :func:`search_catalogue`, one call per step, for searches split into units.
+
+    :func:`search_catalogue` is these steps run one after another; ``chirpsift run``
+    runs the same steps in separate units: one :meth:`lay_out` (with
+    :meth:`find_gates`) per span, one :meth:`filter` per block of time and sub-bank,
+    and one :meth:`rank` per stretch and :meth:`finish` per site in the merge.
+
+    1. :meth:`lay_out`: per span, vetoed times and non-finite runs (read in chunks of
+       :data:`SCAN_SAMPLES`) split it into stretches, and segments are planned over each
+       whole stretch; :meth:`check_layouts` then refuses a catalogue with nothing to
+       search and warns of what is left out;
+    2. :meth:`find_gates`: gates per stretch, in the whitening blocks of
+       :func:`chirpsift.gating.find_gates`, read one at a time; :meth:`check_gates`
+       warns of gated time (and refuses a gating that leaves nothing);
+    3. :meth:`filter`: the segments of a span (all, or those whose valid output starts in
+       a block of samples), each read (and gated) with the block its PSD is estimated
+       from; returns each stretch's kernel peaks, not yet clustered;
+    4. :meth:`rank`: a stretch's peaks, from any number of :meth:`filter` calls, clustered
+       per template (and across the bank) and ranked, as :func:`chirpsift.search` does;
+    5. :meth:`finish`: the trigger table and the run information of the catalogue.
+
+    The kernel clusters peaks within each segment and a segment's PSD comes from its own
+    block of data, so a segment's peaks do not depend on which other segments one
+    :meth:`filter` call holds; clustering over a stretch is a local-maximum rule that
+    cannot be split (a peak suppressed in one block may have suppressed one in the
+    next), so :meth:`rank` takes the stretch's peaks from every block at once.
+
+    Parameters
+    ----------
+    sample_rate : float
+        Hz, the catalogue's.
+    bank : Bank, structured array or mapping
+        Template parameters (``m1``, ``m2`` in solar masses, optional ``chi1``, ``chi2``).
+    f_low : float
+        Lower frequency cutoff (Hz).
+    psd, templates, **options
+        As for :func:`search_catalogue`.
+
+    Examples
+    --------
+    One file searched in two blocks of time, each filtered on its own, then ranked as one:
+
+    >>> import numpy as np, os, warnings
+    >>> import chirpsift as cs
+    >>> from chirpsift.io.catalogue import read_catalogue
+    >>> from chirpsift.pipeline import search_catalogue
+    >>> from chirpsift.pipeline.streaming import CatalogueSearch
+    >>> from chirpsift.synthetic import colored_gaussian_noise
+    >>> fs = 256.0
+    >>> x = colored_gaussian_noise(int(120 * fs), fs, "gen2-zero-detuned", seed=4, f_low=30.0)
+    >>> np.savez("steps-0.npz", strain=x, sample_rate=fs, t0=500.0)
+    >>> cat = read_catalogue("steps-0.npz")
+    >>> bank = cs.Bank(m1=[14.0, 16.0], m2=[12.0, 14.0])
+    >>> s = CatalogueSearch(fs, bank, f_low=40.0, welch_duration=1.0, min_snr=4.0, segment_duration=16.0)
+    >>> layout = s.find_gates(s.lay_out(cat.spans[0]))
+    >>> half = cat.spans[0].n // 2
+    >>> first, second = s.filter(layout, block=(0, half)), s.filter(layout, block=(half, cat.spans[0].n))
+    >>> ranked = [s.rank([first.peaks[0], second.peaks[0]])]
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     triggers, info = s.finish(cat, [layout], [ranked])
+    ...     whole, _ = search_catalogue(cat, bank, f_low=40.0, welch_duration=1.0, min_snr=4.0,
+    ...                                 segment_duration=16.0)
+    >>> len(triggers) > 0 and triggers.tobytes() == whole.tobytes()
+    True
+    """
+
+    def __init__(self, sample_rate, bank, *, f_low, psd=None, templates=None, **options):
+        b = Bank.from_any(bank)
+        if len(b) == 0:
+            raise ValueError("bank must hold at least one template")
+        self.psd = check_psd_argument(psd)
+        self.settings = SearchSettings.from_mapping({**options, "f_low": f_low}, where="search_catalogue")
+        self.lo, self.hi = _template_range(templates, len(b))
+        self.bank = b
+        self.sub = b if (self.lo, self.hi) == (0, len(b)) else b[self.lo:self.hi]
+        self.filter_settings = self.settings if templates is None else self.settings.replace(bank_cluster=False)
+        self.sample_rate = fs = float(sample_rate)
+        self.longest = longest_template(b, self.settings, fs)
+        self.pads = padding(self.longest, self.settings.welch_duration, fs)
+        self.fixed_length = fixed_segment_length(self.settings, self.psd, fs, self.longest, self.pads)
+        self._psd_cache: dict = {}
+
+    # --- 1. the layout of a span ---
+    def lay_out(self, span: Span, vetoes=()) -> SpanLayout:
+        """Split a span into stretches and plan their segments (reads it once, in chunks).
+
+        Parameters
+        ----------
+        span : chirpsift.io.catalogue.Span
+        vetoes : iterable of (float, float), optional
+            Checked veto intervals (s, :func:`chirpsift.io.vetoes.check_vetoes`).
+
+        Returns
+        -------
+        SpanLayout
+            Without gates.
+
+        Raises
+        ------
+        ValueError
+            ``nonfinite="error"`` and the span holds non-finite samples outside the
+            vetoes (the message names the file).
+        """
+        settings, fs = self.settings, span.sample_rate
+        vetoed = span.samples_within(vetoes)
+        runs, read = _nonfinite_runs(span)
+        nonfinite = subtract_intervals(runs, vetoed)
+        if nonfinite and settings.nonfinite == "error":
+            a, b = nonfinite[0]
+            count = sum(y - x for x, y in nonfinite)
+            raise ValueError(
+                f"{span.file_at(a).where}: {count} non-finite samples in {len(nonfinite)} run(s) of the span from "
+                f"{span.t0!r} s, the first from t={span.t0 + a / fs!r} s; veto them, or pass nonfinite='skip' to "
+                "search the finite stretches between them"
+            )
+        short, stretches = [], []
+        for a, b in stretches_between(span.n, _union(vetoed, nonfinite)):
+            stretch = plan_stretch(a, b, self.fixed_length, self.longest, settings, fs, self.pads)
+            if stretch is None:
+                short.append((a, b))
+            else:
+                stretches.append(stretch)
+        return SpanLayout(span, vetoed, nonfinite, short, stretches, [[] for _ in stretches], read)
+
+    def layout_from_dict(self, span: Span, doc: dict) -> SpanLayout:
+        """Return the :class:`SpanLayout` of ``span`` that :meth:`SpanLayout.as_dict` wrote.
+
+        Raises
+        ------
+        ValueError
+            ``doc`` describes another span (start, length or sample rate).
+        """
+        if (doc["t0"], doc["n"], doc["sample_rate"]) != (span.t0, span.n, span.sample_rate):
+            raise ValueError(f"the layout of the span from {doc['t0']!r} s ({doc['n']} samples) does not describe "
+                             f"the span from {span.t0!r} s ({span.n} samples): its files changed")
+        pairs = [[tuple(iv) for iv in doc[k]] for k in ("vetoed", "nonfinite", "short")]
+        stretches = [Stretch(a, b, length, plan_segments(b - a, length, *self.pads))
+                     for a, b, length in doc["stretches"]]
+        gates = [[tuple(g) for g in gs] for gs in doc["gates"]]
+        return SpanLayout(span, *pairs, stretches, gates, doc["samples_read"], doc["largest"])
+
+    def check_layouts(self, layouts, *, allow_empty=False, stacklevel=2) -> None:
+        """Refuse layouts with nothing to search, or a ``psd_duration`` shorter than a segment.
+
+        Nothing to search is allowed with ``allow_empty``; warns
+        (:class:`ExcludedDataWarning`, at ``stacklevel`` as :func:`warnings.warn` counts
+        from the caller) of what is left out.
+        """
+        settings, fs = self.settings, self.sample_rate
+        searched = [s for p in layouts for s in p.stretches]
+        if not searched and not allow_empty:
+            raise ValueError(_nothing_to_search(layouts, settings, self.longest, self.pads, self.fixed_length, fs))
+        check_psd_duration(searched, settings, fs)
+        nonfinite = [iv for p in layouts for iv in _seconds(p.span, p.nonfinite)]
+        short = [iv for p in layouts for iv in _seconds(p.span, p.short)]
+        if nonfinite or short:
+            warnings.warn(
+                f"left out {len(nonfinite)} run(s) of non-finite samples ({sum(b - a for a, b in nonfinite):g} s) "
+                f"and {len(short)} stretch(es) too short to hold a segment ({sum(b - a for a, b in short):g} s); "
+                "see info['excluded'], info['short_stretches'] and info['live_time_table']",
+                ExcludedDataWarning, stacklevel=stacklevel + 1)
+
+    # --- 2. gates ---
+    def find_gates(self, layout: SpanLayout) -> SpanLayout:
+        """Return ``layout`` with the gates of each stretch (reads each stretch once, by block)."""
+        read, largest, gates = layout.samples_read, layout.largest, []
+        for s in layout.stretches:
+            view = _StretchData(layout.span, s.start, s.stop)
+            gates.append(find_stretch_gates(view, self.sample_rate, self.settings))
+            read += view.samples_read
+            largest = max(largest, view.largest)
+        return layout._replace(gates=gates, samples_read=read, largest=largest)
+
+    def check_gates(self, layouts, *, allow_empty=False, stacklevel=2) -> None:
+        """Warn (:class:`GatingWarning`) when gates take analysed time.
+
+        A gating that leaves nothing live is refused, unless ``allow_empty`` and nothing
+        is live to begin with.
+        """
+        base, numbered, numbered_gates = 0, [], []
+        for p in layouts:  # one numbering of all spans' samples, for the check over the whole search
+            for s, gates in zip(p.stretches, p.gates):
+                numbered.append(s._replace(start=base + s.start, stop=base + s.stop))
+                numbered_gates += [(base + s.start + a, base + s.start + g) for a, g in gates]
+            base += p.span.n
+        pads = self.pads
+        region = [(s.start + pads[0], s.stop - pads[1]) for s in numbered]
+        if not allow_empty or subtract_intervals(region, numbered_gates):
+            live_after_gates(numbered, pads, numbered_gates, self.settings, self.sample_rate,
+                             stacklevel=stacklevel + 1)
+
+    # --- 3. filtering ---
+    def filter(self, layout: SpanLayout, block=None, bar=None) -> "Filtered":
+        """Filter the segments of a span with the sub-bank; the peaks of each stretch, not yet clustered.
+
+        Parameters
+        ----------
+        layout : SpanLayout
+            With its gates.
+        block : (int, int), optional
+            Filter only the segments whose valid output starts at a sample ``k`` of the
+            span with ``block[0] <= k < block[1]`` (default: every segment). Blocks that
+            tile the span filter every segment once.
+        bar : tqdm bar, optional
+            Advanced by the sub-bank's size per segment.
+
+        Returns
+        -------
+        Filtered
+            ``peaks``: per stretch of the layout, an array of :data:`PEAK_DTYPE` (empty
+            for a stretch with no segment in the block), ``template`` indexing the
+            whole bank; ``segments``: segments filtered per stretch; ``samples_read``
+            and ``largest``.
+        """
+        fs, settings, psd = self.sample_rate, self.settings, self.psd
+        span = layout.span
+        psd_len = None if settings.psd_duration is None else int(round(settings.psd_duration * fs))
+        peaks, counts, read, largest = [], [], 0, 0
+        for s, gates in zip(layout.stretches, layout.gates):
+            plans = s.plans if block is None else [
+                p for p in s.plans if block[0] <= s.start + p.start + p.valid_start < block[1]]
+            counts.append(len(plans))
+            if not plans:
+                peaks.append(np.zeros(0, dtype=PEAK_DTYPE))
+                continue
+            retain = max(0, (s.length if psd_len is None else psd_len) - s.length) if psd is None else 0
+            data = _StretchData(span, s.start, s.stop, gates=gates, sample_rate=fs, taper=settings.gate_taper,
+                                retain=retain)
+            found = _as_peaks(filter_stretch(data, span.t0 + s.start / fs, fs, s, self.sub, self.filter_settings,
+                                             psd, self._psd_cache, bar, gates, plans=plans))
+            found["template"] += self.lo  # sub-bank positions to whole-bank indices
+            peaks.append(found)
+            read += data.samples_read
+            largest = max(largest, data.largest)
+        return Filtered(peaks, counts, read, largest)
+
+    # --- 4. clustering and ranking, per stretch ---
+    def rank(self, parts) -> np.ndarray:
+        """Cluster and rank one stretch's peaks, given as the :meth:`filter` results of any split.
+
+        Parameters
+        ----------
+        parts : sequence of ndarray of :data:`PEAK_DTYPE`
+            The stretch's peaks from each block and sub-bank (together: every segment
+            of the stretch, once, with the templates searched).
+
+        Returns
+        -------
+        dict of ndarray
+            The survivors' columns, with ``reweighted_snr``
+            (:func:`chirpsift.pipeline.single_site.cluster_and_rank`).
+        """
+        joined = np.concatenate(list(parts)) if len(parts) else np.zeros(0, dtype=PEAK_DTYPE)
+        return cluster_and_rank({k: joined[k] for k in PEAK_DTYPE.names}, self.filter_settings)
+
+    # --- 5. the table and the run information ---
+    def finish(self, catalogue, layouts, ranked, *, stacklevel=2):
+        """Return the trigger table and run information of a catalogue (:func:`search_catalogue`'s).
+
+        Parameters
+        ----------
+        catalogue : Catalogue
+            The catalogue the layouts are of.
+        layouts : list of SpanLayout
+            One per span, with gates.
+        ranked : list of list of dict
+            Per layout, per stretch, :meth:`rank`'s result.
+        stacklevel : int, optional
+            Of the :class:`AnalysedFractionWarning`, as :func:`warnings.warn` counts from here.
+
+        Returns
+        -------
+        triggers, info
+            As :func:`search_catalogue` (``samples_read`` and ``largest_block`` count the
+            layouts' reading only).
+        """
+        fs, settings, b = self.sample_rate, self.settings, self.bank
+        found = [r for per_span in ranked for r in per_span]
+        if found:
+            peaks = {key: np.concatenate([f[key] for f in found]) for key in found[0]}
+            triggers = trigger_table(peaks, peaks["time"], peaks["reweighted_snr"], b)
+        else:  # allow_empty, and nothing to search
+            triggers = np.zeros(0, dtype=TRIGGER_DTYPE)
+        searched = [(p.span, s) for p in layouts for s in p.stretches]
+        # bookkeeping: every sample of every span in one category
+        pad_start, pad_end = self.pads
+        per_span, live, gates_abs = [], [], []
+        for p in layouts:
+            parts = {"vetoed": p.vetoed, "nonfinite": p.nonfinite, "short": p.short, "pads": [], "gated": [],
+                     "analysed": []}
+            for s, own in zip(p.stretches, p.gates):
+                gates = [(s.start + a, s.start + g) for a, g in own]
+                region = [(s.start + pad_start, s.stop - pad_end)]
+                analysed = subtract_intervals(region, gates)
+                parts["pads"] += [(s.start, s.start + pad_start), (s.stop - pad_end, s.stop)]
+                parts["gated"] += subtract_intervals(region, analysed)
+                parts["analysed"] += analysed
+                gates_abs += _seconds(p.span, gates)
+            live += _seconds(p.span, parts["analysed"])
+            per_span.append((p.span.t0, parts))
+        table = LiveTimeTable.from_samples(catalogue.start, catalogue.end, fs, per_span, catalogue.gaps)
+        analysed_fraction = table.live_time / catalogue.covered
+        if analysed_fraction < MIN_ANALYSED_FRACTION:
+            rows = ", ".join(f"{c} {sec:g} s" for c, sec, _ in table.rows() if sec > 0)
+            warnings.warn(f"only {100 * analysed_fraction:.0f}% of the {catalogue.covered:g} s of data in files is "
+                          f"searched: {rows}; see info['live_time_table']", AnalysedFractionWarning,
+                          stacklevel=stacklevel + 1)
+        info = {
+            "segments": sum(len(s.plans) for _, s in searched),
+            "analysed": live,
+            "live_time": table.live_time,
+            "analysed_fraction": analysed_fraction,
+            "gates": gates_abs,
+            "gated_time": float(sum(g - a for p in layouts for gates in p.gates for a, g in gates) / fs),
+            "excluded": [iv for p in layouts for iv in _seconds(p.span, p.nonfinite)],
+            "vetoed": [iv for p in layouts for iv in _seconds(p.span, p.vetoed)],
+            "gaps": catalogue.gaps,
+            "short_stretches": [iv for p in layouts for iv in _seconds(p.span, p.short)],
+            "stretches": [{"start": span.t0 + s.start / fs, "stop": span.t0 + s.stop / fs, "segments": len(s.plans),
+                           "segment_duration": s.length / fs} for span, s in searched],
+            "templates": len(b),
+            "template_range": [self.lo, self.hi],
+            "max_template_duration": self.longest * DURATION_MARGIN,
+            "pad_start": pad_start / fs,
+            "pad_end": pad_end / fs,
+            "segment_duration": max((s.length for _, s in searched), default=0) / fs,
+            "sample_rate": fs,
+            "settings": settings.as_dict(),
+            "files": len(catalogue.files),
+            "spans": len(catalogue.spans),
+            "live_time_table": table,
+            "samples_read": sum(p.samples_read for p in layouts),
+            "largest_block": max((p.largest for p in layouts), default=0),
+        }
+        return triggers, info
+
+
+class Filtered(NamedTuple):
+    """What :meth:`CatalogueSearch.filter` returns (see there)."""
+
+    peaks: list
+    segments: list
+    samples_read: int
+    largest: int
 
 
 def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=False, allow_empty=False,
@@ -290,132 +659,25 @@ def search_catalogue(catalogue, bank, *, f_low, vetoes=None, psd=None, progress=
     """
     if not isinstance(catalogue, Catalogue):
         raise TypeError(f"catalogue must be a Catalogue (see read_catalogue), got {type(catalogue).__name__}")
-    b = Bank.from_any(bank)
-    if len(b) == 0:
-        raise ValueError("bank must hold at least one template")
-    psd = check_psd_argument(psd)
-    settings = SearchSettings.from_mapping({**options, "f_low": f_low}, where="search_catalogue")
-    lo, hi = _template_range(templates, len(b))
-    sub = b if (lo, hi) == (0, len(b)) else b[lo:hi]
-    filter_settings = settings if templates is None else settings.replace(bank_cluster=False)
+    search = CatalogueSearch(catalogue.sample_rate, bank, f_low=f_low, psd=psd, templates=templates, **options)
     veto_times = check_vetoes(vetoes)
-    fs = catalogue.sample_rate
-    longest = longest_template(b, settings, fs)
-    pads = padding(longest, settings.welch_duration, fs)
-    fixed_length = fixed_segment_length(settings, psd, fs, longest, pads)
-
-    planned = [_plan_span(span, veto_times, settings, longest, pads, fixed_length) for span in catalogue.spans]
-    samples_read = sum(read for _, read in planned)
-    plans = [p for p, _ in planned]
-    searched = [(p.span, s) for p in plans for s in p.stretches]
-    if not searched and not allow_empty:
-        raise ValueError(_nothing_to_search(plans, settings, longest, pads, fixed_length, fs))
-    check_psd_duration([s for _, s in searched], settings, fs)
-    nonfinite = [iv for p in plans for iv in _seconds(p.span, p.nonfinite)]
-    short = [iv for p in plans for iv in _seconds(p.span, p.short)]
-    if nonfinite or short:
-        warnings.warn(
-            f"left out {len(nonfinite)} run(s) of non-finite samples ({sum(b - a for a, b in nonfinite):g} s) and "
-            f"{len(short)} stretch(es) too short to hold a segment ({sum(b - a for a, b in short):g} s); see "
-            "info['excluded'], info['short_stretches'] and info['live_time_table']",
-            ExcludedDataWarning, stacklevel=2)
-
-    # gates, per stretch, before anything is filtered (as the in-memory search)
-    largest = 0
-    own_gates = []
-    for span, s in searched:
-        view = _StretchData(span, s.start, s.stop)
-        own_gates.append(find_stretch_gates(view, fs, settings))
-        samples_read += view.samples_read
-        largest = max(largest, view.largest)
-    base, numbered, numbered_gates = 0, [], []
-    for p in plans:  # one numbering of all spans' samples, for the check over the whole search
-        for s in p.stretches:
-            numbered.append(s._replace(start=base + s.start, stop=base + s.stop))
-        base += p.span.n
-    base, k = 0, 0
-    for p in plans:
-        for s in p.stretches:
-            numbered_gates += [(base + s.start + a, base + s.start + g) for a, g in own_gates[k]]
-            k += 1
-        base += p.span.n
-    region = [(s.start + pads[0], s.stop - pads[1]) for s in numbered]
-    if not allow_empty or subtract_intervals(region, numbered_gates):
-        live_after_gates(numbered, pads, numbered_gates, settings, fs, stacklevel=3)
-
-    bar = progress_bar([s for _, s in searched], sub) if progress else None
-    found, psd_cache = [], {}
+    layouts = [search.lay_out(span, veto_times) for span in catalogue.spans]
+    search.check_layouts(layouts, allow_empty=allow_empty, stacklevel=2)
+    layouts = [search.find_gates(p) for p in layouts]  # before anything is filtered (as the in-memory search)
+    search.check_gates(layouts, allow_empty=allow_empty, stacklevel=2)
+    bar = progress_bar([s for p in layouts for s in p.stretches], search.sub) if progress else None
+    ranked, read, largest = [], 0, 0
     try:
-        for (span, s), gates in zip(searched, own_gates):
-            psd_len = s.length if settings.psd_duration is None else int(round(settings.psd_duration * fs))
-            data = _StretchData(span, s.start, s.stop, gates=gates, sample_rate=fs, taper=settings.gate_taper,
-                                retain=max(0, psd_len - s.length) if psd is None else 0)
-            peaks = search_stretch(data, span.t0 + s.start / fs, fs, s, sub, filter_settings, psd, psd_cache, bar,
-                                   gates)
-            if lo:  # sub-bank positions to whole-bank indices
-                peaks["template"] = peaks["template"] + peaks["template"].dtype.type(lo)
-            found.append(peaks)
-            samples_read += data.samples_read
-            largest = max(largest, data.largest)
+        for p in layouts:
+            done = search.filter(p, bar=bar)
+            ranked.append([search.rank([part]) for part in done.peaks])
+            read, largest = read + done.samples_read, max(largest, done.largest)
     finally:
         if bar is not None:
             bar.close()
-    if found:
-        peaks = {key: np.concatenate([f[key] for f in found]) for key in found[0]}
-        triggers = trigger_table(peaks, peaks["time"], peaks["reweighted_snr"], b)
-    else:  # allow_empty, and nothing to search
-        triggers = np.zeros(0, dtype=TRIGGER_DTYPE)
-
-    # bookkeeping: every sample of every span in one category
-    pad_start, pad_end = pads
-    per_span, live, gates_abs, k = [], [], [], 0
-    for p in plans:
-        parts = {"vetoed": p.vetoed, "nonfinite": p.nonfinite, "short": p.short, "pads": [], "gated": [],
-                 "analysed": []}
-        for s in p.stretches:
-            gates = [(s.start + a, s.start + g) for a, g in own_gates[k]]
-            k += 1
-            region = [(s.start + pad_start, s.stop - pad_end)]
-            analysed = subtract_intervals(region, gates)
-            parts["pads"] += [(s.start, s.start + pad_start), (s.stop - pad_end, s.stop)]
-            parts["gated"] += subtract_intervals(region, analysed)
-            parts["analysed"] += analysed
-            gates_abs += _seconds(p.span, gates)
-        live += _seconds(p.span, parts["analysed"])
-        per_span.append((p.span.t0, parts))
-    table = LiveTimeTable.from_samples(catalogue.start, catalogue.end, fs, per_span, catalogue.gaps)
-    analysed_fraction = table.live_time / catalogue.covered
-    if analysed_fraction < MIN_ANALYSED_FRACTION:
-        rows = ", ".join(f"{c} {sec:g} s" for c, sec, _ in table.rows() if sec > 0)
-        warnings.warn(f"only {100 * analysed_fraction:.0f}% of the {catalogue.covered:g} s of data in files is "
-                      f"searched: {rows}; see info['live_time_table']", AnalysedFractionWarning, stacklevel=2)
-    info = {
-        "segments": sum(len(s.plans) for _, s in searched),
-        "analysed": live,
-        "live_time": table.live_time,
-        "analysed_fraction": analysed_fraction,
-        "gates": gates_abs,
-        "gated_time": float(sum(g - a for gates in own_gates for a, g in gates) / fs),
-        "excluded": nonfinite,
-        "vetoed": [iv for p in plans for iv in _seconds(p.span, p.vetoed)],
-        "gaps": catalogue.gaps,
-        "short_stretches": short,
-        "stretches": [{"start": span.t0 + s.start / fs, "stop": span.t0 + s.stop / fs, "segments": len(s.plans),
-                       "segment_duration": s.length / fs} for span, s in searched],
-        "templates": len(b),
-        "template_range": [lo, hi],
-        "max_template_duration": longest * DURATION_MARGIN,
-        "pad_start": pad_start / fs,
-        "pad_end": pad_end / fs,
-        "segment_duration": max((s.length for _, s in searched), default=0) / fs,
-        "sample_rate": fs,
-        "settings": settings.as_dict(),
-        "files": len(catalogue.files),
-        "spans": len(catalogue.spans),
-        "live_time_table": table,
-        "samples_read": samples_read,
-        "largest_block": largest,
-    }
+    triggers, info = search.finish(catalogue, layouts, ranked, stacklevel=2)
+    info["samples_read"] += read
+    info["largest_block"] = max(info["largest_block"], largest)
     return triggers, info
 
 
