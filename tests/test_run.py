@@ -177,9 +177,9 @@ def test_a_deleted_or_damaged_unit_output_is_redone_alone(done):
     path = second_output(folder, "out-redo")
     out = folder / "out-redo"
     before = outputs(out)
-    late = sorted((out / "triggers" / "Heron").glob("span-*.parquet"))[-1]  # the span after the gap
+    late = sorted((out / "peaks" / "Heron").glob("block-*.parquet"))[-1]  # the span after the gap: one block
     late.unlink()
-    span = late.stem.split("-")[1]  # span-<t0>-templates-0-2
+    span = late.stem.split("-")[1]  # block-<t0>-templates-0-2
     spectrum = out / "spectra" / "Kestrel.parquet"
     spectrum.write_bytes(spectrum.read_bytes()[:-10])  # truncated
     result = run_analysis(load_analysis(path))
@@ -234,7 +234,7 @@ def test_the_command_runs_and_reports(done, capsys):
     folder, path, _ = done
     assert main(["run", str(path), "--quiet"]) == 0
     text = capsys.readouterr().out
-    assert "0 units run, 11 already complete" in text and "report.html" in text
+    assert "0 units run, 14 already complete" in text and "report.html" in text
     assert text.count("where each second went") == 2 and "Cautions:" in text
     top = re.search(r"^\s+1\s+(\d+\.\d+)\s+14.00 \+ 12.00\s", text, flags=re.M)  # the injected binary ranks first
     assert top and abs(float(top.group(1)) - T_SIGNAL) < 0.01
@@ -260,8 +260,9 @@ def test_quiet_progress_prints_a_line_per_n_units_or_per_minute():
 def test_a_run_that_finds_nothing_publishes_empty_tables_and_says_so(tmp_path):
     path = _edit(write_scenario(tmp_path, slides=0), "min-snr = 5.0", "min-snr = 30.0")
     first = run_analysis(load_analysis(path), stop_after="search")
-    assert first.ran[0] == "bank" and len(first.ran) == 4  # Kestrel: one span; Heron: two, split by the gap
-    assert all(k.startswith(("search/Kestrel/", "search/Heron/")) for k in first.ran[1:])
+    assert first.ran[0] == "bank" and len(first.ran) == 7  # Kestrel: one span; Heron: two, split by the gap
+    assert all(k.startswith(("layout/Kestrel/", "layout/Heron/")) for k in first.ran[1:4])
+    assert all(k.startswith(("search/Kestrel/", "search/Heron/")) for k in first.ran[4:])  # one block each
     rest = run_analysis(load_analysis(path))
     assert rest.skipped == first.ran and rest.ran[-1] == "report"
     out = tmp_path / "out"
@@ -319,7 +320,8 @@ def test_span_units_merge_to_the_whole_catalogues_search_and_a_short_span_is_rep
     short = synthetic.colored_gaussian_noise(int(4 * FS), FS, "gen2-zero-detuned", seed=3, f_low=20.0)
     np.savez(tmp_path / "kestrel" / "kestrel-99.npz", strain=short, sample_rate=FS, t0=T0 + 600.0)
     result = run_analysis(analysis, stop_after="merge")
-    assert result.ran == [f"search/Kestrel/{T0 + 600.0:.3f}/0-2", "merge/Kestrel"]  # a new file, a new span
+    label = f"{T0 + 600.0:.3f}"
+    assert result.ran == [f"layout/Kestrel/{label}", f"search/Kestrel/{label}/0-2", "merge/Kestrel"]  # a new span
     merged, meta = read_triggers(tmp_path / "out" / "triggers" / "Kestrel.parquet")
     cat = read_catalogue(list(analysis.data["Kestrel"].files))
     settings = analysis.search.as_dict()

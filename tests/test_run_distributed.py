@@ -29,7 +29,7 @@ from _run_scenario import outputs, temporaries, write_scenario
 
 pytest.importorskip("distributed")
 
-ENGINE = '\n[engine]\ntemplates-per-unit = 1\nkind = "local"\nworkers = 2\n'
+ENGINE = '\n[engine]\ntemplates-per-unit = 1\nseconds-per-unit = 100\nkind = "local"\nworkers = 2\n'
 TESTS = str(Path(__file__).resolve().parent)
 ENV = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys.path if p)}
 
@@ -55,7 +55,7 @@ def client():
 
 @pytest.fixture(scope="module")
 def reference(tmp_path_factory):
-    """The scenario split into one-template units with bank clustering, run in-process."""
+    """The scenario split into one-template units of 100 s blocks with bank clustering, run in-process."""
     folder = tmp_path_factory.mktemp("distributed")
     path = write_scenario(folder, extra=ENGINE)
     path.write_text(path.read_text().replace("peak-window = 0.5", "peak-window = 0.5\nbank-cluster = true"))
@@ -71,7 +71,8 @@ def test_a_local_cluster_gives_the_in_process_bytes_and_the_whole_bank_search(re
     analysis = load_analysis(path)
     assert analysis.settings_hash() == load_analysis(folder / "ref.toml").settings_hash()  # engine kind not hashed
     search_units = [u for u in plan(analysis) if u.stage == "search"]
-    assert len(search_units) == 9  # Kestrel 1 span, Heron 2 spans, x 3 one-template sub-banks
+    # Kestrel: one span of 480 s, 5 blocks; Heron: spans of 330 s and 130 s, 4 + 2 blocks; x 3 sub-banks
+    assert len(search_units) == 33 and len({u.block for u in search_units if u.site == "Kestrel"}) == 5
     result = run_analysis(analysis, client=client)
     assert result.engine == "local" and len(result.ran) == total
     assert outputs(folder / "out") == expected  # every file, manifest and report included
@@ -89,9 +90,9 @@ def test_a_local_cluster_gives_the_in_process_bytes_and_the_whole_bank_search(re
                                     cs.Bank.load(folder / "bank.parquet"),
                                     vetoes=str(folder / "heron-vetoes.txt"), **settings)
     assert len(merged) and merged.tobytes() == whole.tobytes()
-    assert meta["units"] == 6 and settings["bank_cluster"]
-    union = sum(len(read_triggers(f)[0]) for f in (folder / "out" / "triggers" / "Heron").glob("*.parquet"))
-    assert union > len(merged)  # the merge's clustering across the bank had work to do
+    assert meta["units"] == 18 and settings["bank_cluster"]
+    union = sum(len(read_triggers(f)[0]) for f in (folder / "out" / "peaks" / "Heron").glob("*.parquet"))
+    assert union > len(merged)  # the merge's clustering had work to do
 
 
 def test_killing_a_worker_mid_run_loses_and_duplicates_nothing(reference, monkeypatch):
@@ -177,13 +178,13 @@ def test_truncated_corrupt_and_leftover_temporary_unit_files_are_found_and_redon
     folder, path, expected, total = reference
     again = _copy(path, "damaged")
     run_analysis(load_analysis(again), client=client)
-    site = folder / "damaged" / "triggers" / "Heron"
+    site = folder / "damaged" / "peaks" / "Heron"
     first, second = sorted(site.glob("*.parquet"))[:2]
     leftover = site / f".{first.name}.x1y2.partial"
     leftover.write_bytes(b"half a table")
     # a dataset reader never sees the temporary (pyarrow skips names starting with '.' or '_')
     files = ds.dataset(site, format="parquet").files
-    assert len(files) == 6 and str(leftover) not in files
+    assert len(files) == 18 and str(leftover) not in files
     first.write_bytes(first.read_bytes()[:-20])  # truncated: no footer
     raw = bytearray(second.read_bytes())
     raw[100] ^= 0xFF  # same size, one byte flipped
@@ -211,21 +212,25 @@ def test_the_merge_names_missing_and_corrupt_units(reference):
     checked_path = folder / "merge-check.toml"
     checked_path.write_text((folder / "ref.toml").read_text().replace('output = "ref"', 'output = "merge-check"'))
     checked = load_analysis(checked_path)
-    site = folder / "merge-check" / "triggers" / "Heron"
+    site = folder / "merge-check" / "peaks" / "Heron"
     files = sorted(site.glob("*.parquet"))
     files[0].unlink()
     files[1].write_bytes(files[1].read_bytes()[:-30])
     key = [k for k in merge.after if k.startswith("search/Heron/")]
     upstream[key[2]] = dict(upstream[key[2]], rows=upstream[key[2]]["rows"] + 1)
-    (site / "span-1.000-templates-0-0.parquet").write_bytes(files[3].read_bytes())
+    (site / "block-1.000-templates-0-0.parquet").write_bytes(files[3].read_bytes())
+    layout_key = next(k for k in merge.after if k.startswith("layout/Heron/"))
+    layout_file = folder / "merge-check" / next(iter(upstream[layout_key]["files"]))
+    layout_file.write_bytes(layout_file.read_bytes()[:-40])  # a torn layout
     with pytest.raises(UnitOutputError) as err:
         execute(merge, checked, upstream=upstream)
     text = str(err.value)
-    assert text.startswith("merge/Heron: 4 problem(s)")
+    assert text.startswith("merge/Heron: 5 problem(s)")
     assert f"{key[0]}: " in text and "is missing" in text
     assert f"{key[1]}: " in text and "no readable Parquet footer" in text
     assert f"{key[2]}: " in text and "the manifest recorded" in text
-    assert "belong to no planned unit (span-1.000-templates-0-0.parquet)" in text
+    assert f"{layout_key}: " in text and "is not a readable layout" in text
+    assert "belong to no planned unit (block-1.000-templates-0-0.parquet)" in text
     assert not (folder / "merge-check" / "triggers" / "Heron.parquet").stat().st_size == 0
 
 
@@ -241,9 +246,10 @@ def test_a_unit_that_keeps_failing_is_named_after_its_attempts_and_the_rest_comp
         run_analysis(load_analysis(path), client=client)
     text = str(err.value)
     label = f"{float(t0):.3f}"
-    assert text.startswith("3 unit(s) failed after 2 attempt(s) each: ")
-    assert f"search/Heron/{label}/0-0: ValueError: " in text and "non-finite samples" in text and late.name in text
-    assert set(err.value.failures) == {f"search/Heron/{label}/{k}-{k}" for k in range(3)}
+    assert text.startswith("1 unit(s) failed after 2 attempt(s) each: ")  # the span's layout finds the samples
+    assert f"layout/Heron/{label}: ValueError: " in text and "non-finite samples" in text and late.name in text
+    assert set(err.value.failures) == {f"layout/Heron/{label}"}
+    assert f"search/Heron/{label}/0-0" in err.value.blocked  # the span's first block, its blocks not run
     assert "merge/Heron" in err.value.blocked and "report" in err.value.blocked
     units = json.loads((tmp_path / "out" / "manifest.json").read_text())["units"]
     assert {"merge/Kestrel", "spectrum/Kestrel"} <= set(units)  # what did not need the bad span completed
@@ -262,7 +268,7 @@ def test_the_command_reports_failed_units_in_one_line(tmp_path, capsys):
     np.savez(late, strain=x, sample_rate=fs, t0=t0)
     assert main(["run", str(path), "--quiet", "--attempts", "2"]) == 2
     err = capsys.readouterr().err.strip()
-    assert err.count("\n") == 0 and "1 unit(s) failed after 2 attempt(s) each: search/Kestrel/" in err
+    assert err.count("\n") == 0 and "1 unit(s) failed after 2 attempt(s) each: layout/Kestrel/" in err
     assert "run the same command again" in err
     assert main(["run", str(path), "--workers", "0"]) == 2
     assert "--workers must be at least 1, got 0" in capsys.readouterr().err
@@ -298,6 +304,10 @@ def test_the_engine_may_change_between_runs_but_the_unit_size_may_not(reference)
     changed.write_text(text)
     with pytest.raises(ManifestMismatch, match=r"changed: units\.templates_per_unit"):
         run_analysis(load_analysis(changed))
+    blocks = (folder / "ref.toml").read_text().replace("seconds-per-unit = 100", "seconds-per-unit = 200")
+    changed.write_text(blocks)
+    with pytest.raises(ManifestMismatch, match=r"changed: units\.seconds_per_unit"):
+        run_analysis(load_analysis(changed))
     assert run_analysis(load_analysis(folder / "ref.toml")).ran == []  # in-process resumes a local-cluster plan
 
 
@@ -318,6 +328,8 @@ def test_a_second_run_on_a_busy_folder_is_refused(reference):
     ({"kind": "local", "memory": "lots"}, "memory must be an amount"),
     ({"kind": "htcondor", "lifetime": "soon"}, "lifetime must be a duration"),
     ({"templates-per-unit": 0}, "templates-per-unit must be an integer >= 1"),
+    ({"seconds-per-unit": 0.5}, "seconds-per-unit must be a number of seconds >= 1, got 0.5"),
+    ({"seconds-per-unit": "1d"}, "seconds-per-unit must be a number of seconds >= 1, got '1d'"),
     ({"workres": 2}, "unknown key 'workres'; did you mean 'workers'?"),
 ])
 def test_bad_engine_tables_are_refused_naming_the_key(tmp_path, table, message):

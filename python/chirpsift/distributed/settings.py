@@ -31,16 +31,24 @@ import os
 import re
 from dataclasses import dataclass
 
-__all__ = ["EngineSettings", "ENGINE_KINDS", "ENGINE_KEYS", "DEFAULT_TEMPLATES_PER_UNIT", "engine_settings"]
+__all__ = ["EngineSettings", "ENGINE_KINDS", "ENGINE_KEYS", "DEFAULT_TEMPLATES_PER_UNIT", "DEFAULT_SECONDS_PER_UNIT",
+           "engine_settings"]
 
 #: The engines, in the order of the module docstring.
 ENGINE_KINDS = ("process", "local", "scheduler", "htcondor", "slurm")
 
-#: Templates per search unit unless the analysis file says otherwise. Each unit re-reads
-#: its span to find non-finite samples and gates before filtering its sub-bank; at 256
-#: templates that reading is a few per cent of the unit's filtering for banks of
+#: Templates per search unit unless the analysis file says otherwise. Each unit reads its
+#: block of data (and estimates its segments' PSDs) again for its sub-bank; at 256
+#: templates that is a few per cent of the unit's filtering for banks of
 #: binary-neutron-star templates (bench/test_distributed.py measures the overhead).
 DEFAULT_TEMPLATES_PER_UNIT = 256
+
+#: Seconds of one site's data per search unit (a block of time of a span) unless the
+#: analysis file says otherwise: one day, so that a span of months is searched in parallel
+#: over time, while a unit of 256 binary-neutron-star templates still computes for minutes
+#: (about 210 s on one thread at the W1 rate in the README), long beside its scheduling
+#: and its reading of one day of samples.
+DEFAULT_SECONDS_PER_UNIT = 86400.0
 
 #: Every key of the ``[engine]`` table, with one line of help (the README's table is
 #: checked against it).
@@ -48,6 +56,9 @@ ENGINE_KEYS: dict[str, str] = {
     "kind": "where units run: 'process' (default, no Dask), 'local', 'scheduler', 'htcondor' or 'slurm'",
     "templates-per-unit": f"templates of the bank per search unit (default {DEFAULT_TEMPLATES_PER_UNIT}); part of "
                           "the plan, so changing it needs a new output folder",
+    "seconds-per-unit": f"seconds of a span's data per search unit, blocks of time counted from the span's start "
+                        f"(default {DEFAULT_SECONDS_PER_UNIT:g} s, one day; at least 1 s); part of the plan, so "
+                        "changing it needs a new output folder",
     "attempts": "times a failing unit is tried before it is reported (default 1 in-process, 3 on Dask)",
     "workers": "'local': worker processes (default: cores / threads-per-worker); batch kinds: the most jobs "
                "(default 10)",
@@ -87,6 +98,8 @@ class EngineSettings:
         One of :data:`ENGINE_KINDS`.
     templates_per_unit : int
         Templates per search unit (decides the plan, not where it runs).
+    seconds_per_unit : float
+        Seconds of data per search unit, s (decides the plan, not where it runs).
     attempts : int or None
         Tries per unit; None: 1 in-process, 3 on Dask.
     workers : int or None
@@ -111,6 +124,7 @@ class EngineSettings:
 
     kind: str = "process"
     templates_per_unit: int = DEFAULT_TEMPLATES_PER_UNIT
+    seconds_per_unit: float = DEFAULT_SECONDS_PER_UNIT
     attempts: int | None = None
     workers: int | None = None
     threads_per_worker: int | None = None
@@ -165,6 +179,9 @@ def _check(e: EngineSettings, where: str) -> None:
             continue
         if isinstance(value, bool) or not isinstance(value, int) or value < low:
             raise ValueError(f"{where}: {name.replace('_', '-')} must be an integer >= {low}, got {value!r}")
+    sec = e.seconds_per_unit
+    if isinstance(sec, bool) or not isinstance(sec, (int, float)) or not sec >= 1.0 or sec == float("inf"):
+        raise ValueError(f"{where}: seconds-per-unit must be a number of seconds >= 1, got {sec!r}")
     if e.kind == "scheduler" and not e.address:
         raise ValueError(f"{where}: kind 'scheduler' needs the scheduler's address (address = \"tcp://HOST:PORT\", "
                          "or --scheduler ADDRESS)")

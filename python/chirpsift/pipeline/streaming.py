@@ -419,9 +419,7 @@ class CatalogueSearch:
         span = layout.span
         psd_len = None if settings.psd_duration is None else int(round(settings.psd_duration * fs))
         peaks, counts, read, largest = [], [], 0, 0
-        for s, gates in zip(layout.stretches, layout.gates):
-            plans = s.plans if block is None else [
-                p for p in s.plans if block[0] <= s.start + p.start + p.valid_start < block[1]]
+        for s, gates, plans in zip(layout.stretches, layout.gates, self.block_plans(layout, block)):
             counts.append(len(plans))
             if not plans:
                 peaks.append(np.zeros(0, dtype=PEAK_DTYPE))
@@ -436,6 +434,19 @@ class CatalogueSearch:
             read += data.samples_read
             largest = max(largest, data.largest)
         return Filtered(peaks, counts, read, largest)
+
+    @staticmethod
+    def block_plans(layout: SpanLayout, block=None) -> list:
+        """Per stretch of ``layout``, the segment plans whose valid output starts in ``block``.
+
+        A segment belongs to the block of samples ``[block[0], block[1])`` of the span
+        where its valid output starts, so blocks that tile a span share out its segments,
+        each once; ``block=None`` gives every segment.
+        """
+        if block is None:
+            return [s.plans for s in layout.stretches]
+        a, b = block
+        return [[p for p in s.plans if a <= s.start + p.start + p.valid_start < b] for s in layout.stretches]
 
     # --- 4. clustering and ranking, per stretch ---
     def rank(self, parts) -> np.ndarray:

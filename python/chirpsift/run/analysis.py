@@ -93,7 +93,7 @@ SCHEMA: dict[str, dict[str, str]] = {
         "network": "table: coincidence and time-slide settings",
         "injections": "table: simulated signals and sensitivity (optional)",
         "report": "table: report settings (optional)",
-        "engine": "table: where the units run and how the bank is split into units (optional)",
+        "engine": "table: where the units run and how the bank and the data are split into units (optional)",
     },
     "sites": {
         "file": "a sites file in chirpsift.load_sites format",
@@ -198,7 +198,8 @@ class Analysis:
         ``found_ifar``), or None for no injection campaign.
     engine : chirpsift.distributed.EngineSettings
         Where the units run (not part of the settings hash: a run may resume on another
-        engine) and the templates per search unit (part of it: it decides the plan).
+        engine) and the templates and seconds of data per search unit (part of it: they
+        decide the plan).
     """
 
     path: Path
@@ -225,8 +226,8 @@ class Analysis:
 
         The output folder and the analysis file's own path are left out (moving a run
         changes nothing), and so are ``top`` (it only changes how much the report lists)
-        and the engine (where units run changes no result), but not the templates per
-        unit, which decide the plan's units.
+        and the engine (where units run changes no result), but not the templates and
+        seconds per unit, which decide the plan's units.
         """
         return {
             "format": FORMAT_VERSION,
@@ -240,7 +241,8 @@ class Analysis:
             "search": self.search.as_dict(),
             "network": {"slides": self.slides, "slide_step": self.slide_step, "allowance": self.allowance},
             "injections": self.injections,
-            "units": {"templates_per_unit": self.engine.templates_per_unit},
+            "units": {"templates_per_unit": self.engine.templates_per_unit,
+                      "seconds_per_unit": float(self.engine.seconds_per_unit)},
         }
 
     def settings_hash(self) -> str:

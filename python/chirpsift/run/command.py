@@ -102,6 +102,7 @@ def engine_from_flags(engine, args):
         from ..distributed import EngineSettings
 
         engine = EngineSettings(kind=kind, templates_per_unit=engine.templates_per_unit,
+                                seconds_per_unit=engine.seconds_per_unit,
                                 attempts=engine.attempts, threads_per_worker=engine.threads_per_worker)
     for flag in ("workers", "threads_per_worker", "attempts"):
         value = getattr(args, flag)

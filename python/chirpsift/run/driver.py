@@ -147,7 +147,8 @@ def run_analysis(analysis, *, progress: str = "off", every: int = 10, seconds: f
         A stage name: stop once its units are complete (the later ones are not run).
     engine : chirpsift.distributed.EngineSettings, optional
         Where the units run; default the analysis file's ``[engine]`` table. Its
-        ``templates_per_unit`` must be the analysis's (it decides the plan).
+        ``templates_per_unit`` and ``seconds_per_unit`` must be the analysis's (they
+        decide the plan).
     client : distributed.Client, optional
         Run on this Dask client instead of making one from ``engine`` (left open).
 
@@ -178,9 +179,10 @@ def run_analysis(analysis, *, progress: str = "off", every: int = 10, seconds: f
     such a run are removed first. No cluster is started when nothing is left to do.
     """
     engine = analysis.engine if engine is None else engine
-    if engine.templates_per_unit != analysis.engine.templates_per_unit:
-        raise ValueError(f"engine.templates_per_unit={engine.templates_per_unit} differs from the analysis's "
-                         f"{analysis.engine.templates_per_unit}: it decides the plan; change it in the analysis file")
+    for key in ("templates_per_unit", "seconds_per_unit"):
+        if getattr(engine, key) != getattr(analysis.engine, key):
+            raise ValueError(f"engine.{key}={getattr(engine, key)} differs from the analysis's "
+                             f"{getattr(analysis.engine, key)}: it decides the plan; change it in the analysis file")
     manifest = Manifest.open(analysis.output, analysis.settings_hash(), analysis.canonical())
     with _folder_lock(manifest.folder):
         if analysis.bank_region is None or stop_after == "bank":

@@ -6,46 +6,65 @@ atomically into the output folder and returns facts for the manifest; it never w
 the manifest. Running a unit twice on the same inputs publishes the same bytes (no
 clock time, no host name in any output), so a unit can be redone at any time.
 
-=====================================  =========================================  ====================================
-unit key                               publishes                                  what
-=====================================  =========================================  ====================================
-``bank``                               ``bank.parquet``                           the template bank (Bank.save layout)
-``search/<site>/<t0>/<lo>-<hi>``       ``triggers/<site>/span-<t0>-templates-``   one span of abutting files searched
-                                       ``<lo>-<hi>.parquet``                      block by block with templates lo to
-                                                                                  hi (:func:`~chirpsift.pipeline.
-                                                                                  search_catalogue`), summary in
-                                                                                  metadata
-``merge/<site>``                       ``triggers/<site>.parquet``                the site's units in one table and
-                                                                                  summary, re-clustered across the
-                                                                                  bank
-``spectrum/<site>``                    ``spectra/<site>.parquet``                 amplitude spectral density
-``background``                         ``background.parquet``                     time-slide coincidences
-``candidates``                         ``candidates.parquet``                     zero-lag coincidences with FARs
-``injections``                         ``injections/injections.parquet``          simulated binaries
-``inject-search/<site>/<t0>/<lo>-<hi>`` ``injections/triggers/<site>/...``        a unit searched with the signals
-``inject-merge/<site>``                ``injections/triggers/<site>.parquet``     the site's units in one table
-``found-missed``                       ``injections/found_missed.parquet``        each injection found or missed
-``sensitivity``                        ``injections/sensitivity.json``            efficiency, range and VT
-``report``                             ``report/...``                             the HTML report and its plots
-=====================================  =========================================  ====================================
+======================================  ========================================  ===================================
+unit key                                publishes                                 what
+======================================  ========================================  ===================================
+``bank``                                ``bank.parquet``                          the template bank (Bank.save layout)
+``layout/<site>/<t0>``                  ``layouts/<site>/span-<t0>.json``         one span of abutting files read
+                                                                                  once: its stretches, segment plans,
+                                                                                  gates, vetoed and non-finite samples
+                                                                                  (:meth:`~chirpsift.pipeline.
+                                                                                  CatalogueSearch.lay_out`)
+``search/<site>/<start>/<lo>-<hi>``     ``peaks/<site>/block-<start>-``           the segments of one block of time
+                                        ``templates-<lo>-<hi>.parquet``           (from ``<start>`` s) filtered with
+                                                                                  templates lo to hi: their kernel
+                                                                                  peaks, not yet clustered
+``merge/<site>``                        ``triggers/<site>.parquet``               every block's peaks clustered and
+                                                                                  ranked per stretch, in one table and
+                                                                                  summary
+``spectrum/<site>``                     ``spectra/<site>.parquet``                amplitude spectral density
+``background``                          ``background.parquet``                    time-slide coincidences
+``candidates``                          ``candidates.parquet``                    zero-lag coincidences with FARs
+``injections``                          ``injections/injections.parquet``         simulated binaries
+``inject-layout/<site>/<t0>``           ``injections/layouts/...``                a span laid out with the signals
+``inject-search/<site>/<start>/...``    ``injections/peaks/...``                  a block filtered with the signals
+``inject-merge/<site>``                 ``injections/triggers/<site>.parquet``    the site's blocks in one table
+``found-missed``                        ``injections/found_missed.parquet``       each injection found or missed
+``sensitivity``                         ``injections/sensitivity.json``           efficiency, range and VT
+``report``                              ``report/...``                            the HTML report and its plots
+======================================  ========================================  ===================================
 
-Unit size: one search unit per span of abutting files (``<t0>`` its start time, in s
-with millisecond digits) and sub-bank of ``templates-per-unit`` templates (``[engine]``;
-``<lo>-<hi>`` the first and last template, counted from 0). A span is searched exactly as
-the whole catalogue's search searches it (segments planned over each stretch from the
-whole bank's longest template, PSDs from its own data, gates in its own whitening
-blocks), each sub-bank's triggers clustered per template as the whole bank's are, and the
-merge clusters across the bank where ``bank-cluster`` asks
-(:func:`~chirpsift.pipeline.cluster_across_bank`), so the merged triggers are
+Unit size: one layout unit per span of abutting files (``<t0>`` its start time, in s with
+millisecond digits), and one search unit per block of ``seconds-per-unit`` seconds of the
+span (``[engine]``; blocks counted from the span's start, ``<start>`` the block's start
+time, the last block shorter) and sub-bank of ``templates-per-unit`` templates
+(``<lo>-<hi>`` the first and last template, counted from 0). The plan follows from the
+files' headers and the bank alone, before any search unit runs.
+
+Each step is a method of :class:`~chirpsift.pipeline.streaming.CatalogueSearch`, the
+steps :func:`~chirpsift.pipeline.search_catalogue` runs in one process. The layout unit
+reads its span once (non-finite samples, then gates per stretch, both in chunks) and
+publishes the plan of the whole span as :func:`~chirpsift.pipeline.search_catalogue`
+makes it (segments planned over each whole stretch from the whole bank's longest
+template). A search unit reads the layout and only its own segments and the blocks their
+PSDs come from; a segment belongs to the block where its valid output starts, so the
+blocks share out every segment once. It publishes the kernel's peaks of its segments
+before any clustering over the stretch: that clustering keeps a peak when no louder peak
+lies within ``peak-window``, a rule that cannot be applied block by block (a peak
+suppressed within its own block may still suppress one across the block's edge), so the
+merge gathers every block's and sub-bank's peaks of a stretch and clusters and ranks
+them at once, as the search of the whole stretch does. The merged triggers are therefore
 bit-identical to one search of the whole catalogue with the whole bank, and so to an
-in-memory search of each span; memory stays bounded because a span is read block by
-block. A span with nothing long enough to search publishes empty tables whose live-time
-table says why.
+in-memory search of each span, for any block and sub-bank size. A span with nothing long
+enough to search publishes a layout without stretches and empty peak tables; the merged
+live-time table says why.
 """
 
 from __future__ import annotations
 
+import bisect
 import glob
+import json
 import os
 import re
 import warnings
@@ -58,19 +77,20 @@ from ..bank import Bank, place_bank
 from ..io import read_triggers, write_triggers
 from ..inject import draw_injections, efficiency, found_missed, injection_snr, project, sensitivity
 from ..io.atomic import write_json_atomic
-from ..io.catalogue import Catalogue, Span, read_catalogue
+from ..io.catalogue import Span, read_catalogue
 from ..network import coincidences
 from ..network.coincidence import CAUTIONS
 from ..network.far import YEAR, false_alarm_rate
-from ..pipeline import TRIGGER_DTYPE, cluster_across_bank, search_catalogue
+from ..io.vetoes import check_vetoes
+from ..pipeline.streaming import PEAK_DTYPE, CatalogueSearch
 from ..spectrum import welch
 
-__all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times", "sub_banks",
+__all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times", "sub_banks", "blocks",
            "UnitOutputError", "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
 
 #: Stages in the order they run.
-STAGES = ("bank", "search", "merge", "spectrum", "background", "candidates", "injections", "inject-search",
-          "inject-merge", "found-missed", "sensitivity", "report")
+STAGES = ("bank", "layout", "search", "merge", "spectrum", "background", "candidates", "injections", "inject-layout",
+          "inject-search", "inject-merge", "found-missed", "sensitivity", "report")
 #: Distance bins of the efficiency table.
 EFFICIENCY_BINS = 8
 #: At most this many stretches of analysed data go into a site's spectrum.
@@ -100,11 +120,14 @@ class Unit:
     site : str or None
         The site of a per-site unit.
     span : float or None
-        Start time (s) of the span a search unit covers.
+        Start time (s) of the span a layout or search unit covers.
     files : tuple of str
-        The strain files a search unit reads (its span's).
+        The strain files a layout or search unit reads (its span's).
     templates : (int, int) or None
         The templates ``lo <= k < hi`` of the bank a search unit filters.
+    block : (int, int) or None
+        The samples ``a <= k < b`` of the span where the valid output of the segments a
+        search unit filters starts (its block of time).
     """
 
     key: str
@@ -115,6 +138,7 @@ class Unit:
     span: float | None = None
     files: tuple[str, ...] = ()
     templates: tuple[int, int] | None = None
+    block: tuple[int, int] | None = None
 
 
 class UnitOutputError(ValueError):
@@ -137,6 +161,18 @@ def sub_banks(n: int, size: int) -> list[tuple[int, int]]:
     k = -(-n // size)
     edges = [round(i * n / k) for i in range(k + 1)]
     return list(zip(edges[:-1], edges[1:]))
+
+
+def blocks(n: int, size: int) -> list[tuple[int, int]]:
+    """Split ``n`` samples into consecutive ``(a, b)`` blocks of ``size``, the last shorter.
+
+    Examples
+    --------
+    >>> from chirpsift.run.stages import blocks
+    >>> blocks(10, 4)
+    [(0, 4), (4, 8), (8, 10)]
+    """
+    return [(a, min(a + size, n)) for a in range(0, n, size)]
 
 
 def _bank_size(analysis) -> int:
@@ -170,24 +206,31 @@ def plan(analysis) -> list[Unit]:
     units = [Unit("bank", "bank", ("bank.parquet",))]
     found = {n: catalogue_of(analysis.data[n]).spans for n in names}
     banks = sub_banks(_bank_size(analysis), analysis.engine.templates_per_unit)
-    starts = {n: [span.t0 for span in found[n]] for n in names}
-    files = {n: [tuple(str(f.path) for f in span.files) for span in found[n]] for n in names}
-    spans = {n: [f"{t0:.3f}" for t0 in starts[n]] for n in names}
+    seconds = analysis.engine.seconds_per_unit
 
-    def span_units(stage, prefix, after):
+    def span_units(layout, stage, prefix, after):
         out = []
         for n in names:
-            for label, t0, paths in zip(spans[n], starts[n], files[n]):
-                for lo, hi in banks:
-                    out.append(Unit(f"{stage}/{n}/{label}/{lo}-{hi - 1}", stage,
-                                    (f"{prefix}triggers/{n}/span-{label}-templates-{lo}-{hi - 1}.parquet",),
-                                    after, n, t0, paths, (lo, hi)))
+            for span in found[n]:
+                label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
+                out.append(Unit(f"{layout}/{n}/{label}", layout, (f"{prefix}layouts/{n}/span-{label}.json",),
+                                after, n, span.t0, paths))
+        for n in names:
+            for span in found[n]:
+                label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
+                size = max(1, int(round(seconds * span.sample_rate)))
+                for a, b in blocks(span.n, size):
+                    start = f"{span.t0 + a / span.sample_rate:.3f}"
+                    for lo, hi in banks:
+                        out.append(Unit(f"{stage}/{n}/{start}/{lo}-{hi - 1}", stage,
+                                        (f"{prefix}peaks/{n}/block-{start}-templates-{lo}-{hi - 1}.parquet",),
+                                        (*after, f"{layout}/{n}/{label}"), n, span.t0, paths, (lo, hi), (a, b)))
         merge = "merge" if stage == "search" else "inject-merge"
         out += [Unit(f"{merge}/{n}", merge, (f"{prefix}triggers/{n}.parquet",),
                      ("bank", *(u.key for u in out if u.site == n)), n) for n in names]
         return out
 
-    units += span_units("search", "", ("bank",))
+    units += span_units("layout", "search", "", ("bank",))
     units += [Unit(f"spectrum/{n}", "spectrum", (f"spectra/{n}.parquet",), (f"merge/{n}",), n) for n in names]
     merged = tuple(f"merge/{n}" for n in names)
     units.append(Unit("background", "background", ("background.parquet",), merged))
@@ -195,7 +238,7 @@ def plan(analysis) -> list[Unit]:
     if analysis.injections is not None:
         units.append(Unit("injections", "injections", ("injections/injections.parquet",),
                           (*merged, *(f"spectrum/{n}" for n in names))))
-        units += span_units("inject-search", "injections/", ("bank", "injections"))
+        units += span_units("inject-layout", "inject-search", "injections/", ("bank", "injections"))
         units.append(Unit("found-missed", "found-missed", ("injections/found_missed.parquet",),
                           ("injections", "background", *(f"inject-merge/{n}" for n in names))))
         units.append(Unit("sensitivity", "sensitivity", ("injections/sensitivity.json",),
@@ -323,39 +366,219 @@ def _bank(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     return {"rows": len(bank)}
 
 
-def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
-    site = unit.site
-    data = analysis.data[site]
-    whole = catalogue_of(data)
+def _span_of(analysis, folder: Path, unit: Unit):
+    """Return the span a layout or search unit reads (with the signals added for the injection stages)."""
+    whole = catalogue_of(analysis.data[unit.site])
     span = next((s for s in whole.spans if s.t0 == unit.span), None)
     if span is None:
-        raise ValueError(f"site {site}: no span of its files starts at {unit.span!r} s any more; the files changed "
-                         "during the run")
-    if unit.stage == "inject-search":
+        raise ValueError(f"site {unit.site}: no span of its files starts at {unit.span!r} s any more; the files "
+                         "changed during the run")
+    if unit.stage.startswith("inject-"):
         injections, _ = read_triggers(folder / "injections" / "injections.parquet")
-        site_obj = next(s for s in analysis.sites if s.name == site)
+        site_obj = next(s for s in analysis.sites if s.name == unit.site)
         span = _InjectedSpan(span.t0, span.sample_rate, span.files, span.offsets, span.n, injections=injections,
                              site=site_obj, f_low=analysis.search.f_low)
-    catalogue = Catalogue(files=span.files, spans=(span,), sample_rate=span.sample_rate)
-    bank = Bank.load(folder / "bank.parquet")
+    return span
+
+
+def _catalogue_search(analysis, folder: Path, sample_rate: float, templates=None) -> CatalogueSearch:
+    """Return the search's steps with the analysis's settings and the run's bank (whole, or a sub-bank)."""
     settings = analysis.search.as_dict()
     f_low = settings.pop("f_low")
-    vetoes = data.vetoes if isinstance(data.vetoes, (str, type(None))) else list(data.vetoes)
+    return CatalogueSearch(sample_rate, Bank.load(folder / "bank.parquet"), f_low=f_low, templates=templates,
+                           **settings)
+
+
+def _layout_file(prefix: str, site: str, span_t0: float) -> str:
+    return f"{prefix}layouts/{site}/span-{span_t0:.3f}.json"
+
+
+def _layout(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    span = _span_of(analysis, folder, unit)
+    search = _catalogue_search(analysis, folder, span.sample_rate)
+    vetoes = analysis.data[unit.site].vetoes
+    layout = search.find_gates(search.lay_out(span, check_vetoes(vetoes)))
+    with warnings.catch_warnings():  # the merge warns, once for the site
+        warnings.simplefilter("ignore")
+        search.check_layouts([layout], allow_empty=True)
+    doc = {"table": "layout", "site": unit.site, "files": list(unit.files), **layout.as_dict()}
+    write_json_atomic(folder / unit.outputs[0], doc)
+    return {"stretches": len(layout.stretches), "segments": sum(len(s.plans) for s in layout.stretches)}
+
+
+def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    from ..pipeline.single_site import progress_bar
+
+    span = _span_of(analysis, folder, unit)
+    search = _catalogue_search(analysis, folder, span.sample_rate, unit.templates)
+    prefix = "injections/" if unit.stage == "inject-search" else ""
+    doc = json.loads((folder / _layout_file(prefix, unit.site, span.t0)).read_text(encoding="utf-8"))
+    layout = search.layout_from_dict(span, doc)
+    bar = None
+    if progress:
+        chosen = search.block_plans(layout, unit.block)
+        bar = progress_bar([s._replace(plans=p) for s, p in zip(layout.stretches, chosen)], search.sub)
+    try:
+        done = search.filter(layout, block=unit.block, bar=bar)
+    finally:
+        if bar is not None:
+            bar.close()
+    peaks = np.concatenate(done.peaks) if done.peaks else np.zeros(0, dtype=PEAK_DTYPE)
+    fs = span.sample_rate
+    write_triggers(folder / unit.outputs[0], peaks, {
+        "table": "peaks",
+        "site": unit.site,
+        "span": [span.t0, span.end],
+        "block": [span.t0 + unit.block[0] / fs, span.t0 + unit.block[1] / fs],
+        "templates": list(unit.templates),
+        "rows": [int(len(p)) for p in done.peaks],  # per stretch of the layout, in order
+        "segments": done.segments,
+        "samples_read": done.samples_read,
+        "largest_block": done.largest,
+    })
+    return {"rows": int(len(peaks))}
+
+
+_PEAK_SCHEMA = [(name, str(np.dtype(PEAK_DTYPE[name]))) for name in PEAK_DTYPE.names]
+_UNIT_OUTPUT = re.compile(r"^(?P<stage>[a-z-]+)/(?P<site>[^/]+)/(?P<start>[^/]+)/(?P<lo>\d+)-(?P<last>\d+)$")
+_LAYOUT_KEY = re.compile(r"^(?P<stage>[a-z-]+)/(?P<site>[^/]+)/(?P<span>[^/]+)$")
+
+
+def _unit_file(prefix: str, key: str) -> str:
+    """Return the file a layout or search unit publishes, from its key."""
+    m = _UNIT_OUTPUT.match(key)
+    if m is None:
+        m = _LAYOUT_KEY.match(key)
+        return f"{prefix}layouts/{m['site']}/span-{m['span']}.json"
+    return f"{prefix}peaks/{m['site']}/block-{m['start']}-templates-{m['lo']}-{m['last']}.parquet"
+
+
+def _check_unit_files(folder: Path, unit: Unit, prefix: str, upstream) -> tuple[dict, list]:
+    """Every planned unit of a merge, present once and valid, or a UnitOutputError naming the rest.
+
+    Valid: a layout that reads as JSON; a block's peaks with a readable Parquet footer,
+    the peak table's columns and the row count the manifest recorded (when ``upstream``
+    holds the manifest's entries). Returns the layouts (key to document) and the blocks'
+    ``(key, path)`` in plan order.
+    """
+    import pyarrow.parquet as pq
+
+    keys = [k for k in unit.after if k != "bank"]
+    layouts, found, problems = {}, [], []
+    for key in keys:
+        rel = next(iter(upstream[key]["files"])) if upstream and key in upstream else _unit_file(prefix, key)
+        path = folder / rel
+        if rel.endswith(".json"):
+            try:
+                doc = json.loads(path.read_text(encoding="utf-8"))
+                doc["stretches"], doc["gates"]
+                layouts[key] = doc
+            except FileNotFoundError:
+                problems.append(f"{key}: {rel} is missing")
+            except (OSError, ValueError, KeyError, TypeError, UnicodeDecodeError):
+                problems.append(f"{key}: {rel} is not a readable layout")
+            continue
+        try:
+            meta = pq.read_metadata(path)
+            schema = meta.schema.to_arrow_schema()
+        except FileNotFoundError:
+            problems.append(f"{key}: {rel} is missing")
+            continue
+        except (OSError, ValueError) as exc:  # pyarrow's ArrowInvalid is a ValueError
+            problems.append(f"{key}: {rel} has no readable Parquet footer ({str(exc).splitlines()[0]})")
+            continue
+        if [(f.name, str(f.type)) for f in schema] != _expected_columns():
+            problems.append(f"{key}: {rel} does not hold the peak table's columns")
+            continue
+        rows = upstream[key].get("rows") if upstream and key in upstream else None
+        if rows is not None and meta.num_rows != rows:
+            problems.append(f"{key}: {rel} holds {meta.num_rows} rows, the manifest recorded {rows}")
+            continue
+        found.append((key, path))
+    planned = {Path(_unit_file(prefix, k)).name for k in keys}
+    for sub in ("peaks", "layouts"):
+        site_folder = folder / f"{prefix}{sub}" / unit.site
+        stray = sorted(p.name for p in site_folder.iterdir() if p.is_file() and not p.name.startswith(".")
+                       and p.name not in planned) if site_folder.is_dir() else []
+        if stray:
+            problems.append(f"{len(stray)} file(s) in {site_folder} belong to no planned unit "
+                            f"({', '.join(stray[:3])}); they would be read with the site's results by a dataset "
+                            "reader: remove them")
+    if problems:
+        raise UnitOutputError(f"{unit.key}: {len(problems)} problem(s) with the units it merges: "
+                              + "; ".join(problems[:10]) + ("; ..." if len(problems) > 10 else "")
+                              + "; run the same command again to redo them")
+    return layouts, found
+
+
+def _expected_columns() -> list[tuple[str, str]]:
+    """Column names and Arrow types of a published peak table."""
+    import pyarrow as pa
+
+    return [(name, str(pa.from_numpy_dtype(np.dtype(kind)))) for name, kind in _PEAK_SCHEMA]
+
+
+def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) -> dict:
+    prefix = "injections/" if unit.stage == "inject-merge" else ""
+    docs, found = _check_unit_files(folder, unit, prefix, upstream)
+    catalogue = catalogue_of(analysis.data[unit.site])
+    search = _catalogue_search(analysis, folder, catalogue.sample_rate)
+    spans = {f"{span.t0:.3f}": span for span in catalogue.spans}
+    starts = [span.t0 for span in catalogue.spans]
+    by_span: dict[float, list] = {}
+    for key, path in found:  # plan order: blocks in time, sub-banks in template order
+        k = max(0, bisect.bisect_right(starts, float(key.split("/")[2]) + 5e-4) - 1)
+        by_span.setdefault(starts[k], []).append((key, path))
+    layouts, ranked = [], []
+    for key, doc in docs.items():
+        label = key.split("/")[2]
+        span = spans.get(label)
+        if span is None:
+            raise UnitOutputError(f"{unit.key}: no span of the site's files starts at {label} s any more: its files "
+                                  "changed during the run; run the same command again")
+        try:
+            layout = search.layout_from_dict(span, doc)
+        except ValueError as exc:
+            raise UnitOutputError(f"{unit.key}: {key}: {exc}; run the same command again") from None
+        parts: list[list] = [[] for _ in layout.stretches]
+        covered: dict[tuple, list] = {}
+        for bkey, path in by_span.get(span.t0, []):
+            table, meta = read_triggers(path)
+            rows = meta.get("rows", [])
+            if meta.get("span", [None])[0] != span.t0 or len(rows) != len(layout.stretches) or sum(rows) != len(table):
+                raise UnitOutputError(f"{unit.key}: {bkey}: its peaks do not fit the layout of the span from {label} "
+                                      "s; run the same command again")
+            edges = np.cumsum([0, *rows])
+            for k in range(len(rows)):
+                parts[k].append(table[edges[k]:edges[k + 1]])
+            done = covered.setdefault(tuple(meta["templates"]), [0] * len(rows))
+            for k, count in enumerate(meta["segments"]):
+                done[k] += count
+        expected = [len(s.plans) for s in layout.stretches]
+        for templates, done in covered.items():
+            if done != expected:
+                raise UnitOutputError(f"{unit.key}: the blocks of templates {templates[0]}-{templates[1] - 1} of the "
+                                      f"span from {label} s filtered {sum(done)} segments of its {sum(expected)}; "
+                                      "run the same command again")
+        layouts.append(layout)
+        ranked.append([search.rank(p) for p in parts])
+    if not layouts:  # an empty bank: the bank unit has already failed
+        raise UnitOutputError(f"{unit.key}: no search unit to merge")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        triggers, info = search_catalogue(catalogue, bank, f_low=f_low, vetoes=vetoes, progress=progress,
-                                          allow_empty=True, templates=unit.templates, **settings)
-    table = info["live_time_table"]
+        search.check_layouts(layouts, allow_empty=True)
+        search.check_gates(layouts, allow_empty=True)
+        triggers, info = search.finish(catalogue, layouts, ranked)
     meta = {
         "table": "triggers",
-        "site": site,
-        "span": [span.t0, span.end],
+        "site": unit.site,
+        "spans": [[p.span.t0, p.span.end] for p in layouts],
         "files": [str(f.path) for f in catalogue.files],
         "settings": info["settings"],
         "analysed": info["analysed"],
         "live_time": info["live_time"],
         "analysed_fraction": info["analysed_fraction"],
-        "live_time_table": table.as_dict(),
+        "live_time_table": info["live_time_table"].as_dict(),
         "gates": info["gates"],
         "gated_time": info["gated_time"],
         "excluded": info["excluded"],
@@ -367,143 +590,12 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
         "segment_duration": info["segment_duration"],
         "sample_rate": info["sample_rate"],
         "templates": info["templates"],
-        "template_range": info["template_range"],
+        "units": len(found),
         "max_template_duration": info["max_template_duration"],
         "warnings": [f"{w.category.__name__}: {w.message}" for w in caught],
     }
     write_triggers(folder / unit.outputs[0], triggers, meta)
     return {"rows": int(len(triggers)), "live_time": float(info["live_time"])}
-
-
-_TRIGGER_SCHEMA = [(name, str(np.dtype(TRIGGER_DTYPE[name]))) for name in TRIGGER_DTYPE.names]
-_UNIT_OUTPUT = re.compile(r"^(?P<stage>[a-z-]+)/(?P<site>[^/]+)/(?P<span>[^/]+)/(?P<lo>\d+)-(?P<last>\d+)$")
-
-
-def _unit_file(prefix: str, key: str) -> str:
-    """Return the file a search unit publishes, from its key."""
-    m = _UNIT_OUTPUT.match(key)
-    return f"{prefix}triggers/{m['site']}/span-{m['span']}-templates-{m['lo']}-{m['last']}.parquet"
-
-
-def _check_unit_files(folder: Path, unit: Unit, prefix: str, upstream) -> list[tuple[str, Path]]:
-    """Every planned search unit of a merge, present once and valid, or a UnitOutputError naming the rest.
-
-    Valid: a readable Parquet footer, the trigger table's columns and types, and the row
-    count the manifest recorded (when ``upstream`` holds the manifest's entries).
-    """
-    import pyarrow.parquet as pq
-
-    keys = [k for k in unit.after if k != "bank"]
-    found, problems = [], []
-    for key in keys:
-        rel = next(iter(upstream[key]["files"])) if upstream and key in upstream else _unit_file(prefix, key)
-        path = folder / rel
-        try:
-            meta = pq.read_metadata(path)
-            schema = meta.schema.to_arrow_schema()
-        except FileNotFoundError:
-            problems.append(f"{key}: {rel} is missing")
-            continue
-        except (OSError, ValueError) as exc:  # pyarrow's ArrowInvalid is a ValueError
-            problems.append(f"{key}: {rel} has no readable Parquet footer ({str(exc).splitlines()[0]})")
-            continue
-        if [(f.name, str(f.type)) for f in schema] != _expected_columns():
-            problems.append(f"{key}: {rel} does not hold the trigger table's columns")
-            continue
-        rows = upstream[key].get("rows") if upstream and key in upstream else None
-        if rows is not None and meta.num_rows != rows:
-            problems.append(f"{key}: {rel} holds {meta.num_rows} rows, the manifest recorded {rows}")
-            continue
-        found.append((key, path))
-    site_folder = folder / f"{prefix}triggers" / unit.site
-    planned = {p.name for _, p in found} | {Path(_unit_file(prefix, k)).name for k in keys}
-    stray = sorted(p.name for p in site_folder.glob("*.parquet") if p.name not in planned) \
-        if site_folder.is_dir() else []
-    if stray:
-        problems.append(f"{len(stray)} file(s) in {site_folder} belong to no planned unit ({', '.join(stray[:3])}); "
-                        "they would be read with the site's results by a dataset reader: remove them")
-    if problems:
-        raise UnitOutputError(f"{unit.key}: {len(problems)} problem(s) with the units it merges: "
-                              + "; ".join(problems[:10]) + ("; ..." if len(problems) > 10 else "")
-                              + "; run the same command again to redo them")
-    return found
-
-
-def _expected_columns() -> list[tuple[str, str]]:
-    """Column names and Arrow types of a published trigger table."""
-    import pyarrow as pa
-
-    return [(name, str(pa.from_numpy_dtype(np.dtype(kind)))) for name, kind in _TRIGGER_SCHEMA]
-
-
-def _same(metas, key):
-    first = metas[0][key]
-    return all(m[key] == first for m in metas[1:])
-
-
-def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) -> dict:
-    prefix = "injections/" if unit.stage == "inject-merge" else ""
-    found = _check_unit_files(folder, unit, prefix, upstream)
-    by_span: dict[str, list] = {}
-    for key, path in found:  # plan order: spans in time, sub-banks in template order
-        by_span.setdefault(key.split("/")[2], []).append(read_triggers(path))
-    catalogue = catalogue_of(analysis.data[unit.site])
-    peak_window = analysis.search.peak_window
-    metas, tables = [], []
-    for label, parts in by_span.items():
-        span_metas = [m for _, m in parts]
-        for k in ("span", "analysed", "stretches", "gates", "live_time_table"):
-            if not _same(span_metas, k):
-                raise UnitOutputError(f"{unit.key}: the units of the span from {label} s disagree on {k!r}: its "
-                                      "files changed during the run; run the same command again")
-        union = np.concatenate([t for t, _ in parts])
-        stretches = [(s["start"], s["stop"]) for s in span_metas[0]["stretches"]]
-        if analysis.search.bank_cluster:
-            tables.append(cluster_across_bank(union, stretches, peak_window))
-        else:  # the order of the whole bank's search: time, then template
-            tables.append(union[np.lexsort((union["template"], union["time"]))])
-        metas.append(span_metas[0])
-    triggers = np.concatenate(tables) if tables else np.zeros(0, dtype=TRIGGER_DTYPE)
-    if not metas:  # an empty bank: the bank unit has already failed
-        raise UnitOutputError(f"{unit.key}: no search unit to merge")
-    tables = [m["live_time_table"] for m in metas]
-    seconds = {c: float(sum(t["seconds"][c] for t in tables)) for c in tables[0]["seconds"]}
-    intervals = {c: [iv for t in tables for iv in t["intervals"][c]] for c in tables[0]["intervals"]}
-    seconds["gap"] = float(sum(b - a for a, b in catalogue.gaps))
-    intervals["gap"] = [list(g) for g in catalogue.gaps]
-    live_time = float(sum(m["live_time"] for m in metas))
-
-    def joined(key):
-        return [x for m in metas for x in m[key]]
-
-    meta = {
-        "table": "triggers",
-        "site": unit.site,
-        "spans": [m["span"] for m in metas],
-        "files": joined("files"),
-        "settings": metas[0]["settings"],
-        "analysed": joined("analysed"),
-        "live_time": live_time,
-        "analysed_fraction": live_time / catalogue.covered,
-        "live_time_table": {"start": catalogue.start, "end": catalogue.end, "seconds": seconds,
-                            "intervals": intervals},
-        "gates": joined("gates"),
-        "gated_time": float(sum(m["gated_time"] for m in metas)),
-        "excluded": joined("excluded"),
-        "vetoed": joined("vetoed"),
-        "gaps": catalogue.gaps,
-        "short_stretches": joined("short_stretches"),
-        "stretches": joined("stretches"),
-        "segments": int(sum(m["segments"] for m in metas)),
-        "segment_duration": max(m["segment_duration"] for m in metas),
-        "sample_rate": metas[0]["sample_rate"],
-        "templates": metas[0]["templates"],
-        "units": len(found),
-        "max_template_duration": metas[0]["max_template_duration"],
-        "warnings": [f"span from {m['span'][0]!r} s: {w}" for m in metas for w in m["warnings"]],
-    }
-    write_triggers(folder / unit.outputs[0], triggers, meta)
-    return {"rows": int(len(triggers)), "live_time": live_time}
 
 
 def _spectrum_chunks(analysed, length: float) -> list[tuple[float, float]]:
@@ -692,7 +784,8 @@ def _report(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     return {}
 
 
-_RUNNERS = {"bank": _bank, "search": _search, "merge": _merge, "spectrum": _spectrum, "background": _background,
+_RUNNERS = {"bank": _bank, "layout": _layout, "inject-layout": _layout, "search": _search, "merge": _merge,
+            "spectrum": _spectrum, "background": _background,
             "candidates": _candidates, "injections": _injections, "inject-search": _search,
             "inject-merge": _merge, "found-missed": _found_missed, "sensitivity": _sensitivity, "report": _report}
 
