@@ -544,6 +544,11 @@ def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) ->
         covered: dict[tuple, list] = {}
         for bkey, path in by_span.get(span.t0, []):
             table, meta = read_triggers(path)
+            m = _UNIT_OUTPUT.match(bkey)
+            block, templates = meta.get("block", [None])[0], meta.get("templates")
+            if block is None or f"{block:.3f}" != m["start"] or templates != [int(m["lo"]), int(m["last"]) + 1]:
+                raise UnitOutputError(f"{unit.key}: {bkey}: its file holds the peaks of another unit (block from "
+                                      f"{block!r} s, templates {templates}); run the same command again")
             rows = meta.get("rows", [])
             if meta.get("span", [None])[0] != span.t0 or len(rows) != len(layout.stretches) or sum(rows) != len(table):
                 raise UnitOutputError(f"{unit.key}: {bkey}: its peaks do not fit the layout of the span from {label} "
