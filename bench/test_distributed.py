@@ -1,8 +1,9 @@
 """Scale-out of ``chirpsift run``: 2 Dask worker processes of 1 thread against 1 in-process thread.
 
-One run measures, on the same analysis and the same units (the search stage: two sites,
-one span each, a bank of binary-neutron-star templates split into sub-banks of the
-default ``templates-per-unit``):
+One run measures, on the same analysis and the same units (the layout and search stages:
+two sites, one span each, laid out once per span, a bank of binary-neutron-star templates
+split into sub-banks of the default ``templates-per-unit``, one block of time per span at
+the default ``seconds-per-unit``):
 
 - the throughput ratio: in-process time at 1 thread over the time of a ``LocalCluster``
   of 2 worker processes x 1 thread (target >= 1.8; the cluster's start, in which each
@@ -16,7 +17,8 @@ default ``templates-per-unit``):
   number the README's core-hour estimate scales.
 
 Both runs must publish the same bytes (checked). The machine is shared: run it once,
-``python bench/test_distributed.py`` (add ``--quick`` for a quarter of the data), or
+``python bench/test_distributed.py`` (add ``--quick`` for a quarter of the data, and
+``--seconds-per-unit 128`` to split each span into blocks of time), or
 ``pytest bench/test_distributed.py --benchmark-only``.
 """
 
@@ -42,7 +44,7 @@ SITES = ("Kestrel", "Heron")
 SIZES = {"quick": (256.0, 512), "full": (512.0, 1024)}
 
 
-def _scenario(folder: Path, seconds: float, templates: int) -> tuple[Path, Path]:
+def _scenario(folder: Path, seconds: float, templates: int, block: float | None = None) -> tuple[Path, Path]:
     from chirpsift.benchmarks.banks import component_mass_bank
     from chirpsift.network import EXAMPLE_SITES
     from chirpsift.synthetic import colored_gaussian_noise
@@ -55,10 +57,12 @@ def _scenario(folder: Path, seconds: float, templates: int) -> tuple[Path, Path]
     (folder / "sites.toml").write_text(Path(EXAMPLE_SITES).read_text())
     data = "".join(f'[data.{s}]\nfiles = "{s}/*.npz"\n\n' for s in SITES)
     common = f'[sites]\nfile = "sites.toml"\n\n{data}[bank]\nfile = "bank.parquet"\n\n[search]\nf-low = {F_LOW}\n'
+    blocks = "" if block is None else f"seconds-per-unit = {block}\n"
     one = folder / "in-process.toml"
-    one.write_text(f'output = "in-process"\n{common}\n[engine]\nthreads-per-worker = 1\n')
+    one.write_text(f'output = "in-process"\n{common}\n[engine]\nthreads-per-worker = 1\n{blocks}')
     two = folder / "local.toml"
-    two.write_text(f'output = "local"\n{common}\n[engine]\nkind = "local"\nworkers = 2\nthreads-per-worker = 1\n')
+    two.write_text(f'output = "local"\n{common}\n[engine]\nkind = "local"\nworkers = 2\nthreads-per-worker = 1\n'
+                   f'{blocks}')
     return one, two
 
 
@@ -66,14 +70,14 @@ def _outputs(folder: Path) -> dict:
     return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
 
 
-def run(size: str = "full", folder: str | None = None) -> dict:
-    """Measure; return the numbers of the module docstring."""
+def run(size: str = "full", folder: str | None = None, block: float | None = None) -> dict:
+    """Measure; return the numbers of the module docstring (``block``: seconds-per-unit, default the default)."""
     from chirpsift.distributed import make_client
     from chirpsift.run import load_analysis, run_analysis
 
     seconds, templates = SIZES[size]
     root = Path(folder or tempfile.mkdtemp(prefix="chirpsift-bench-"))
-    one, two = _scenario(root, seconds, templates)
+    one, two = _scenario(root, seconds, templates, block)
     a1, a2 = load_analysis(one), load_analysis(two)
     run_analysis(a1, stop_after="bank")
     run_analysis(a2, stop_after="bank")
@@ -88,20 +92,22 @@ def run(size: str = "full", folder: str | None = None) -> dict:
         t2 = time.perf_counter() - t
     finally:
         close()
-    units = [k for k in r2.ran if k.startswith("search/")]
+    units = [k for k in r2.ran if k.startswith(("layout/", "search/"))]
     compute = sum(r2.seconds[k] for k in units)
     mean = compute / len(units)
     same = _outputs(root / "in-process") == {k: v for k, v in _outputs(root / "local").items()}
     out = {
         "size": size, "seconds_per_site": seconds, "templates": templates, "sample_rate": FS, "f_low": F_LOW,
-        "templates_per_unit": a2.engine.templates_per_unit, "units": len(units),
+        "templates_per_unit": a2.engine.templates_per_unit, "seconds_per_unit": a2.engine.seconds_per_unit,
+        "units": len(units), "search_units": sum(k.startswith("search/") for k in units),
         "in_process_1_thread_s": t1, "local_2x1_s": t2, "throughput_ratio": t1 / t2,
         "mean_unit_compute_s": mean, "overhead_per_unit_s": (2 * t2 - compute) / len(units),
         "overhead_ratio": (2 * t2 - compute) / len(units) / mean,
         "bytes_sent_per_unit": float(np.mean([r2.sent[k] for k in units])),
         "bytes_received_per_unit": float(np.mean([r2.received[k] for k in units])),
+        "layout_s": float(sum(r1.seconds[k] for k in r1.ran if k.startswith("layout/"))),
         "template_seconds_per_second_1_thread": templates * seconds * len(SITES) / sum(
-            r1.seconds[k] for k in r1.ran if k.startswith("search/")),
+            r1.seconds[k] for k in r1.ran if k.startswith(("layout/", "search/"))),
         "identical_outputs": same,
         "load_average": os.getloadavg()[0],
     }
@@ -123,6 +129,8 @@ def test_two_worker_processes_against_one_thread(benchmark, tmp_path, size):
 if __name__ == "__main__":
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="a quarter of the data and half the templates")
+    parser.add_argument("--seconds-per-unit", type=float, default=None,
+                        help="blocks of time per search unit (default: the [engine] default, one block per span here)")
     args = parser.parse_args()
-    print(json.dumps(run("quick" if args.quick else "full"), indent=2))
+    print(json.dumps(run("quick" if args.quick else "full", block=args.seconds_per_unit), indent=2))
     sys.exit(0)
