@@ -377,8 +377,8 @@ class CatalogueSearch:
     def check_gates(self, layouts, *, allow_empty=False, stacklevel=2) -> None:
         """Warn (:class:`GatingWarning`) when gates take analysed time.
 
-        A gating that leaves nothing live is refused, unless ``allow_empty`` and nothing
-        is live to begin with.
+        A gating that leaves nothing live is refused, unless ``allow_empty`` (then
+        nothing is said: the live-time table tells).
         """
         base, numbered, numbered_gates = 0, [], []
         for p in layouts:  # one numbering of all spans' samples, for the check over the whole search
