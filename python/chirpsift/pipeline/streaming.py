@@ -390,7 +390,7 @@ class CatalogueSearch:
         region = [(s.start + pads[0], s.stop - pads[1]) for s in numbered]
         if not allow_empty or subtract_intervals(region, numbered_gates):
             live_after_gates(numbered, pads, numbered_gates, self.settings, self.sample_rate,
-                             stacklevel=stacklevel + 1)
+                             stacklevel=stacklevel + 2)
 
     # --- 3. filtering ---
     def filter(self, layout: SpanLayout, block=None, bar=None) -> "Filtered":
