@@ -244,3 +244,19 @@ def test_a_block_file_of_another_unit_is_named_by_the_merge(blocked):
     with pytest.raises(UnitOutputError, match=rf"merge/Kestrel: search/Kestrel/{T0 + 3 * BLOCK:.3f}/0-1: its file "
                                               rf"holds the peaks of another unit \(block from {T0 + 4 * BLOCK!r} s"):
         execute(merge, analysis)
+
+
+def test_a_merge_planned_before_the_files_changed_names_the_change(blocked):
+    from chirpsift.run.stages import UnitOutputError, execute
+
+    folder, path, _, _ = blocked
+    analysis = load_analysis(path)
+    merge = next(u for u in plan(analysis) if u.key == "merge/Kestrel")
+    extra = folder / "kestrel" / "kestrel-9.npz"  # a new file after a gap: a span no layout covers
+    np.savez(extra, strain=np.zeros(int(10 * FS)), sample_rate=FS, t0=T0 + 1000.0)
+    try:
+        with pytest.raises(UnitOutputError, match="merge/Kestrel: the layouts cover 1 of the 2 spans of the site's "
+                                                  "files: its files changed during the run"):
+            execute(merge, analysis)
+    finally:
+        extra.unlink()

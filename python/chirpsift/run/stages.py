@@ -567,8 +567,10 @@ def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) ->
                                       "run the same command again")
         layouts.append(layout)
         ranked.append([search.rank(p) for p in parts])
-    if not layouts:  # an empty bank: the bank unit has already failed
-        raise UnitOutputError(f"{unit.key}: no search unit to merge")
+    laid_out = {p.span.t0 for p in layouts}
+    if not layouts or laid_out != set(starts):  # the plan was made from other files
+        raise UnitOutputError(f"{unit.key}: the layouts cover {len(laid_out)} of the {len(starts)} spans of the "
+                              "site's files: its files changed during the run; run the same command again")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         search.check_layouts(layouts, allow_empty=True)
