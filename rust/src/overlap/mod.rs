@@ -172,6 +172,25 @@ fn extent<H: AsComplex64>(
     k_lo: usize,
     k_hi: usize,
 ) -> std::result::Result<(usize, usize, f64), usize> {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the feature the function enables was detected just above.
+            return unsafe { avx2::extent(h, w, k_lo, k_hi) };
+        }
+    }
+    extent_lanes(h, w, k_lo, k_hi)
+}
+
+/// [`extent`]'s arithmetic, inlined into each caller so that each compiles it for its
+/// own instruction set (the same operations in the same order: the same bits).
+#[inline(always)]
+fn extent_lanes<H: AsComplex64>(
+    h: &[H],
+    w: &[f64],
+    k_lo: usize,
+    k_hi: usize,
+) -> std::result::Result<(usize, usize, f64), usize> {
     let (h, w) = (&h[k_lo..k_hi], &w[k_lo..k_hi]);
     let power = |k: usize| h[k].c64().norm_sqr() * w[k];
     let mut lanes = [0.0f64; 4];
@@ -200,6 +219,51 @@ fn extent<H: AsComplex64>(
             Ok((k_lo + first, k_lo + last, norm))
         }
         None => Ok((k_hi, k_hi, norm)),
+    }
+}
+
+/// `out_k = x_k y_k* w_k scale`.
+fn weighted_product<H: AsComplex64>(out: &mut [Complex64], x: &[H], y: &[H], w: &[f64], scale: f64) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the feature the function enables was detected just above.
+            return unsafe { avx2::weighted_product(out, x, y, w, scale) };
+        }
+    }
+    weighted_product_lanes(out, x, y, w, scale)
+}
+
+#[inline(always)]
+fn weighted_product_lanes<H: AsComplex64>(out: &mut [Complex64], x: &[H], y: &[H], w: &[f64], scale: f64) {
+    for (((v, a), b), &wk) in out.iter_mut().zip(x).zip(y).zip(w) {
+        *v = a.c64() * b.c64().conj() * (wk * scale);
+    }
+}
+
+/// The row scan and the product compiled for AVX2 (no fused multiply-adds: the
+/// results are those of the portable code, bit for bit).
+#[cfg(target_arch = "x86_64")]
+mod avx2 {
+    use super::{extent_lanes, weighted_product_lanes, AsComplex64, Complex64};
+
+    /// # Safety
+    /// The processor must have AVX2.
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn extent<H: AsComplex64>(
+        h: &[H],
+        w: &[f64],
+        k_lo: usize,
+        k_hi: usize,
+    ) -> std::result::Result<(usize, usize, f64), usize> {
+        extent_lanes(h, w, k_lo, k_hi)
+    }
+
+    /// # Safety
+    /// The processor must have AVX2.
+    #[target_feature(enable = "avx2")]
+    pub unsafe fn weighted_product<H: AsComplex64>(out: &mut [Complex64], x: &[H], y: &[H], w: &[f64], scale: f64) {
+        weighted_product_lanes(out, x, y, w, scale)
     }
 }
 
@@ -274,10 +338,7 @@ pub fn matches<H: AsComplex64>(
             let mut s = pool.take();
             let (r1, r2) = (&h1[i * n_freq..], &h2[j * n_freq..]);
             let scale = 1.0 / (e1[i].2 * e2[j].2).sqrt();
-            let (r1, r2, wk) = (&r1[a..b], &r2[a..b], &inv_psd[a..b]);
-            for (((v, x), y), &wk) in s.products(b - a).iter_mut().zip(r1).zip(r2).zip(wk) {
-                *v = x.c64() * y.c64().conj() * (wk * scale);
-            }
+            weighted_product(s.products(b - a), &r1[a..b], &r2[a..b], &inv_psd[a..b], scale);
             peak_modulus(&mut s, b - a).min(1.0)
         })
         .collect();

@@ -49,7 +49,12 @@ fn block(start: usize, m: usize, l: usize, t: f64) -> Block {
     let w = 2.0 * PI / l as f64;
     let k0 = start as f64 - centre(m);
     let k = [k0, k0 + 1.0, k0 + 2.0, k0 + 3.0];
-    Block { w, rot: k.map(|kj| Complex64::from_polar(1.0, w * kj * t)), k, step: Complex64::from_polar(1.0, 4.0 * w * t) }
+    // one sine and cosine per block: the other lanes are a bin's rotation further on
+    let one = Complex64::from_polar(1.0, w * t);
+    let r0 = Complex64::from_polar(1.0, w * k0 * t);
+    let (r1, r2) = (r0 * one, r0 * (one * one));
+    let rot = [r0, r1, r2, r1 * (one * one)];
+    Block { w, rot, k, step: (one * one) * (one * one) }
 }
 
 /// Adds the lanes in a fixed order and turns the sums of `x q` and `x q^2` into
