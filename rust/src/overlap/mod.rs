@@ -127,7 +127,7 @@ pub fn peak_modulus(scratch: &mut Scratch, m: usize) -> f64 {
         };
         let mut moved = false;
         while step.abs() >= CONVERGED {
-                    let (z1, e1, e2) = sums::direct_sums(re, im, l, t + step);
+            let (z1, e1, e2) = sums::direct_sums(re, im, l, t + step);
             if z1.norm() > value {
                 (t, z0, d1, d2, value, moved) = (t + step, z1, e1, e2, z1.norm(), true);
                 break;
