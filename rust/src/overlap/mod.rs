@@ -561,6 +561,28 @@ mod tests {
     }
 
     #[test]
+    fn dispatched_scan_and_product_equal_the_portable_ones_bit_for_bit() {
+        use num_complex::Complex32;
+        let (df, n, f_low) = (0.125, 16385, 30.0);
+        let w: Vec<f64> = (0..n).map(|k| 1.0 + (k % 7) as f64).collect();
+        let (h1, h2) = (template(10.0, 10.0, df, n, f_low), template(11.0, 9.5, df, n, f_low));
+        let h32: Vec<Complex32> = h2.iter().map(|v| Complex32::new(v.re as f32, v.im as f32)).collect();
+        for (lo, hi) in [(240, 1761), (241, 1762), (0, n), (300, 303)] {
+            assert_eq!(extent(&h1, &w, lo, hi), extent_lanes(&h1, &w, lo, hi));
+            assert_eq!(extent(&h32, &w, lo, hi), extent_lanes(&h32, &w, lo, hi));
+            let zero = Complex64::new(0.0, 0.0);
+            let (mut a, mut b) = (vec![zero; hi - lo], vec![zero; hi - lo]);
+            weighted_product(&mut a, &h1[lo..hi], &h2[lo..hi], &w[lo..hi], 0.3);
+            weighted_product_lanes(&mut b, &h1[lo..hi], &h2[lo..hi], &w[lo..hi], 0.3);
+            assert_eq!(a, b);
+        }
+        // a non-finite bin is found and named
+        let mut bad = h1.clone();
+        bad[500] = Complex64::new(f64::NAN, 0.0);
+        assert_eq!(extent(&bad, &w, 240, 1761), Err(500));
+    }
+
+    #[test]
     fn shifted_rotated_copy_matches_one() {
         let (df, n, f_low) = (0.125, 16385, 30.0);
         let w = vec![1.0; n];
