@@ -59,9 +59,12 @@ def match(h1, h2, psd, df, f_low, f_high=None):
     outside the pair's common band, so the transform is a complex one sized to that
     band (shifting the band to zero frequency changes only the phase of the series).
     The grid maximum is refined with a parabola and Newton steps on the exactly
-    summed series, so a copy of a template shifted by any time and phase matches it
-    to 1 within 1e-6. Threads split over pairs; the result does not depend on the
-    thread count.
+    summed series and its two derivatives; once a step is below 3e-3 samples the
+    step's quadratic model gives the peak value. A copy of a template shifted by any
+    time and phase matches it to 1 within 1e-6. Threads split over pairs; the result
+    does not depend on the thread count. The exact sums use AVX2 and FMA where the
+    processor has them (as the FFT library does), so the last bits may differ
+    between processors.
 
     References
     ----------
