@@ -305,35 +305,40 @@ const GRID_CHUNK: usize = 1 << 14;
 /// If `freqs` is empty or shorter than `psd`.
 pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f64> {
     let mut out = vec![f64::INFINITY; n_freq];
-    let last = freqs.len() - 1;
-    out.par_chunks_mut(GRID_CHUNK).enumerate().for_each(|(c, chunk)| {
-        let k0 = c * GRID_CHUNK;
-        // The last node at or below the chunk's first frequency, where a walk from
-        // bin 0 would stand on reaching it.
-        let mut i = freqs
-            .partition_point(|&f| f <= k0 as f64 * df)
-            .saturating_sub(1)
-            .min(last);
-        for (j, o) in chunk.iter_mut().enumerate() {
-            let f = (k0 + j) as f64 * df;
-            if f < freqs[0] || f > freqs[last] {
-                continue;
-            }
-            while i < last && freqs[i + 1] <= f {
-                i += 1;
-            }
-            if freqs[i] == f {
-                *o = psd[i];
-                continue;
-            }
-            let (a, b) = (psd[i], psd[i + 1]);
-            if a.is_finite() && b.is_finite() {
-                let w = (f - freqs[i]) / (freqs[i + 1] - freqs[i]);
-                *o = a + w * (b - a);
-            }
-        }
-    });
+    out.par_chunks_mut(GRID_CHUNK)
+        .enumerate()
+        .for_each(|(c, chunk)| grid_chunk(freqs, psd, df, c * GRID_CHUNK, chunk));
     out
+}
+
+/// Bins `k0..k0 + out.len()` of [`psd_to_grid`] into `out` (every bin written).
+fn grid_chunk(freqs: &[f64], psd: &[f64], df: f64, k0: usize, out: &mut [f64]) {
+    let last = freqs.len() - 1;
+    // The last node at or below the chunk's first frequency, where a walk from bin 0
+    // would stand on reaching it.
+    let mut i = freqs
+        .partition_point(|&f| f <= k0 as f64 * df)
+        .saturating_sub(1)
+        .min(last);
+    for (j, o) in out.iter_mut().enumerate() {
+        *o = f64::INFINITY;
+        let f = (k0 + j) as f64 * df;
+        if f < freqs[0] || f > freqs[last] {
+            continue;
+        }
+        while i < last && freqs[i + 1] <= f {
+            i += 1;
+        }
+        if freqs[i] == f {
+            *o = psd[i];
+            continue;
+        }
+        let (a, b) = (psd[i], psd[i + 1]);
+        if a.is_finite() && b.is_finite() {
+            let w = (f - freqs[i]) / (freqs[i + 1] - freqs[i]);
+            *o = a + w * (b - a);
+        }
+    }
 }
 
 /// Inverse spectrum truncation (Allen et al. 2012, arXiv:gr-qc/0509116): limit the
@@ -343,24 +348,39 @@ pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f6
 /// Two full-length float64 real transforms (serial); the per-bin and per-sample
 /// passes around them run on the pool, each value from its own bin or sample only.
 pub fn truncate_inverse_psd(psd: &[f64], max_len: usize, df: f64, f_low: f64) -> Vec<f64> {
-    let n_freq = psd.len();
+    truncate_inverse_psd_of(psd.len(), max_len, df, f_low, |k0, out| {
+        out.copy_from_slice(&psd[k0..k0 + out.len()])
+    })
+}
+
+/// [`truncate_inverse_psd`] of the PSD whose bins `k0..k0 + out.len()` the call
+/// `psd(k0, out)` writes into `out` (chunks of at most `GRID_CHUNK` bins, in
+/// parallel), so a PSD made on the fly (resampled) is never stored whole.
+fn truncate_inverse_psd_of<F>(n_freq: usize, max_len: usize, df: f64, f_low: f64, psd: F) -> Vec<f64>
+where
+    F: Fn(usize, &mut [f64]) + Sync,
+{
     let n = 2 * (n_freq - 1);
     let k_low = bin_at_or_above(f_low, df);
     let mut fft = KeptScratch::<f64>::take(n);
     fft.spectrum
         .par_chunks_mut(GRID_CHUNK)
-        .zip(psd.par_chunks(GRID_CHUNK))
         .enumerate()
-        .for_each(|(c, (out, s))| {
-            for (j, (o, &s)) in out.iter_mut().zip(s).enumerate() {
-                let r = if c * GRID_CHUNK + j >= k_low && s.is_finite() {
-                    1.0 / s.sqrt()
-                } else {
-                    0.0
-                };
-                *o = num_complex::Complex::new(r, 0.0);
-            }
-        });
+        .for_each_init(
+            || vec![0.0f64; GRID_CHUNK],
+            |values, (c, out)| {
+                let values = &mut values[..out.len()];
+                psd(c * GRID_CHUNK, values);
+                for (j, (o, &s)) in out.iter_mut().zip(values.iter()).enumerate() {
+                    let r = if c * GRID_CHUNK + j >= k_low && s.is_finite() {
+                        1.0 / s.sqrt()
+                    } else {
+                        0.0
+                    };
+                    *o = num_complex::Complex::new(r, 0.0);
+                }
+            },
+        );
     fft.irfft();
     let half = (max_len / 2).min(n / 2);
     let inv_n = 1.0 / n as f64;
@@ -435,8 +455,11 @@ impl SegmentChain<'_> {
         let spacing = self.sample_rate / nperseg as f64;
         let freqs: Vec<f64> = (0..estimate.len()).map(|k| k as f64 * spacing).collect();
         let df = self.sample_rate / (2 * (self.n_freq - 1)) as f64;
-        let grid = psd_to_grid(&freqs, &estimate, df, self.n_freq);
-        Ok(truncate_inverse_psd(&grid, self.max_len, df, self.f_low))
+        // psd_to_grid and truncate_inverse_psd, the grid made chunk by chunk as the
+        // truncation reads it (the same values, never stored whole)
+        Ok(truncate_inverse_psd_of(self.n_freq, self.max_len, df, self.f_low, |k0, out| {
+            grid_chunk(&freqs, &estimate, df, k0, out)
+        }))
     }
 
     /// [`Self::psd`] of the blocks `x[s..s + block_len]` for each `s` in `starts`,
