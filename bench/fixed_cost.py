@@ -9,7 +9,9 @@ segment itself, default search settings). Each step of the per-segment path is t
 through the numpy API, best of ``--repeats``, and divided by the yardstick measured in
 the same process: one complex64 inverse FFT of 2^20 points on one thread
 (:func:`chirpsift._timing.inverse_fft_seconds`, the transform the fused kernel
-performs per template). The float64 real transforms of the same length that the
+performs per template). A step timed alone, call after call, finds the allocator's
+memory warm; the search's steps in sequence (the row after the sum) do not always, so
+that row, not the sum, is the per-segment fixed cost. The float64 real transforms of the same length that the
 spectrum chain and the data transform perform are shown beside it, and numpy's and
 scipy's transforms and Welch estimate on the same lengths as a sanity check of the
 core's.
@@ -127,6 +129,9 @@ def main(argv=None):
                 total += b
             print(f"  {name:<45s} {b / yard:6.2f}  (median {med / yard:.2f})")
         print(f"  {'sum of the search path: ' + ', '.join(t.split()[0] for t in total_steps):<45s} {total / yard:6.2f}")
+        path = [fn for name, fn in steps if name.startswith(total_steps)]
+        b, med = best(lambda: [fn() for fn in path], r)
+        print(f"  {'the same steps in sequence, as a search runs them':<45s} {b / yard:6.2f}  (median {med / yard:.2f})")
         for k in (64, len(bank)):
             kb = prepare_bank(bank.m1[:k], bank.m2[:k], f_low=fl)
             tf, _ = best(lambda: filter_segment(prepared, bank=kb, **filt), max(2, r // 2))
