@@ -50,6 +50,31 @@ def test_prepared_segments_filter_like_numpy_transformed_data(strain):
         np.testing.assert_allclose(a["chi2"], b["chi2"], rtol=1e-4, atol=1e-4)
 
 
+@pytest.mark.parametrize("blocks", ["segments", "other"])
+def test_estimating_preparation_equals_the_chain_then_the_preparation(strain, blocks):
+    # Consistency: prepare_segments estimating the PSDs (chain and data transform side
+    # by side in one core call) against segment_psds handed to prepare_segments, bit
+    # for bit in what the kernel finds; the chain itself is checked against scipy and
+    # the literature in test_physics_spectrum, the data transform against numpy above.
+    starts = [0, N // 2, 2 * N]
+    if blocks == "segments":
+        kw, psds = {}, cs.segment_psds(strain, FS, starts, N, NF, welch_duration=2.0, f_low=20.0)
+    else:  # longer blocks, cut from another array, placed elsewhere
+        other = strain[::-1].copy()
+        b_starts, b_len = [0, N, N // 4], 2 * N
+        kw = dict(psd_strain=other, psd_starts=b_starts, psd_samples=b_len)
+        psds = cs.segment_psds(other, FS, b_starts, b_len, NF, welch_duration=2.0, f_low=20.0)
+    one = cs.prepare_segments(strain, FS, starts, N, welch_duration=2.0, f_low=20.0, **kw)
+    two = cs.prepare_segments(strain, FS, starts, N, psds)
+    bank = cs.prepare_bank([8.0, 10.0], 7.0, f_low=20.0)
+    for a, b in zip(one, two):
+        fa = cs.filter_segment(a, bank=bank, min_snr=3.0)
+        fb = cs.filter_segment(b, bank=bank, min_snr=3.0)
+        assert fa["snr"].size > 0
+        for key in ("index", "snr", "phase", "sigma", "chi2"):
+            assert fa[key].tobytes() == fb[key].tobytes(), key
+
+
 def test_chain_is_bitwise_identical_across_thread_counts(strain):
     before = cs.get_threads()
     out = []
@@ -60,6 +85,9 @@ def test_chain_is_bitwise_identical_across_thread_counts(strain):
             seg = cs.prepare_segments(strain, FS, [0, N, 2 * N], N, psds)[1]
             found = cs.filter_segment(seg, bank=cs.prepare_bank(9.0, 7.0, f_low=20.0), min_snr=3.0)
             out.append(psds.tobytes() + found["snr"].tobytes() + found["chi2"].tobytes())
+            seg = cs.prepare_segments(strain, FS, [0, N, 2 * N], N, welch_duration=2.0, f_low=20.0)[2]
+            found = cs.filter_segment(seg, bank=cs.prepare_bank(9.0, 7.0, f_low=20.0), min_snr=3.0)
+            out[-1] += found["snr"].tobytes() + found["chi2"].tobytes()
     finally:
         cs.set_threads(before)
     assert out[0] == out[1] == out[2]
@@ -70,6 +98,15 @@ def test_chain_is_bitwise_identical_across_thread_counts(strain):
     (lambda x: cs.segment_psds(x, FS, [0], N, NF, welch_duration=64.0, f_low=20.0), "welch_duration"),
     (lambda x: cs.prepare_segments(x, FS, [0], N, np.ones(NF - 1)), "psd"),
     (lambda x: cs.prepare_segments(x, FS, [0], N + 1, np.ones(NF)), "segment_samples"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, welch_duration=2.0), "f_low"),
+    (lambda x: cs.prepare_segments(x, FS, [0, N], N, psd_starts=[0], f_low=20.0), "psd_starts"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, psd_starts=[2 * N + 1], f_low=20.0), "psd_starts must keep"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, np.ones(NF), psd_samples=N), "psd_samples"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, psd_strain=x[:10], f_low=20.0), "10 samples of psd_strain"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, psd_samples=100, f_low=20.0), "psd_samples=100"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, psd_strain=np.full(N, np.nan), f_low=20.0), "psd_strain"),
+    (lambda x: cs.prepare_segments(x, FS, [0], N, welch_duration=64.0, f_low=20.0), "welch_duration"),
+    (lambda x: cs.prepare_segments(np.zeros(N), FS, [0], N, f_low=20.0), "median PSD estimate is zero"),
     (lambda x: cs.filter_segment(cs.prepare_segments(x, FS, [0], N, np.ones(NF))[0], np.ones(NF), DF,
                                  bank=cs.prepare_bank(9.0, 7.0, f_low=20.0)), "PreparedSegment"),
 ])

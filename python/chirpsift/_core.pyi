@@ -70,6 +70,11 @@ def prepare_segment(data: NDArray[np.complex128], psd: NDArray[np.float64], df: 
 def prepare_segments(
     x: NDArray[np.float64], starts: NDArray[np.uint64], len: int, psds: NDArray[np.float64], sample_rate: float,
 ) -> list[PreparedSegment]: ...
+def prepare_segments_estimated(
+    x: NDArray[np.float64], starts: NDArray[np.uint64], len: int, blocks: NDArray[np.float64],
+    block_starts: NDArray[np.uint64], block_len: int, sample_rate: float, step: int, window: NDArray[np.float64],
+    max_len: int, f_low: float,
+) -> list[PreparedSegment]: ...
 def filter_segment(
     segment: PreparedSegment, bank: PreparedBank,
     min_snr: float, cluster_samples: int, chi2_bands: int, valid_start: int, valid_stop: int,

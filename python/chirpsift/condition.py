@@ -49,7 +49,7 @@ def check_strain(strain, name: str = "strain") -> np.ndarray:
     finite = np.isfinite(x)
     if not finite.any():
         raise ValueError(f"{name} has no finite samples (all {x.shape[0]} are NaN or infinite)")
-    if not np.any(x[finite]):
+    if not np.any(finite & (x != 0)):  # no copy of the finite samples
         raise ValueError(f"{name} is identically zero: there is no noise to estimate a PSD from")
     return x
 

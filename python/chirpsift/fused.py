@@ -13,6 +13,7 @@ from . import _core
 from ._validate import complex_array, integer, positive_scalar, psd_array, real_array
 from ._template_params import phase_order as _order
 from ._template_params import template_arrays
+from .spectrum import chain_arguments
 
 __all__ = ["filter_segment", "prepare_bank", "PreparedBank", "prepare_segments", "PreparedSegment", "PEAK_COLUMNS"]
 
@@ -114,7 +115,8 @@ class PreparedSegment:
         return f"PreparedSegment({self.n} samples, df={self.df} Hz)"
 
 
-def prepare_segments(strain, sample_rate, starts, segment_samples, psd):
+def prepare_segments(strain, sample_rate, starts, segment_samples, psd=None, *, psd_strain=None, psd_starts=None,
+                     psd_samples=None, welch_duration=4.0, f_low=None):
     """Transform and prepare many segments of strain in one call, in parallel.
 
     Parameters
@@ -127,9 +129,24 @@ def prepare_segments(strain, sample_rate, starts, segment_samples, psd):
         First sample of each segment.
     segment_samples : int
         Samples ``N`` per segment (even).
-    psd : array_like, shape (N // 2 + 1,) or (segments, N // 2 + 1)
+    psd : array_like, shape (N // 2 + 1,) or (segments, N // 2 + 1), optional
         One-sided PSD (1/Hz) of each segment on its rfft grid (one row serves all),
-        ``inf`` for excluded bins, e.g. from :func:`chirpsift.segment_psds`.
+        ``inf`` for excluded bins, e.g. from :func:`chirpsift.segment_psds`. None:
+        estimated here by the chain of :func:`chirpsift.segment_psds` (Welch median,
+        resampling, inverse spectrum truncation) from the blocks
+        ``psd_strain[b : b + psd_samples]``, ``b`` in ``psd_starts``, with
+        ``welch_duration`` and ``f_low``.
+    psd_strain : array_like, shape (m,), optional
+        Strain (finite) the PSD blocks are cut from; default ``strain``.
+    psd_starts : array_like of int, shape (segments,), optional
+        First sample of each segment's PSD block; default ``starts``.
+    psd_samples : int, optional
+        Samples per PSD block; default ``segment_samples``.
+    welch_duration : float, optional
+        Welch segment length and kept impulse response of the inverse PSD (s).
+    f_low : float, optional
+        Bins below this frequency (Hz) are excluded from an estimated PSD (required
+        when ``psd`` is None).
 
     Returns
     -------
@@ -137,12 +154,21 @@ def prepare_segments(strain, sample_rate, starts, segment_samples, psd):
         Segment ``i`` holds ``d~ = rfft(strain[s_i : s_i + N]) / sample_rate`` (a real
         FFT in the core) weighted by its PSD.
 
+    Notes
+    -----
+    With ``psd`` None each segment's PSD chain and its data transform run side by
+    side on the thread pool, in one call; the result equals, bit for bit, passing
+    ``psd=segment_psds(psd_strain, sample_rate, psd_starts, psd_samples, N // 2 + 1,
+    welch_duration=welch_duration, f_low=f_low)``.
+
     Examples
     --------
     >>> import numpy as np, chirpsift
     >>> x = np.random.default_rng(1).normal(size=4096) * 1e-21
     >>> psd = chirpsift.design_psd(np.arange(1025) * 0.5)
     >>> [s.n for s in chirpsift.prepare_segments(x, 1024.0, [0, 2048], 2048, psd)]
+    [2048, 2048]
+    >>> [s.n for s in chirpsift.prepare_segments(x, 1024.0, [0, 2048], 2048, welch_duration=0.5, f_low=20.0)]
     [2048, 2048]
     """
     x = real_array("strain", strain, ndim=1)
@@ -156,13 +182,28 @@ def prepare_segments(strain, sample_rate, starts, segment_samples, psd):
     if s.size and (s.min() < 0 or s.max() + n > x.shape[0]):
         raise ValueError(f"starts must keep every segment of {n} samples inside the {x.shape[0]} samples of strain, "
                          f"got starts from {s.min()} to {s.max()}")
+    starts_u64 = np.ascontiguousarray(s, dtype=np.uint64)
+    if psd is None:
+        if f_low is None:
+            raise ValueError("f_low must be given when psd is None (the PSD is then estimated)")
+        blocks = x if psd_strain is None else real_array("psd_strain", psd_strain, ndim=1)
+        b_starts = s if psd_starts is None else psd_starts
+        if np.shape(b_starts) != s.shape:
+            raise ValueError(f"psd_starts must hold one start per segment ({s.size}), got shape {np.shape(b_starts)}")
+        chain = chain_arguments(blocks.shape[0], fs, b_starts, n if psd_samples is None else psd_samples, n // 2 + 1,
+                                welch_duration, f_low, names=("psd_strain", "psd_starts", "psd_samples"))
+        segments = _core.prepare_segments_estimated(x, starts_u64, n, blocks, chain.starts, chain.block_samples, fs,
+                                                    chain.step, chain.window, chain.max_len, chain.f_low)
+        return [PreparedSegment(c) for c in segments]
+    if psd_strain is not None or psd_starts is not None or psd_samples is not None:
+        raise ValueError("psd_strain, psd_starts and psd_samples describe an estimate: give them only with psd=None")
     p = real_array("psd", psd, ndim=(1, 2), finite=False)
     if not (p > 0).all():  # one pass for the usual case; psd_array names the fault
         psd_array("psd", p, ndim=(1, 2))
     p = np.atleast_2d(p)
     if p.shape[1] != n // 2 + 1 or p.shape[0] not in (1, s.size):
         raise ValueError(f"psd must have shape ({n // 2 + 1},) or ({s.size}, {n // 2 + 1}), got {np.shape(psd)}")
-    segments = _core.prepare_segments(x, np.ascontiguousarray(s, dtype=np.uint64), n, np.ascontiguousarray(p), fs)
+    segments = _core.prepare_segments(x, starts_u64, n, np.ascontiguousarray(p), fs)
     return [PreparedSegment(c) for c in segments]
 
 

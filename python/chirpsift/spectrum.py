@@ -3,6 +3,8 @@ inverse spectrum truncation and whitening (numpy API over the Rust core)."""
 
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 
 from . import _core
@@ -276,6 +278,77 @@ def truncate_inverse_psd(psd, sample_rate, max_duration, f_low):
     return out[0] if p.ndim == 1 else out
 
 
+class ChainArguments(NamedTuple):
+    """The spectrum chain's checked arguments, as the core takes them (see :func:`chain_arguments`)."""
+
+    starts: np.ndarray  # uint64, first sample of each block
+    block_samples: int
+    n_freq: int  # bins of the analysis grid
+    sample_rate: float  # Hz
+    step: int  # samples between Welch segments
+    window: np.ndarray  # Hann taper of one Welch segment
+    max_len: int  # samples kept of the inverse PSD's impulse response
+    f_low: float  # Hz
+
+
+def chain_arguments(x_samples, sample_rate, starts, block_samples, n_freq, welch_duration, f_low, *,
+                    names=("x", "starts", "block_samples")):
+    """Check the arguments of the PSD chain of :func:`segment_psds` (also run by
+    :func:`chirpsift.prepare_segments` when it estimates the PSDs).
+
+    Parameters
+    ----------
+    x_samples : int
+        Samples of the strain the blocks are cut from.
+    sample_rate, starts, block_samples, n_freq, welch_duration, f_low
+        As :func:`segment_psds` takes them.
+    names : tuple of str, optional
+        What the messages call the strain, ``starts`` and ``block_samples``.
+
+    Returns
+    -------
+    ChainArguments
+        ``starts`` as uint64, ``n_freq``, Welch step and Hann window, ``max_len`` (the Welch length
+        in samples) and the checked scalars.
+
+    Raises
+    ------
+    ValueError, TypeError
+        Naming the argument, as :func:`segment_psds` documents.
+
+    Examples
+    --------
+    >>> from chirpsift.spectrum import chain_arguments
+    >>> c = chain_arguments(8192, 1024.0, [0, 4096], 4096, 2049, 1.0, 20.0)
+    >>> c.step, c.max_len, c.window.shape
+    (512, 1024, (1024,))
+    """
+    x_name, s_name, b_name = names
+    fs = positive_scalar("sample_rate", sample_rate)
+    s = real_array(s_name, starts, ndim=1, dtype=None, allow_empty=True)
+    if s.dtype.kind not in "iu":
+        raise TypeError(f"{s_name} must hold integers, got dtype {s.dtype}")
+    block = integer(b_name, block_samples)
+    nf = integer("n_freq", n_freq, minimum=2)
+    t_spec = positive_scalar("welch_duration", welch_duration)
+    fl = nonnegative_scalar("f_low", f_low)
+    if s.size and (s.min() < 0 or s.max() + block > x_samples):
+        raise ValueError(f"{s_name} must keep every block of {block} samples inside the {x_samples} samples of "
+                         f"{x_name}, got {s_name} from {s.min()} to {s.max()}")
+    nperseg = int(round(t_spec * fs))
+    if nperseg < 2 or nperseg > block:
+        raise ValueError(f"welch_duration={t_spec} s gives {nperseg} samples; need 2..{b_name}={block}")
+    n = 2 * (nf - 1)
+    if nperseg > n:
+        raise ValueError(f"welch_duration={t_spec} s is longer than the {n / fs:g} s analysis segment")
+    if fl >= fs / 2:
+        raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz")
+    check_allocation("n_freq", s.size * nf, 8)
+    step = nperseg - int(round(0.5 * nperseg))
+    return ChainArguments(np.ascontiguousarray(s, dtype=np.uint64), block, nf, fs, step,
+                          _welch_window("hann", nperseg), nperseg, fl)
+
+
 def segment_psds(x, sample_rate, starts, block_samples, n_freq, *, welch_duration=4.0, f_low):
     """Run the PSD chain of many analysis segments in one call, blocks in parallel.
 
@@ -321,29 +394,9 @@ def segment_psds(x, sample_rate, starts, block_samples, n_freq, *, welch_duratio
     (2, 8193)
     """
     a = real_array("x", x, ndim=1)
-    fs = positive_scalar("sample_rate", sample_rate)
-    s = real_array("starts", starts, ndim=1, dtype=None, allow_empty=True)
-    if s.dtype.kind not in "iu":
-        raise TypeError(f"starts must hold integers, got dtype {s.dtype}")
-    block = integer("block_samples", block_samples)
-    nf = integer("n_freq", n_freq, minimum=2)
-    t_spec = positive_scalar("welch_duration", welch_duration)
-    fl = nonnegative_scalar("f_low", f_low)
-    if s.size and (s.min() < 0 or s.max() + block > a.shape[0]):
-        raise ValueError(f"starts must keep every block of {block} samples inside the {a.shape[0]} samples of x, "
-                         f"got starts from {s.min()} to {s.max()}")
-    nperseg = int(round(t_spec * fs))
-    if nperseg < 2 or nperseg > block:
-        raise ValueError(f"welch_duration={t_spec} s gives {nperseg} samples; need 2..block_samples={block}")
-    n = 2 * (nf - 1)
-    if nperseg > n:
-        raise ValueError(f"welch_duration={t_spec} s is longer than the {n / fs:g} s analysis segment")
-    if fl >= fs / 2:
-        raise ValueError(f"f_low={fl} Hz must be below the Nyquist frequency {fs / 2} Hz")
-    check_allocation("n_freq", s.size * nf, 8)
-    step = nperseg - int(round(0.5 * nperseg))
-    out = _core.segment_psds(a, np.ascontiguousarray(s, dtype=np.uint64), block, fs, step,
-                             _welch_window("hann", nperseg), nf, nperseg, fl)
+    chain = chain_arguments(a.shape[0], sample_rate, starts, block_samples, n_freq, welch_duration, f_low)
+    out = _core.segment_psds(a, chain.starts, chain.block_samples, chain.sample_rate, chain.step, chain.window,
+                             chain.n_freq, chain.max_len, chain.f_low)
     if np.isnan(out).any():
         raise ValueError("x: the PSD is undefined (values too large for float64)")
     return out

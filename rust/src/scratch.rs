@@ -16,10 +16,20 @@ pub struct Pool<T, F: Fn() -> T> {
 
 impl<T, F: Fn() -> T> Pool<T, F> {
     pub fn new(make: F) -> Self {
+        Self::with_items(make, Vec::new())
+    }
+
+    /// A pool that hands out `items` before making new buffers.
+    pub fn with_items(make: F, items: Vec<T>) -> Self {
         Pool {
-            free: Mutex::new(Vec::new()),
+            free: Mutex::new(items),
             make,
         }
+    }
+
+    /// The buffers returned to the pool (all of them, once no lease is out).
+    pub fn into_items(self) -> Vec<T> {
+        self.free.into_inner().unwrap_or_else(|e| e.into_inner())
     }
 
     /// A buffer for one job; it returns to the pool when the job drops it.

@@ -5,7 +5,7 @@
 //! every spectrum here is float64.
 
 use crate::error::{ensure, Error, Result};
-use crate::fft::RealScratch;
+use crate::fft::{KeptScratch, RealScratch};
 use crate::grid::bin_at_or_above;
 use rayon::prelude::*;
 
@@ -118,13 +118,23 @@ pub fn welch(
             psd.iter_mut().for_each(|p| *p /= n_seg as f64);
         }
         Average::Median => {
+            // Columns are gathered a block of bins at a time (each row contributes one
+            // contiguous run), so the gather reads whole cache lines instead of one
+            // value per row stride; selection runs on integer keys in f64::total_cmp's
+            // order.
             let bias = median_bias(n_seg);
-            psd.par_iter_mut().enumerate().for_each_init(
-                || Vec::with_capacity(n_seg),
-                |column, (k, p)| {
-                    column.clear();
-                    column.extend((0..n_seg).map(|s| grams[s * n_freq + k]));
-                    *p = median(column) / bias;
+            psd.par_chunks_mut(MEDIAN_BLOCK).enumerate().for_each_init(
+                || vec![0i64; MEDIAN_BLOCK * n_seg],
+                |columns, (b, out)| {
+                    let (k0, width) = (b * MEDIAN_BLOCK, out.len());
+                    for (s, row) in grams.chunks_exact(n_freq).enumerate() {
+                        for (i, &g) in row[k0..k0 + width].iter().enumerate() {
+                            columns[i * n_seg + s] = total_order_key(g);
+                        }
+                    }
+                    for (p, column) in out.iter_mut().zip(columns.chunks_exact_mut(n_seg)) {
+                        *p = median_of_keys(column) / bias;
+                    }
                 },
             );
         }
@@ -132,15 +142,33 @@ pub fn welch(
     Ok(psd)
 }
 
-/// Median of finite values, mean of the two middle ones for an even count.
-fn median(v: &mut [f64]) -> f64 {
+/// Bins per block of the median's column gather.
+const MEDIAN_BLOCK: usize = 64;
+
+/// An integer whose order is `f64::total_cmp`'s order of `x` (the same bit trick).
+#[inline]
+fn total_order_key(x: f64) -> i64 {
+    let b = x.to_bits() as i64;
+    b ^ (((b >> 63) as u64) >> 1) as i64
+}
+
+/// The f64 whose [`total_order_key`] is `k`.
+#[inline]
+fn from_total_order_key(k: i64) -> f64 {
+    f64::from_bits((k ^ (((k >> 63) as u64) >> 1) as i64) as u64)
+}
+
+/// Median of values given by their [`total_order_key`]s, mean of the two middle
+/// ones for an even count.
+fn median_of_keys(v: &mut [i64]) -> f64 {
     let n = v.len();
     let mid = n / 2;
-    let (_, &mut upper, _) = v.select_nth_unstable_by(mid, |a, b| a.total_cmp(b));
+    let (_, &mut upper, _) = v.select_nth_unstable(mid);
+    let upper = from_total_order_key(upper);
     if n % 2 == 1 {
         upper
     } else {
-        let lower = v[..mid].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let lower = v[..mid].iter().copied().max().map_or(f64::NEG_INFINITY, from_total_order_key);
         0.5 * (lower + upper)
     }
 }
@@ -265,17 +293,36 @@ pub fn design_psd(curve: &str, freqs: &[f64]) -> Result<Vec<f64>> {
     Ok(freqs.iter().map(|&f| c.psd(f)).collect())
 }
 
+/// Bins per job of the per-bin passes over a segment's grid (whole cache pages, and
+/// few enough jobs that scheduling costs nothing next to the work).
+const GRID_CHUNK: usize = 1 << 14;
+
 /// Linear interpolation of `(freqs, psd)` onto `k * df`, `k < n_freq`; `inf` outside
 /// the input range or next to an `inf` sample. `freqs` must increase strictly.
+/// Bins are filled in parallel chunks; each value depends on its own bin only.
 ///
 /// # Panics
 /// If `freqs` is empty or shorter than `psd`.
 pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f64> {
     let mut out = vec![f64::INFINITY; n_freq];
-    let mut i = 0usize;
+    out.par_chunks_mut(GRID_CHUNK)
+        .enumerate()
+        .for_each(|(c, chunk)| grid_chunk(freqs, psd, df, c * GRID_CHUNK, chunk));
+    out
+}
+
+/// Bins `k0..k0 + out.len()` of [`psd_to_grid`] into `out` (every bin written).
+fn grid_chunk(freqs: &[f64], psd: &[f64], df: f64, k0: usize, out: &mut [f64]) {
     let last = freqs.len() - 1;
-    for (k, o) in out.iter_mut().enumerate() {
-        let f = k as f64 * df;
+    // The last node at or below the chunk's first frequency, where a walk from bin 0
+    // would stand on reaching it.
+    let mut i = freqs
+        .partition_point(|&f| f <= k0 as f64 * df)
+        .saturating_sub(1)
+        .min(last);
+    for (j, o) in out.iter_mut().enumerate() {
+        *o = f64::INFINITY;
+        let f = (k0 + j) as f64 * df;
         if f < freqs[0] || f > freqs[last] {
             continue;
         }
@@ -292,39 +339,59 @@ pub fn psd_to_grid(freqs: &[f64], psd: &[f64], df: f64, n_freq: usize) -> Vec<f6
             *o = a + w * (b - a);
         }
     }
-    out
 }
 
 /// Inverse spectrum truncation (Allen et al. 2012, arXiv:gr-qc/0509116): limit the
 /// impulse response of `1/sqrt(psd)` to `max_len` samples, so whitening corrupts
 /// at most `max_len / 2` samples at each end of a segment.
+///
+/// Two full-length float64 real transforms (serial); the per-bin and per-sample
+/// passes around them run on the pool, each value from its own bin or sample only.
 pub fn truncate_inverse_psd(psd: &[f64], max_len: usize, df: f64, f_low: f64) -> Vec<f64> {
-    let n_freq = psd.len();
+    truncate_inverse_psd_of(psd.len(), max_len, df, f_low, |k0, out| {
+        out.copy_from_slice(&psd[k0..k0 + out.len()])
+    })
+}
+
+/// [`truncate_inverse_psd`] of the PSD whose bins `k0..k0 + out.len()` the call
+/// `psd(k0, out)` writes into `out` (chunks of at most `GRID_CHUNK` bins, in
+/// parallel), so a PSD made on the fly (resampled) is never stored whole.
+fn truncate_inverse_psd_of<F>(n_freq: usize, max_len: usize, df: f64, f_low: f64, psd: F) -> Vec<f64>
+where
+    F: Fn(usize, &mut [f64]) + Sync,
+{
     let n = 2 * (n_freq - 1);
     let k_low = bin_at_or_above(f_low, df);
-    let mut fft = RealScratch::<f64>::new(n);
-    for (k, c) in fft.spectrum.iter_mut().enumerate() {
-        let s = psd[k];
-        let r = if k >= k_low && s.is_finite() {
-            1.0 / s.sqrt()
-        } else {
-            0.0
-        };
-        *c = num_complex::Complex::new(r, 0.0);
-    }
+    let mut fft = KeptScratch::<f64>::take(n);
+    fft.spectrum
+        .par_chunks_mut(GRID_CHUNK)
+        .enumerate()
+        .for_each_init(
+            || vec![0.0f64; GRID_CHUNK],
+            |values, (c, out)| {
+                let values = &mut values[..out.len()];
+                psd(c * GRID_CHUNK, values);
+                for (j, (o, &s)) in out.iter_mut().zip(values.iter()).enumerate() {
+                    let r = if c * GRID_CHUNK + j >= k_low && s.is_finite() {
+                        1.0 / s.sqrt()
+                    } else {
+                        0.0
+                    };
+                    *o = num_complex::Complex::new(r, 0.0);
+                }
+            },
+        );
     fft.irfft();
     let half = (max_len / 2).min(n / 2);
     let inv_n = 1.0 / n as f64;
-    for (j, q) in fft.time.iter_mut().enumerate() {
-        *q = if j < half || j >= n - half {
-            *q * inv_n
-        } else {
-            0.0
-        };
-    }
+    fft.time[..half].iter_mut().for_each(|q| *q *= inv_n);
+    fft.time[n - half..].iter_mut().for_each(|q| *q *= inv_n);
+    fft.time[half..n - half]
+        .par_chunks_mut(GRID_CHUNK)
+        .for_each(|z| z.fill(0.0));
     fft.rfft();
     fft.spectrum
-        .iter()
+        .par_iter()
         .enumerate()
         .map(|(k, c)| {
             let r2 = c.norm_sqr();
@@ -388,8 +455,11 @@ impl SegmentChain<'_> {
         let spacing = self.sample_rate / nperseg as f64;
         let freqs: Vec<f64> = (0..estimate.len()).map(|k| k as f64 * spacing).collect();
         let df = self.sample_rate / (2 * (self.n_freq - 1)) as f64;
-        let grid = psd_to_grid(&freqs, &estimate, df, self.n_freq);
-        Ok(truncate_inverse_psd(&grid, self.max_len, df, self.f_low))
+        // psd_to_grid and truncate_inverse_psd, the grid made chunk by chunk as the
+        // truncation reads it (the same values, never stored whole)
+        Ok(truncate_inverse_psd_of(self.n_freq, self.max_len, df, self.f_low, |k0, out| {
+            grid_chunk(&freqs, &estimate, df, k0, out)
+        }))
     }
 
     /// [`Self::psd`] of the blocks `x[s..s + block_len]` for each `s` in `starts`,
@@ -536,6 +606,83 @@ mod tests {
         let psd = welch(&x, fs, 128, &window, false, Average::Mean).unwrap();
         let mid: f64 = psd[10..120].iter().sum::<f64>() / 110.0;
         assert!((mid / (2.0 / fs) - 1.0).abs() < 0.03, "{mid}");
+    }
+
+    /// Uniform draws in [0, 1) from a 64-bit LCG (Knuth's MMIX constants).
+    fn uniforms(seed: u64, n: usize) -> Vec<f64> {
+        let mut state = seed;
+        (0..n)
+            .map(|_| {
+                state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                (state >> 11) as f64 / (1u64 << 53) as f64
+            })
+            .collect()
+    }
+
+    #[test]
+    fn median_of_keys_is_the_sorted_middle() {
+        // The median of a sorted list (common practice): the middle value, or the mean
+        // of the two middle values for an even count.
+        for n in [1usize, 2, 3, 4, 7, 8, 127, 128] {
+            for seed in 0..5u64 {
+                let mut v: Vec<f64> = uniforms(seed * 131 + n as u64, n)
+                    .iter()
+                    .map(|u| if *u < 0.2 { 0.0 } else { (u * 8.0).floor() * 1e-45 })
+                    .collect();
+                let mut keys: Vec<i64> = v.iter().map(|&x| total_order_key(x)).collect();
+                v.sort_by(f64::total_cmp);
+                let expected = if n % 2 == 1 { v[n / 2] } else { 0.5 * (v[n / 2 - 1] + v[n / 2]) };
+                assert_eq!(median_of_keys(&mut keys), expected, "n={n} seed={seed}");
+            }
+        }
+        for x in [0.0, -0.0, 1e-300, 5e-324, 1.0, -2.5, f64::INFINITY, f64::NEG_INFINITY] {
+            assert_eq!(from_total_order_key(total_order_key(x)).to_bits(), x.to_bits());
+        }
+        let mut xs = [3.0, -1.0, 0.0, -0.0, f64::INFINITY, 1e-310];
+        let mut keys: Vec<i64> = xs.iter().map(|&x| total_order_key(x)).collect();
+        keys.sort();
+        xs.sort_by(f64::total_cmp);
+        let back: Vec<u64> = keys.iter().map(|&k| from_total_order_key(k).to_bits()).collect();
+        assert_eq!(back, xs.iter().map(|x| x.to_bits()).collect::<Vec<_>>());
+    }
+
+    #[test]
+    fn psd_to_grid_in_chunks_equals_one_walk() {
+        // The parallel chunks start where a single walk from bin 0 would stand: compare
+        // with that walk (linear interpolation, written out) across chunk boundaries,
+        // on irregular nodes some of which fall on bins.
+        let df = 0.25;
+        let n_freq = 3 * GRID_CHUNK + 17;
+        let mut freqs = vec![3.0];
+        for (i, u) in uniforms(7, 4000).iter().enumerate() {
+            let step = if i % 3 == 0 { 0.25 * (1.0 + (u * 8.0).floor()) } else { 0.1 + 7.0 * u };
+            freqs.push(freqs.last().unwrap() + step);
+        }
+        let mut psd: Vec<f64> = uniforms(8, freqs.len()).iter().map(|u| 1e-46 * (0.5 + u)).collect();
+        psd[100] = f64::INFINITY;
+        let got = psd_to_grid(&freqs, &psd, df, n_freq);
+        let last = freqs.len() - 1;
+        let mut i = 0usize;
+        for (k, &g) in got.iter().enumerate() {
+            let f = k as f64 * df;
+            let expected = if f < freqs[0] || f > freqs[last] {
+                f64::INFINITY
+            } else {
+                while i < last && freqs[i + 1] <= f {
+                    i += 1;
+                }
+                if freqs[i] == f {
+                    psd[i]
+                } else if psd[i].is_finite() && psd[i + 1].is_finite() {
+                    let w = (f - freqs[i]) / (freqs[i + 1] - freqs[i]);
+                    psd[i] + w * (psd[i + 1] - psd[i])
+                } else {
+                    f64::INFINITY
+                }
+            };
+            assert_eq!(g.to_bits(), expected.to_bits(), "bin {k}");
+        }
+        assert!(got[GRID_CHUNK..].iter().any(|g| g.is_finite()));
     }
 
     #[test]

@@ -35,7 +35,7 @@ from ..fused import filter_segment, prepare_bank, prepare_segments
 from ..gating import GatingWarning, apply_gates, find_gates
 from ..ranking import reweighted_snr
 from ..segments import DURATION_MARGIN, SegmentPlan, default_length, padding, plan_segments
-from ..spectrum import design_psd, psd_to_grid, segment_psds, truncate_inverse_psd
+from ..spectrum import design_psd, psd_to_grid, truncate_inverse_psd
 from ..triggers import trigger_table
 from ..waveform import chirp_duration, isco_frequency
 from .settings import SearchSettings
@@ -341,18 +341,17 @@ def _no_noise_message(block_start, block, t_first, plan, sample_rate, settings, 
 
 
 # --- filtering ---
-def _filter_segments(x, sample_rate, plans, bank, settings, psd_of, cluster_samples):
+def _filter_segments(plans, bank, settings, prepare, cluster_samples):
     """Run the fused kernel over each planned segment; yields ``(plan, peaks)``.
 
-    ``psd_of(plan)`` gives the truncated PSD of a segment on its rfft grid.
+    ``prepare(plan)`` gives the segment transformed and weighted by its truncated PSD
+    (a :class:`~chirpsift.fused.PreparedSegment`).
     """
     templates = prepare_bank(bank.m1, bank.m2, bank.chi1, bank.chi2, f_low=settings.f_low,
                              phase_order=settings.phase_order)  # checked and built once, not per segment
     for plan in plans:
-        segment = x[plan.start:plan.start + plan.length]
-        (prepared,) = prepare_segments(segment, sample_rate, [0], plan.length, psd_of(plan))  # data FFT in the core
         peaks = filter_segment(
-            prepared, bank=templates, min_snr=settings.min_snr, cluster_samples=cluster_samples,
+            prepare(plan), bank=templates, min_snr=settings.min_snr, cluster_samples=cluster_samples,
             chi2_bands=settings.chi2_bands, valid=(plan.valid_start, plan.valid_stop),
         )
         yield plan, peaks
@@ -399,22 +398,29 @@ def filter_stretch(x, t_first, sample_rate, stretch, bank, settings, psd, psd_ca
     m = x.shape[0]
     psd_len = length if settings.psd_duration is None else int(round(settings.psd_duration * fs))
 
-    def psd_of(plan):
+    def prepare(plan):
+        segment = x[plan.start:plan.start + length]
         if psd is not None:
-            return psd_cache[length]
-        lo = min(max(0, plan.start + plan.length // 2 - psd_len // 2), max(0, m - psd_len))
-        block = x[lo:lo + psd_len]
-        try:  # Welch, resampling and truncation in one core call
-            return segment_psds(block, fs, [0], block.shape[0], n_freq, welch_duration=t_spec, f_low=fl)[0]
+            (prepared,) = prepare_segments(segment, fs, [0], length, psd_cache[length])  # data FFT in the core
+            return prepared
+        lo = min(max(0, plan.start + length // 2 - psd_len // 2), max(0, m - psd_len))
+        hi = min(lo + psd_len, m)
+        # the block the PSD is estimated from (at most the stretch); the segment itself by default
+        block = None if (lo, hi) == (plan.start, plan.start + length) else x[lo:hi]
+        try:  # Welch, resampling, truncation and the data FFT in one core call, side by side
+            (prepared,) = prepare_segments(segment, fs, [0], length, psd_strain=block, psd_samples=hi - lo,
+                                           welch_duration=t_spec, f_low=fl)
+            return prepared
         except ValueError as exc:
             if "median PSD estimate is zero" not in str(exc):
                 raise
-            raise ValueError(_no_noise_message(lo, block, t_first, plan, fs, settings, gates)) from None
+            raise ValueError(_no_noise_message(lo, segment if block is None else block, t_first, plan, fs,
+                                               settings, gates)) from None
 
     cluster_samples = int(round(min(settings.peak_window, m / fs) * fs))
     columns: dict[str, list[np.ndarray]] = {}
     chosen = stretch.plans if plans is None else plans
-    for plan, found in _filter_segments(x, fs, chosen, bank, settings, psd_of, cluster_samples):
+    for plan, found in _filter_segments(chosen, bank, settings, prepare, cluster_samples):
         found["time"] = t_first + (plan.start + found["position"]) / fs
         for key, value in found.items():
             columns.setdefault(key, []).append(value)

@@ -196,10 +196,18 @@ pub fn filter_segment(segment: &Prepared, bank: &Bank, s: &Settings) -> Result<V
         .max()
         .unwrap_or(0);
     let zero = Complex32::new(0.0, 0.0);
-    let pool = crate::scratch::Pool::new(|| Scratch {
-        buf: vec![zero; n],
-        fft_scratch: vec![zero; scratch_len],
-    });
+    let kept: Vec<Scratch> = {
+        let mut k = KEPT_SCRATCH.lock().unwrap_or_else(|e| e.into_inner());
+        k.retain(|s| s.buf.len() == n && s.fft_scratch.len() == scratch_len);
+        std::mem::take(&mut *k)
+    };
+    let pool = crate::scratch::Pool::with_items(
+        || Scratch {
+            buf: vec![zero; n],
+            fft_scratch: vec![zero; scratch_len],
+        },
+        kept,
+    );
     let f_low = bank.f_low();
     let per_template: Vec<Vec<Trigger>> = bank
         .templates()
@@ -210,8 +218,19 @@ pub fn filter_segment(segment: &Prepared, bank: &Bank, s: &Settings) -> Result<V
             |scratch, (i, t)| filter_one(segment, t, i, f_low, s, &plans, scratch),
         )
         .collect();
+    let mut back = pool.into_items();
+    back.truncate(KEPT_KERNEL_SCRATCHES);
+    *KEPT_SCRATCH.lock().unwrap_or_else(|e| e.into_inner()) = back;
     Ok(per_template.into_iter().flatten().collect())
 }
+
+/// Per-thread buffers (a segment-length complex64 series and its transform scratch,
+/// 16 MiB at 2^20 samples) kept from one call to the next, at most this many: made
+/// afresh each call, their pages' faults and zeroing cost the search a few tenths of
+/// a transform per segment and thread.
+const KEPT_KERNEL_SCRATCHES: usize = 2;
+
+static KEPT_SCRATCH: std::sync::Mutex<Vec<Scratch>> = std::sync::Mutex::new(Vec::new());
 
 /// Everything one template needs to turn buffer values into SNRs.
 struct Scaled<'a> {

@@ -4,6 +4,8 @@
 
 use crate::error::{ensure, Result};
 use crate::grid::inverse_psd_bin;
+use crate::fft::KeptScratch;
+use crate::spectrum::SegmentChain;
 use crate::waveform::{Model, WeightShape};
 use num_complex::{Complex32, Complex64};
 use rayon::prelude::*;
@@ -97,15 +99,8 @@ impl Prepared {
     /// # Errors
     /// Names `x` for an odd or too short length; otherwise as [`Prepared::new`].
     pub fn from_strain(x: &[f64], psd: &[f64], sample_rate: f64) -> Result<Self> {
-        let n = x.len();
-        ensure(n >= 4 && n % 2 == 0, "x", || {
-            format!("a segment needs an even number of samples (at least 4), got {n}")
-        })?;
-        let mut fft = crate::fft::RealScratch::<f64>::new(n);
-        fft.time.copy_from_slice(x);
-        fft.rfft();
-        fft.spectrum.iter_mut().for_each(|c| *c /= sample_rate);
-        Prepared::new(&fft.spectrum, psd, sample_rate / n as f64)
+        let data = data_transform(x, sample_rate)?;
+        Prepared::new(&data.spectrum, psd, sample_rate / x.len() as f64)
     }
 
     /// [`Prepared::from_strain`] of the segments `x[s..s + len]` for each `s` in
@@ -143,6 +138,72 @@ impl Prepared {
                 Prepared::from_strain(&x[s..s + len], &psds[row * n_freq..(row + 1) * n_freq], sample_rate)
             })
             .collect()
+    }
+
+    /// [`Prepared::from_strain_segments`] with each segment's PSD estimated by
+    /// `chain` from the block `blocks[b..b + block_len]` for each `b` in
+    /// `block_starts` (one per segment). Per segment, the chain and the data
+    /// transform run side by side on the pool; segments run in parallel. Equal,
+    /// bit for bit, to [`SegmentChain::psds`] followed by
+    /// [`Prepared::from_strain_segments`].
+    ///
+    /// # Errors
+    /// Names `block_starts` if it does not hold one start per segment or a block
+    /// runs past the end of `blocks`, `starts` if a segment runs past the end of
+    /// `x`, `n_freq` if the chain's grid is not the segments'; otherwise as
+    /// [`SegmentChain::psd`] (the first failing segment's error) and
+    /// [`Prepared::from_strain`].
+    #[allow(clippy::too_many_arguments)]
+    pub fn from_strain_estimated(
+        x: &[f64],
+        starts: &[usize],
+        len: usize,
+        blocks: &[f64],
+        block_starts: &[usize],
+        block_len: usize,
+        chain: &SegmentChain<'_>,
+    ) -> Result<Vec<Self>> {
+        ensure(block_starts.len() == starts.len(), "block_starts", || {
+            format!("needs one start per segment ({}), got {}", starts.len(), block_starts.len())
+        })?;
+        ensure(chain.n_freq == len / 2 + 1, "n_freq", || {
+            format!("the chain's grid has {} bins, the segments' {}", chain.n_freq, len / 2 + 1)
+        })?;
+        ensure(len >= 4 && len % 2 == 0, "x", || {
+            format!("a segment needs an even number of samples (at least 4), got {len}")
+        })?;
+        if let Some(&s) = starts.iter().find(|&&s| s + len > x.len()) {
+            return Err(crate::Error::invalid(
+                "starts",
+                format!("segment [{s}, {}) runs past the {} samples", s + len, x.len()),
+            ));
+        }
+        if let Some(&b) = block_starts.iter().find(|&&b| b + block_len > blocks.len()) {
+            return Err(crate::Error::invalid(
+                "block_starts",
+                format!("block [{b}, {}) runs past the {} samples", b + block_len, blocks.len()),
+            ));
+        }
+        let sample_rate = chain.sample_rate;
+        let df = sample_rate / len as f64;
+        // Collected per segment, then the first error in segment order: which error
+        // is reported must not depend on the thread count.
+        let each: Vec<Result<Self>> = starts
+            .par_iter()
+            .zip(block_starts)
+            .map(|(&s, &b)| {
+                let (psd, data) = rayon::join(
+                    || chain.psd(&blocks[b..b + block_len]),
+                    || data_transform(&x[s..s + len], sample_rate),
+                );
+                let psd = psd?;
+                ensure(!psd.iter().any(|p| p.is_nan()), "x", || {
+                    "the PSD is undefined (values too large for float64)".into()
+                })?;
+                Prepared::new(&data?.spectrum, &psd, df)
+            })
+            .collect();
+        each.into_iter().collect()
     }
 
     /// Frequency bins `n_freq = N / 2 + 1`.
@@ -201,6 +262,30 @@ impl Prepared {
         }
         (d, loss(d))
     }
+}
+
+/// `d~ = rfft(x) / sample_rate` by one float64 real transform (serial), left in the
+/// returned scratch's `spectrum`; the copy in and the scaling run on the pool, each
+/// value from its own sample or bin.
+///
+/// # Errors
+/// Names `x` for an odd or too short length.
+pub fn data_transform(x: &[f64], sample_rate: f64) -> Result<KeptScratch<f64>> {
+    const CHUNK: usize = 1 << 14;
+    let n = x.len();
+    ensure(n >= 4 && n % 2 == 0, "x", || {
+        format!("a segment needs an even number of samples (at least 4), got {n}")
+    })?;
+    let mut fft = KeptScratch::<f64>::take(n);
+    fft.time
+        .par_chunks_mut(CHUNK)
+        .zip(x.par_chunks(CHUNK))
+        .for_each(|(t, x)| t.copy_from_slice(x));
+    fft.rfft();
+    fft.spectrum
+        .par_chunks_mut(CHUNK)
+        .for_each(|c| c.iter_mut().for_each(|c| *c /= sample_rate));
+    Ok(fft)
 }
 
 /// Per-chunk sums `sum w_k f_k^m`, m = 0, 1, 2, of the inverse PSD, and the

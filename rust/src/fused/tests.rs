@@ -220,3 +220,35 @@ fn general_weight_shape_agrees_with_the_newtonian_table() {
     let var = |m: [f64; 3]| m[2] / m[0] - (m[1] / m[0]).powi(2);
     assert!((var(newtonian) / var(general) - 1.0).abs() < 1e-9);
 }
+
+#[test]
+fn estimated_preparation_equals_the_chain_then_the_preparation() {
+    // Consistency: the one-call path (chain and data transform side by side) against
+    // the chain's PSDs handed to the preparation, bit for bit; a blank block's error
+    // comes back.
+    use crate::spectrum::SegmentChain;
+    let (fs, len) = (256.0, 4096usize);
+    let mut state = 11u64;
+    let x: Vec<f64> = (0..3 * len).map(|_| 1e-21 * gaussian(&mut state)).collect();
+    let window: Vec<f64> = (0..256)
+        .map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / 256.0).cos())
+        .collect();
+    let chain = SegmentChain { sample_rate: fs, window: &window, step: 128, n_freq: len / 2 + 1, max_len: 256, f_low: 15.0 };
+    let (starts, blocks) = ([0usize, len, 2 * len], [0usize, len / 2, 2 * len]);
+    let one = Prepared::from_strain_estimated(&x, &starts, len, &x, &blocks, len, &chain).unwrap();
+    let psds = chain.psds(&x, &blocks, len).unwrap();
+    let two = Prepared::from_strain_segments(&x, &starts, len, &psds, fs).unwrap();
+    for (a, b) in one.iter().zip(&two) {
+        assert_eq!(a.weighted_data(), b.weighted_data());
+        assert_eq!(a.inv_psd(), b.inv_psd());
+        assert_eq!((a.q_scale(), a.w_scale()), (b.q_scale(), b.w_scale()));
+    }
+    let mut blank = x.clone();
+    blank[len..].iter_mut().for_each(|v| *v = 0.0);
+    let err = Prepared::from_strain_estimated(&x, &starts, len, &blank, &[2 * len, len, 0], len, &chain)
+        .err()
+        .expect("blank blocks have no PSD");
+    assert!(err.to_string().contains("median PSD estimate is zero"), "{err}");
+    let err = Prepared::from_strain_estimated(&x, &starts, len, &x, &[0, 0], len, &chain).err().unwrap();
+    assert!(err.to_string().starts_with("block_starts"), "{err}");
+}

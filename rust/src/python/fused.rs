@@ -2,6 +2,7 @@
 
 use super::run;
 use crate::fused::{self, Bank, Prepared, Settings, Trigger};
+use crate::spectrum::SegmentChain;
 use num_complex::Complex64;
 use numpy::{IntoPyArray, PyArray1, PyReadonlyArray1, PyReadonlyArray2};
 use pyo3::prelude::*;
@@ -118,6 +119,45 @@ fn prepare_segments(
         .collect())
 }
 
+/// Segments `x[s..s + len]` of strain with PSDs estimated by the spectrum chain
+/// from blocks `blocks[b..b + block_len]`, one per segment; chain and data
+/// transform side by side, segments in parallel.
+#[pyfunction]
+#[allow(clippy::too_many_arguments)]
+fn prepare_segments_estimated(
+    py: Python<'_>,
+    x: PyReadonlyArray1<'_, f64>,
+    starts: PyReadonlyArray1<'_, u64>,
+    len: usize,
+    blocks: PyReadonlyArray1<'_, f64>,
+    block_starts: PyReadonlyArray1<'_, u64>,
+    block_len: usize,
+    sample_rate: f64,
+    step: usize,
+    window: PyReadonlyArray1<'_, f64>,
+    max_len: usize,
+    f_low: f64,
+) -> PyResult<Vec<PreparedSegment>> {
+    let (xs, bs, w) = (x.as_slice()?, blocks.as_slice()?, window.as_slice()?);
+    let starts: Vec<usize> = starts.as_slice()?.iter().map(|&s| s as usize).collect();
+    let block_starts: Vec<usize> = block_starts.as_slice()?.iter().map(|&s| s as usize).collect();
+    let chain = SegmentChain {
+        sample_rate,
+        window: w,
+        step,
+        n_freq: len / 2 + 1,
+        max_len,
+        f_low,
+    };
+    let prepared = run(py, || {
+        Prepared::from_strain_estimated(xs, &starts, len, bs, &block_starts, block_len, &chain)
+    })?;
+    Ok(prepared
+        .into_iter()
+        .map(|prepared| PreparedSegment { prepared })
+        .collect())
+}
+
 /// The per-peak columns as a dict of arrays.
 fn columns<'py>(py: Python<'py>, triggers: &[Trigger]) -> PyResult<Bound<'py, PyDict>> {
     let out = PyDict::new(py);
@@ -164,6 +204,7 @@ pub(super) fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<PreparedSegment>()?;
     m.add_function(wrap_pyfunction!(prepare_segment, m)?)?;
     m.add_function(wrap_pyfunction!(prepare_segments, m)?)?;
+    m.add_function(wrap_pyfunction!(prepare_segments_estimated, m)?)?;
     m.add_function(wrap_pyfunction!(filter_segment, m)?)?;
     Ok(())
 }
