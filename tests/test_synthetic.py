@@ -126,6 +126,21 @@ def test_noise_seed_reproducible_and_f_low_empty_below():
     assert np.all(spec[(f >= 60) & (f < 400)] > 0)
 
 
+def test_zero_psd_bins_are_noise_free_in_simulation_but_refused_by_a_filter():
+    # One PSD rule (chirpsift.spectrum.psd_on_grid) serves both; only simulated noise may
+    # have bins without noise. Outside check: numpy's rfft of the simulated series holds
+    # no power in the band where S = 0 (the expected power in a bin is proportional to S).
+    fs, n = 256.0, 2**12
+    quiet = lambda f: np.where((f > 40.0) & (f < 60.0), 0.0, 1.0)  # noqa: E731
+    x = colored_gaussian_noise(n, fs, quiet, seed=2)
+    spec = np.abs(np.fft.rfft(x))
+    f = np.fft.rfftfreq(n, 1 / fs)
+    assert np.max(spec[(f > 40.0) & (f < 60.0)]) <= 1e-12 * np.max(spec)
+    assert np.all(spec[(f > 70.0) & (f < 120.0)] > 0)
+    with pytest.raises(ValueError, match="psd must be positive"):
+        optimal_snr(1.4, 1.4, psd=quiet, sample_rate=fs, n=n, f_low=30.0)
+
+
 def test_noise_odd_length_and_generator_seed():
     rng = np.random.default_rng(3)
     x = colored_gaussian_noise(1001, 256.0, lambda f: np.full(f.shape, 1.0), seed=rng)
@@ -139,7 +154,8 @@ def test_noise_odd_length_and_generator_seed():
         (dict(n=10.5, sample_rate=10.0), TypeError, "n must be an integer"),
         (dict(n=100, sample_rate=0.0), ValueError, "sample_rate must be positive"),
         (dict(n=100, sample_rate=10.0, psd=3), TypeError, "psd"),
-        (dict(n=100, sample_rate=10.0, psd=lambda f: -np.ones_like(f)), ValueError, "invalid PSD value -1.0"),
+        (dict(n=100, sample_rate=10.0, psd=lambda f: -np.ones_like(f)), ValueError, "psd must be non-negative.*-1.0"),
+        (dict(n=100, sample_rate=10.0, psd=lambda f: np.full(f.shape, np.nan)), ValueError, "psd must not contain NaN"),
         (dict(n=100, sample_rate=10.0, psd=lambda f: np.ones(3)), ValueError, "returned shape"),
         (dict(n=100, sample_rate=10.0, f_low=-1.0), ValueError, "f_low"),
     ],

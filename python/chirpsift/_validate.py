@@ -257,17 +257,22 @@ def dtype_choice(name: str, dtype, allowed) -> np.dtype:
     return dt
 
 
-def psd_array(name: str, x, ndim=(1, 2)) -> np.ndarray:
-    """float64 PSD: positive or +inf (inf marks excluded bins), never NaN, zero or negative."""
+def psd_array(name: str, x, ndim=(1, 2), *, allow_zero: bool = False) -> np.ndarray:
+    """float64 PSD: positive or +inf (inf marks excluded bins), never NaN or negative.
+
+    Zero (a bin without noise) is refused unless ``allow_zero``: only simulated noise
+    can use it, since a filter weighs each bin by ``1/S``.
+    """
     a = real_array(name, x, ndim=ndim, finite=False)
     if np.isnan(a).any():
         i = np.unravel_index(int(np.argmax(np.isnan(a))), a.shape)
         raise ValueError(f"{name} must not contain NaN, found one at index {i if a.ndim > 1 else i[0]}")
-    bad = a <= 0
+    bad = a < 0 if allow_zero else a <= 0
     if bad.any():
         i = np.unravel_index(int(np.argmax(bad)), a.shape)
         at = i if a.ndim > 1 else i[0]
-        raise ValueError(f"{name} must be positive (use inf to exclude a bin), found {a[i]} at index {at}")
+        rule = "non-negative" if allow_zero else "positive"
+        raise ValueError(f"{name} must be {rule} (use inf to exclude a bin), found {a[i]} at index {at}")
     return a
 
 

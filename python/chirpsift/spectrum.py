@@ -195,7 +195,7 @@ def psd_to_grid(freqs, psd, df, n_freq):
     return _core.psd_to_grid(f, p, positive_scalar("df", df), nf)
 
 
-def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd") -> np.ndarray:
+def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd", *, allow_zero: bool = False) -> np.ndarray:
     """One-sided PSD (1/Hz) at ``k * df``, ``k < n_freq``, from any of the ways a user names one.
 
     Parameters
@@ -210,6 +210,10 @@ def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd") -> np.ndarray:
         Number of bins.
     name : str, optional
         The argument's name in error messages.
+    allow_zero : bool, optional
+        Accept zero (a bin without noise) from a callable, for simulated noise; a
+        filter's PSD must be positive or ``inf`` (an excluded bin), and sampled
+        ``(freqs, values)`` must be positive to be interpolated.
 
     Returns
     -------
@@ -225,8 +229,12 @@ def psd_on_grid(psd, df: float, n_freq: int, name: str = "psd") -> np.ndarray:
     if isinstance(psd, str):
         return design_psd(freqs, psd)
     if callable(psd):
-        out = psd_array(name, np.broadcast_to(psd(freqs), freqs.shape), ndim=1)
-        return out
+        values = np.asarray(psd(freqs))
+        try:
+            values = np.broadcast_to(values, freqs.shape)
+        except ValueError:
+            raise ValueError(f"{name} returned shape {values.shape} for {n_freq} frequencies") from None
+        return psd_array(name, values, ndim=1, allow_zero=allow_zero)
     if isinstance(psd, tuple) and len(psd) == 2:
         return psd_to_grid(real_array(f"{name}[0]", psd[0], ndim=1), psd_array(f"{name}[1]", psd[1], ndim=1), df,
                            n_freq)

@@ -13,34 +13,10 @@ import numpy as np
 
 from ._validate import integer, nonnegative_scalar, positive_scalar, real_scalar
 from .filter import sigma
-from .spectrum import design_psd, psd_to_grid
+from .spectrum import psd_on_grid, psd_to_grid
 from .waveform import chirp_duration, taylorf2
 
 __all__ = ["colored_gaussian_noise", "inject_taylorf2", "optimal_snr"]
-
-
-def _psd_on_grid(freqs: np.ndarray, psd, name: str) -> np.ndarray:
-    """Evaluate a curve name (for :func:`chirpsift.design_psd`) or a callable at ``freqs``.
-
-    Zero is allowed (a bin with no noise); NaN and negative values are refused, and
-    ``inf`` marks a bin to leave empty.
-    """
-    if isinstance(psd, str):
-        values = design_psd(freqs, psd)
-    elif callable(psd):
-        values = psd(freqs)
-    else:
-        raise TypeError(f"{name} must be a design curve name or a callable freqs -> psd, got {psd!r}")
-    values = np.asarray(values, dtype=np.float64)
-    if values.shape != freqs.shape:
-        raise ValueError(f"{name} returned shape {values.shape} for {freqs.size} frequencies")
-    bad = np.isnan(values) | (values < 0)
-    if bad.any():
-        k = int(np.flatnonzero(bad)[0])
-        raise ValueError(
-            f"{name} gave an invalid PSD value {float(values[k])!r} at {float(freqs[k])!r} Hz (must be >= 0 or inf)"
-        )
-    return values
 
 
 def colored_gaussian_noise(
@@ -59,10 +35,11 @@ def colored_gaussian_noise(
         Number of samples (>= 2).
     sample_rate : float
         Sampling rate in Hz.
-    psd : str or callable, default "gen2-zero-detuned"
-        A curve name for :func:`chirpsift.design_psd`, or a callable mapping a float64
-        array of frequencies (Hz) to the one-sided PSD (1/Hz) at them; ``inf`` marks
-        frequencies to leave empty.
+    psd : str, callable or (freqs, values), default "gen2-zero-detuned"
+        A curve name for :func:`chirpsift.design_psd`, a callable mapping a float64
+        array of frequencies (Hz) to the one-sided PSD (1/Hz) at them (zero allowed: a
+        band without noise), or sampled values (:func:`chirpsift.spectrum.psd_on_grid`);
+        ``inf`` marks frequencies to leave empty.
     seed : int, numpy.random.Generator or None
         Passed to :func:`numpy.random.default_rng`; the same seed gives the same noise.
     f_low : float, optional
@@ -96,8 +73,9 @@ def colored_gaussian_noise(
     fs = positive_scalar("sample_rate", sample_rate)
     if f_low is not None:
         f_low = nonnegative_scalar("f_low", f_low)
-    freqs = np.fft.rfftfreq(n, 1.0 / fs)
-    psd_grid = _psd_on_grid(freqs, psd, "psd")
+    df = 1.0 / (n * (1.0 / fs))  # numpy.fft.rfftfreq's spacing, bit for bit
+    freqs = np.arange(n // 2 + 1) * df
+    psd_grid = psd_on_grid(psd, df, n // 2 + 1, allow_zero=True)
     usable = np.isfinite(psd_grid)
     if f_low is not None:
         usable &= freqs >= f_low
@@ -280,7 +258,7 @@ def optimal_snr(
     if isinstance(psd, str) or callable(psd):
         if psd_freqs is not None:
             raise ValueError("psd_freqs must be None when psd is a curve name or a callable")
-        grid = _psd_on_grid(np.arange(n_freq) * df, psd, "psd")
+        grid = psd_on_grid(psd, df, n_freq)
     else:
         if psd_freqs is None:
             raise ValueError("psd_freqs is required when psd is an array of samples")
