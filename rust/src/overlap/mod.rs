@@ -100,16 +100,95 @@ pub fn peak_modulus(scratch: &mut Scratch, m: usize) -> f64 {
     // misses the top of the peak: for 200 pairs of 10+10 Msun templates against
     // neighbours within 0.3 Msun from 30 Hz on the design curve, a parabola through
     // |z| is off by up to 13% (median 2.4%), and one exact sum at the vertex of a
-    // parabola through ln|z| by up to 8% (median 0.2%). So Newton steps on
-    // f = |z(t)|^2, with z, z' and z'' summed exactly, start there; a step that does
-    // not raise |z| is halved. Once the Newton step is at most ACCEPT_STEP samples
-    // the quadratic model's peak, f + f'^2 / (2 |f''|), is returned rather than
-    // summed again. Its error is of order f''' step^3: for those pairs it is within
-    // 4e-8 of the refinement run to its old stopping rule (gain below 1e-7 f), and it
-    // saves the sum that confirmed a converged step (3.6 sums per pair, not 4.1).
-    let start = if a > 0.0 && b > 0.0 && c > 0.0 { vertex(a.ln(), b.ln(), c.ln()) } else { vertex(a, b, c) };
-    let mut t = j as f64 + start;
+    // parabola through ln|z| by up to 8% (median 0.2%). So Newton steps (`refine`)
+    // start there.
     let (re, im) = (&re[..], &im[..]);
+    let mut best = refine(re, im, l, j as f64 + ln_vertex(a, b, c)).max(b);
+    // A flat top: for pairs that match below about 0.8, |z| stays within a few
+    // percent of its largest grid sample over several samples and ripples there
+    // (lobes about 1.2 samples apart), so the lobe the Newton steps climb from the
+    // grid maximum need not hold the peak (shortfalls up to 1.5% were measured).
+    // Such a neighbourhood is told by a grid sample within two of j above FLAT b
+    // (close pairs, matching 0.95-1, stay below 0.82 b); its profile is then summed
+    // at PROBE-sample offsets over +-SPAN samples and the refinement run again from
+    // each of its local maxima within MARGIN of the profile's largest value.
+    let near = at(j as isize - 2).max(a).max(c).max(at(j as isize + 2));
+    if near > FLAT * b {
+        best = best.max(profile_peak(re, im, series, j));
+        // other lobes whose grid maximum comes near j's (found 3-4 samples away
+        // for pairs matching below 0.4)
+        for i in 0..l {
+            let apart = (i as isize - j as isize).rem_euclid(l as isize).min((j as isize - i as isize).rem_euclid(l as isize));
+            let v = series[i].norm();
+            if apart > SPAN as isize && v >= LOBE * b && v >= at(i as isize - 1) && v >= at(i as isize + 1) {
+                best = best.max(profile_peak(re, im, series, i));
+            }
+        }
+    }
+    best
+}
+
+/// A grid sample within two of the maximum above this fraction of it marks a flat top.
+const FLAT: f64 = 0.9;
+/// Other grid local maxima of a flat top's series above this fraction of the largest
+/// are searched too.
+const LOBE: f64 = 0.8;
+/// Probes of a flat top: offsets (samples) between them, per sample, the span either
+/// side of the grid maximum (samples) and the count.
+const PROBE: f64 = 0.25;
+const PER_SAMPLE: usize = 4;
+const SPAN: f64 = 2.0;
+const PROFILE: usize = 17;
+/// Local maxima of a flat top's profile within this fraction of its top are refined.
+const MARGIN: f64 = 0.01;
+
+/// The best refined `|z|` near grid sample `j` of the transformed `series`: `|z|` at
+/// PROBE-sample offsets over +-SPAN samples (the grid's samples, exact sums between),
+/// then the refinement from each local maximum of that profile within MARGIN of its
+/// largest value.
+fn profile_peak(re: &[f64], im: &[f64], series: &[Complex64], j: usize) -> f64 {
+    let l = series.len();
+    let at = |i: isize| series[i.rem_euclid(l as isize) as usize].norm();
+    let mut profile = [0.0f64; PROFILE];
+    for (i, v) in profile.iter_mut().enumerate() {
+        *v = if i % PER_SAMPLE == 0 {
+            at(j as isize + (i / PER_SAMPLE) as isize - SPAN as isize)
+        } else {
+            sums::value(re, im, l, j as f64 + i as f64 * PROBE - SPAN).norm()
+        };
+    }
+    let top = profile.iter().fold(0.0f64, |x, &y| x.max(y));
+    let mut best = top;
+    for i in 0..PROFILE {
+        let v = profile[i];
+        let left = if i > 0 { profile[i - 1] } else { 0.0 };
+        let right = if i + 1 < PROFILE { profile[i + 1] } else { 0.0 };
+        if v >= left && v >= right && v >= (1.0 - MARGIN) * top {
+            let shift = if i > 0 && i + 1 < PROFILE { ln_vertex(left, v, right) } else { 0.0 };
+            best = best.max(refine(re, im, l, j as f64 + (i as f64 + shift) * PROBE - SPAN));
+        }
+    }
+    best
+}
+
+/// Vertex (within half a spacing) of a parabola through `ln |z|` at three equally
+/// spaced points, or through `|z|` where one is zero.
+fn ln_vertex(a: f64, b: f64, c: f64) -> f64 {
+    if a > 0.0 && b > 0.0 && c > 0.0 {
+        vertex(a.ln(), b.ln(), c.ln())
+    } else {
+        vertex(a, b, c)
+    }
+}
+
+/// The largest `|z|` reached by Newton steps on `f = |z(t)|^2` from `t` (samples),
+/// with `z`, `z'` and `z''` summed exactly; a step that does not raise `|z|` is
+/// halved. Once the Newton step is at most ACCEPT_STEP samples the quadratic model's
+/// peak, `f + f'^2 / (2 |f''|)`, is returned rather than summed again. Its error is of
+/// order `f''' step^3`: for the pairs of [`peak_modulus`]'s note it is within 4e-8 of
+/// the refinement run to its old stopping rule (gain below 1e-7 f), and it saves the
+/// sum that confirmed a converged step (3.6 sums per pair, not 4.1).
+fn refine(re: &[f64], im: &[f64], l: usize, mut t: f64) -> f64 {
     let (mut z0, mut d1, mut d2) = sums::direct_sums(re, im, l, t);
     let mut value = z0.norm();
     for _ in 0..MAX_STEPS {
@@ -138,7 +217,7 @@ pub fn peak_modulus(scratch: &mut Scratch, m: usize) -> f64 {
             break;
         }
     }
-    value.max(b)
+    value
 }
 
 /// Index of the first largest `|z_j|^2` (lanes of four, then the first index that
