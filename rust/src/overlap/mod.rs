@@ -121,7 +121,11 @@ pub fn peak_modulus(scratch: &mut Scratch, m: usize) -> f64 {
         best = best.max(profile_peak(re, im, series, j, climbed));
         // other lobes whose grid maximum comes near j's (found 3-4 samples away
         // for pairs matching below 0.4)
+        let floor = (LOBE * b) * (LOBE * b);
         for i in 0..l {
+            if series[i].norm_sqr() < floor {
+                continue;
+            }
             let apart = (i as isize - j as isize).rem_euclid(l as isize).min((j as isize - i as isize).rem_euclid(l as isize));
             let v = series[i].norm();
             if apart > SPAN as isize && v >= LOBE * b && v >= at(i as isize - 1) && v >= at(i as isize + 1) {
