@@ -227,7 +227,8 @@ def test_match_bad_input_names_the_argument():
 # Pairs whose |z(t)| has a flat top with several sub-sample lobes near its grid
 # maximum (10+10 Msun against neighbours, from 30 Hz, 8 s period, the design curve,
 # band up to the 10+10 Msun ISCO: the setting of the match benchmark); before the
-# kernel searched such tops, these fell short of the true maximum by 0.6-2.7%.
+# kernel searched such tops, five of them (matches 0.36-0.64) fell short of the
+# true maximum by 1.4-2.7%; the other three (0.65-0.9) are controls.
 LOBED_NEIGHBOURS = [(9.585, 9.404), (9.478, 9.812), (9.816, 9.737), (10.060, 9.500), (9.710, 9.962),
                     (10.228, 9.451), (10.234, 10.036), (10.1, 9.95)]
 
