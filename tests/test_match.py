@@ -222,3 +222,68 @@ def test_match_bad_input_names_the_argument():
         cs.match(h, h, psd, 0.0, F_LOW)
     with pytest.raises(ValueError, match=r"psd is inf over the whole band"):
         cs.match(h, h, np.full(N_FREQ, np.inf), DF, F_LOW)
+
+
+# Pairs whose |z(t)| has a flat top with several sub-sample lobes near its grid
+# maximum (10+10 Msun against neighbours, from 30 Hz, 8 s period, the design curve,
+# band up to the 10+10 Msun ISCO: the setting of the match benchmark); before the
+# kernel searched such tops, five of them (matches 0.36-0.64) fell short of the
+# true maximum by 1.4-2.7%; the other three (0.65-0.9) are controls.
+LOBED_NEIGHBOURS = [(9.585, 9.404), (9.478, 9.812), (9.816, 9.737), (10.060, 9.500), (9.710, 9.962),
+                    (10.228, 9.451), (10.234, 10.036), (10.1, 9.95)]
+
+
+def fine_grid_match(h1, h2, psd, df, f_low, f_high, oversample=32):
+    """max over t of |sum_k h1_k h2_k* / S_k exp(2 pi i k df t)| / norm, by numpy alone.
+
+    An inverse FFT zero-padded ``oversample`` times past the band's bins samples the
+    whole circular period; every local maximum within 5% of the largest is then
+    refined by a golden-section search over +-1 fine sample on the directly summed
+    series (60 steps: the bracket shrinks to 1e-12 of a sample).
+    """
+    f = np.arange(h1.size) * df
+    k = (f >= f_low) & (f < f_high) & np.isfinite(psd)
+    w = 1.0 / psd[k]
+    a, b = h1[k].astype(np.complex128), h2[k].astype(np.complex128)
+    norm = np.sqrt(np.sum(np.abs(a) ** 2 * w) * np.sum(np.abs(b) ** 2 * w))
+    product = a * np.conj(b) * w
+    n = oversample * product.size
+    z = np.abs(np.fft.ifft(product, n=n)) * n
+    bins = np.arange(product.size)
+
+    def modulus(t):  # t in units of the period
+        return abs(np.sum(product * np.exp(2j * np.pi * bins * t)))
+
+    golden = (np.sqrt(5.0) - 1.0) / 2.0
+    best = z.max()
+    for j in np.flatnonzero((z >= np.roll(z, 1)) & (z >= np.roll(z, -1)) & (z > 0.95 * z.max())):
+        lo, hi = (j - 1) / n, (j + 1) / n
+        c, d = hi - golden * (hi - lo), lo + golden * (hi - lo)
+        fc, fd = modulus(c), modulus(d)
+        for _ in range(60):
+            if fc > fd:
+                hi, d, fd = d, c, fc
+                c = hi - golden * (hi - lo)
+                fc = modulus(c)
+            else:
+                lo, c, fc = c, d, fd
+                d = lo + golden * (hi - lo)
+                fd = modulus(d)
+        best = max(best, fc, fd)
+    return best / norm
+
+
+def test_low_matches_with_lobed_peaks_reach_the_fine_grid_maximum():
+    # source: match definition (Owen 1996), maximised by numpy's FFT zero-padded 32x
+    # and a golden-section search on the direct sum (fine_grid_match above)
+    df, n, f_low = 1.0 / 8.0, 16385, 30.0
+    psd = cs.design_psd(np.arange(n) * df)
+    m1 = np.array([10.0] + [p[0] for p in LOBED_NEIGHBOURS])
+    m2 = np.array([10.0] + [p[1] for p in LOBED_NEIGHBOURS])
+    h = cs.taylorf2(m1, m2, f_low=f_low, df=df, n_freq=n, dtype=np.complex128)
+    f_high = float(cs.waveform.isco_frequency(10.0, 10.0))
+    got = cs.match(h[0], h[1:], psd, df, f_low, f_high)
+    want = np.array([fine_grid_match(h[0], row, psd, df, f_low, f_high) for row in h[1:]])
+    assert want.min() < 0.4 and want.max() > 0.85  # the pairs spread over 0.3-0.9
+    # measured agreement 1.2e-8 (the golden-section search's own resolution)
+    np.testing.assert_allclose(got, want, rtol=1e-6, atol=0)

@@ -60,7 +60,14 @@ def match(h1, h2, psd, df, f_low, f_high=None):
     band (shifting the band to zero frequency changes only the phase of the series).
     The grid maximum is refined with a parabola and Newton steps on the exactly
     summed series and its two derivatives; once a step is below 3e-3 samples the
-    step's quadratic model gives the peak value. A copy of a template shifted by any
+    step's quadratic model gives the peak value. Pairs that match below about 0.8
+    have a flat-topped peak whose modulus ripples within a few percent over several
+    samples; there the series is also summed at half-sample offsets within two
+    samples of the grid maximum (and of other grid maxima above 0.8 of it) and the
+    refinement rerun from each lobe within 3% of the best, the largest result
+    kept. Against a 32x zero-padded numpy search, matches of 10+10 Msun templates
+    with neighbours from 30 Hz agree within 1.2e-8 over 0.3-1 (1,400 pairs
+    measured); other settings were not measured. A copy of a template shifted by any
     time and phase matches it to 1 within 1e-6. Threads split over pairs; the result
     does not depend on the thread count. The exact sums use AVX2 and FMA where the
     processor has them (as the FFT library does), so the last bits may differ

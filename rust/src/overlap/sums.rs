@@ -32,6 +32,44 @@ pub fn direct_sums(re: &[f64], im: &[f64], l: usize, t: f64) -> (Complex64, Comp
     portable(re, im, l, t)
 }
 
+/// `z` alone at `t` samples (the probes of a flat peak): the lanes of
+/// [`direct_sums`] without the derivative sums.
+pub fn value(re: &[f64], im: &[f64], l: usize, t: f64) -> Complex64 {
+    assert_eq!(re.len(), im.len(), "split products of unequal lengths");
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
+            // SAFETY: the features the function enables were detected just above.
+            return unsafe { avx2::value(re, im, l, t) };
+        }
+    }
+    portable_value(re, im, l, t)
+}
+
+/// The portable path of [`value`].
+pub fn portable_value(re: &[f64], im: &[f64], l: usize, t: f64) -> Complex64 {
+    let m = re.len();
+    let mut z = [Complex64::new(0.0, 0.0); 4];
+    let mut start = 0;
+    while start < m {
+        let end = (start + RESTART).min(m);
+        let Block { mut rot, step, .. } = block(start, m, l, t);
+        let mut i = start;
+        while i + 4 <= end {
+            for j in 0..4 {
+                z[j] += Complex64::new(re[i + j], im[i + j]) * rot[j];
+                rot[j] *= step;
+            }
+            i += 4;
+        }
+        for j in 0..end - i {
+            z[j] += Complex64::new(re[i + j], im[i + j]) * rot[j];
+        }
+        start = end;
+    }
+    (z[0] + z[1]) + (z[2] + z[3])
+}
+
 fn centre(m: usize) -> f64 {
     (m / 2) as f64
 }
@@ -104,6 +142,50 @@ mod avx2 {
     use super::{block, finish, Block, RESTART};
     use num_complex::Complex64;
     use std::arch::x86_64::*;
+
+    /// [`super::value`]'s lanes in 256-bit registers, with fused multiply-adds.
+    ///
+    /// # Safety
+    /// The processor must have AVX2 and FMA.
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn value(re: &[f64], im: &[f64], l: usize, t: f64) -> Complex64 {
+        let m = re.len();
+        let (mut zr, mut zi) = (_mm256_setzero_pd(), _mm256_setzero_pd());
+        let mut tail = [Complex64::new(0.0, 0.0); 4];
+        let lanes = |v: [f64; 4]| _mm256_loadu_pd(v.as_ptr());
+        let mut start = 0;
+        while start < m {
+            let end = (start + RESTART).min(m);
+            let Block { rot, step, .. } = block(start, m, l, t);
+            let (mut rr, mut ri) = (lanes(rot.map(|r| r.re)), lanes(rot.map(|r| r.im)));
+            let (sr, si) = (_mm256_set1_pd(step.re), _mm256_set1_pd(step.im));
+            let mut i = start;
+            while i + 4 <= end {
+                let pr = _mm256_loadu_pd(re.as_ptr().add(i));
+                let pi = _mm256_loadu_pd(im.as_ptr().add(i));
+                zr = _mm256_add_pd(zr, _mm256_fmsub_pd(pr, rr, _mm256_mul_pd(pi, ri)));
+                zi = _mm256_add_pd(zi, _mm256_fmadd_pd(pr, ri, _mm256_mul_pd(pi, rr)));
+                let nr = _mm256_fmsub_pd(rr, sr, _mm256_mul_pd(ri, si));
+                ri = _mm256_fmadd_pd(rr, si, _mm256_mul_pd(ri, sr));
+                rr = nr;
+                i += 4;
+            }
+            if i < end {
+                let (mut r, mut s) = ([0.0; 4], [0.0; 4]);
+                _mm256_storeu_pd(r.as_mut_ptr(), rr);
+                _mm256_storeu_pd(s.as_mut_ptr(), ri);
+                for j in 0..end - i {
+                    tail[j] += Complex64::new(re[i + j], im[i + j]) * Complex64::new(r[j], s[j]);
+                }
+            }
+            start = end;
+        }
+        let (mut r, mut s) = ([0.0; 4], [0.0; 4]);
+        _mm256_storeu_pd(r.as_mut_ptr(), zr);
+        _mm256_storeu_pd(s.as_mut_ptr(), zi);
+        let z = [0, 1, 2, 3].map(|j| Complex64::new(r[j], s[j]) + tail[j]);
+        (z[0] + z[1]) + (z[2] + z[3])
+    }
 
     /// The four lanes in 256-bit registers, with fused multiply-adds.
     ///
@@ -214,6 +296,8 @@ mod tests {
                 for (u, v, s) in [(a.0, b.0, scale), (a.1, b.1, scale * w), (a.2, b.2, scale * w * w)] {
                     assert!((u - v).norm() <= 1e-12 * s, "m {m} t {t}: dispatched {u} portable {v}");
                 }
+                let (v, u) = (value(&re, &im, l, t), portable_value(&re, &im, l, t));
+                assert!((v - c.0).norm() <= 1e-11 * scale && (u - c.0).norm() <= 1e-11 * scale, "m {m} t {t}: value {v} {u} direct {}", c.0);
                 for (u, v, s) in [(a.0, c.0, scale), (a.1, c.1, scale * w), (a.2, c.2, scale * w * w)] {
                     assert!((u - v).norm() <= 1e-11 * s, "m {m} t {t}: sums {u} direct {v}");
                 }
