@@ -177,6 +177,17 @@ def test_reweighted_snr_matches_published_check_values():
     np.testing.assert_allclose(cs.reweighted_snr(rho, chi2, 2 * p - 2), expected, rtol=1e-6)
 
 
+def test_reweighted_snr_far_beyond_the_float_range_takes_the_formulas_limit():
+    # Babak et al. 2013 (arXiv:1208.3491): for a reduced chi-squared r >> 1 the factor
+    # ((1 + r^3) / 2)^(-1/6) tends to 2^(1/6) r^(-1/2), and to 0 as r overflows; no
+    # overflow warning on the way (pytest runs with warnings as errors).
+    r = np.array([3e99, 3e101])
+    got = cs.reweighted_snr(np.full(2, 10.0), r * 6.0, np.array([6.0, 6.0]))
+    np.testing.assert_allclose(got, 10.0 * 2 ** (1 / 6) / np.sqrt(r), rtol=1e-12)
+    assert cs.reweighted_snr(10.0, 1e200, 6.26e-175) == 0.0
+    assert cs.reweighted_snr(10.0, 1.0, 6.26e-175) == pytest.approx(10.0 * 2 ** (1 / 6) / np.sqrt(1 / 6.26e-175))
+
+
 def test_filter_segment_rejects_bad_input():
     d = np.zeros(NF, complex)
     with pytest.raises(ValueError, match="f_low"):

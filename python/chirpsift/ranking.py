@@ -45,6 +45,12 @@ def reweighted_snr(snr, chi2, dof):
         rho, chi, nu = np.broadcast_arrays(rho, chi, nu)
     except ValueError as exc:
         raise ValueError(f"snr, chi2 and dof must broadcast together, got shapes {rho.shape}, {chi.shape}, {nu.shape}") from exc
-    r2 = chi / nu
-    factor = np.where(r2 > 1.0, ((1.0 + r2**3) / 2.0) ** (-1.0 / 6.0), 1.0)
+    with np.errstate(over="ignore"):  # chi2 / dof beyond the float range is inf: the factor's limit, 0
+        r2 = chi / nu
+    # (chi_r^2)^3 overflows past 5.6e102; there the factor is (chi_r^2)^(-1/2) 2^(1/6) to
+    # well within round-off, while below it the formula is evaluated as written
+    huge = r2 > 1e100
+    tame = np.where(huge, 1.0, r2)
+    factor = np.where(r2 > 1.0, ((1.0 + tame**3) / 2.0) ** (-1.0 / 6.0), 1.0)
+    factor = np.where(huge, 2.0 ** (1.0 / 6.0) / np.sqrt(np.where(huge, r2, 1.0)), factor)
     return rho * factor
