@@ -159,7 +159,11 @@ class DaskExecutor:
         """Submit ``fn(*args)`` under the Dask key ``key``."""
         task = (call_with_threads, fn, self.threads, *args)
         self._sent[key] = _size(task)
-        future = self.client.submit(*task, key=key, pure=False, retries=self.attempts - 1,
+        # A tuple key's first element is Dask's task prefix: units of one stage share it, so
+        # the scheduler learns their duration and its work stealing moves queued units to
+        # idle workers (with one prefix per unit it never learnt one, and 2 local workers
+        # sat idle for a quarter of the run while the other's queue drained).
+        future = self.client.submit(*task, key=(key.split("/")[0], key), pure=False, retries=self.attempts - 1,
                                     resources=self.resources)
         self._futures[key] = future
         self._done.add(future)
@@ -176,7 +180,7 @@ class DaskExecutor:
     def next_done(self) -> Outcome:
         """Wait for any submitted task to end and return its :class:`Outcome`."""
         future = next(self._done)
-        key = future.key
+        key = future.key[1]
         self._futures.pop(key, None)
         out = Outcome(key, sent=self._sent.pop(key, 0))
         if future.status == "finished":
