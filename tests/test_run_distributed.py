@@ -276,6 +276,22 @@ def test_the_command_reports_failed_units_in_one_line(tmp_path, capsys):
     assert "does not go with --engine local" in capsys.readouterr().err
 
 
+def test_units_of_a_stage_share_one_dask_task_prefix(client):
+    # Consistency test of the executor's keys: Dask learns durations and steals work per
+    # task prefix (the first element of a tuple key), so a stage's units must share one,
+    # and results still come back under the unit's own key.
+    from chirpsift.distributed import DaskExecutor
+
+    ex = DaskExecutor(client, attempts=1, threads=1)
+    for key in ("probe/Kestrel/1", "probe/Heron/2"):
+        ex.submit(key, len, key)
+    done = sorted((out.key, out.value) for out in (ex.next_done(), ex.next_done()))
+    assert done == [("probe/Heron/2", 13), ("probe/Kestrel/1", 15)]
+    prefixes = client.run_on_scheduler(
+        lambda dask_scheduler: sorted(p for p in dask_scheduler.task_prefixes if p.startswith("probe")))
+    assert prefixes == ["probe"]
+
+
 def test_in_process_attempts_are_bounded():
     from chirpsift.distributed import InProcess
 
