@@ -18,14 +18,20 @@ use std::f64::consts::PI;
 /// Bins between restarts of the rotation recurrence (a multiple of the 4 lanes).
 const RESTART: usize = 1024;
 
+/// Whether this processor runs the AVX2+FMA lanes (detected once by std, then cached).
+#[cfg(target_arch = "x86_64")]
+fn avx2_fma() -> bool {
+    std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
+}
+
 /// `(z, z', z'')` at `t` samples for products `re + i im` (equal lengths) summed over
 /// an `l`-point period.
 pub fn direct_sums(re: &[f64], im: &[f64], l: usize, t: f64) -> (Complex64, Complex64, Complex64) {
     assert_eq!(re.len(), im.len(), "split products of unequal lengths");
     #[cfg(target_arch = "x86_64")]
     {
-        if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
-            // SAFETY: the features the function enables were detected just above.
+        if avx2_fma() {
+            // SAFETY: the features the function enables were detected by avx2_fma.
             return unsafe { avx2::sums(re, im, l, t) };
         }
     }
@@ -38,8 +44,8 @@ pub fn value(re: &[f64], im: &[f64], l: usize, t: f64) -> Complex64 {
     assert_eq!(re.len(), im.len(), "split products of unequal lengths");
     #[cfg(target_arch = "x86_64")]
     {
-        if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
-            // SAFETY: the features the function enables were detected just above.
+        if avx2_fma() {
+            // SAFETY: the features the function enables were detected by avx2_fma.
             return unsafe { avx2::value(re, im, l, t) };
         }
     }
