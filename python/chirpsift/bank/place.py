@@ -12,11 +12,14 @@ Two published methods, in the flat coordinates of :mod:`chirpsift.bank.metric`
   cover keeps the ones the region's edges need; points beyond the equal-mass edge move
   onto it.
 - ``"stochastic"`` (aligned spins, or any region): random proposals drawn uniformly in
-  the region are kept when no template lies within the minimal mismatch of them
-  (Babak 2008; Harry, Allen & Sathyaprakash 2009), until fewer than
-  :data:`STOCHASTIC_STOP` of a batch are kept.
+  the chirp times and spins over the region (:meth:`Region.sample_in_chirp_times`, near
+  uniform in the template space's volume) are kept when no template lies within the
+  minimal mismatch of them (Babak 2008; Harry, Allen & Sathyaprakash 2009), until fewer
+  than :data:`STOCHASTIC_STOP` of a batch are kept. Proposals uniform in the component
+  masses drew the light corner, which holds much of the volume in little mass area, so
+  thinly that the stage stopped with it under-covered.
 
-Both end with the same check rounds: points drawn in the region (and on its edges)
+Both end with the same check rounds: points drawn in the region the same way (and on its edges)
 whose exact fitting factor (:func:`chirpsift.fitting_factor`) falls below the minimal
 match become templates, until a fresh draw finds fewer than :data:`FILL_TARGET` of
 them below it. The metric is an approximation; these rounds make the exact match the
@@ -353,7 +356,7 @@ def _stochastic(region: Region, setup: SweepSetup, radius: float, rng, max_templ
     bank = np.zeros((4, 0))
     xi_bank = np.zeros((0, setup.coordinates.transform.shape[0]))
     while True:
-        p = np.stack(region.sample(batch, seed=rng))
+        p = np.stack(region.sample_in_chirp_times(batch, seed=rng))
         xi = setup.xi(p)
         if xi_bank.shape[0]:
             d, _ = cKDTree(xi_bank).query(xi, k=1)
@@ -386,7 +389,8 @@ def _check_rounds(bank: np.ndarray, region: Region, setup: SweepSetup, mm: float
     for round_ in range(FILL_ROUNDS):
         n = max(FILL_POINTS, bank.shape[1] // 2)
         n_edge = int(EDGE_FRACTION * n)
-        pts = np.hstack([np.stack(region.sample(n - n_edge, seed=rng)), _edge_points(region, n_edge, rng)])
+        pts = np.hstack([np.stack(region.sample_in_chirp_times(n - n_edge, seed=rng)),
+                         _edge_points(region, n_edge, rng)])
         bar = None
         if progress:
             from tqdm.auto import tqdm
