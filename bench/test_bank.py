@@ -58,7 +58,7 @@ def test_region_a(benchmark, quick):
 
 
 @pytest.mark.skipif("not config.getoption('--bank-region-b')",
-                    reason="region (b) needs about 218,000 templates: 11 minutes on 2 cores (--bank-region-b)")
+                    reason="region (b) needs about 310,000 templates: 28 minutes on 2 cores (--bank-region-b)")
 def test_region_b(benchmark):
     rows = benchmark.pedantic(measure_placement, args=(print,), kwargs={"region_b": True}, rounds=1, iterations=1)
     benchmark.extra_info.update({r.key: r.value for r in rows})
