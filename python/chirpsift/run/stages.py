@@ -213,7 +213,7 @@ def plan(analysis) -> list[Unit]:
         for n in names:
             for span in found[n]:
                 label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
-                out.append(Unit(f"{layout}/{n}/{label}", layout, (f"{prefix}layouts/{n}/span-{label}.json",),
+                out.append(Unit(f"{layout}/{n}/{label}", layout, (_layout_file(prefix, n, label),),
                                 after, n, span.t0, paths))
         for n in names:
             for span in found[n]:
@@ -223,7 +223,7 @@ def plan(analysis) -> list[Unit]:
                     start = f"{span.t0 + a / span.sample_rate:.3f}"
                     for lo, hi in banks:
                         out.append(Unit(f"{stage}/{n}/{start}/{lo}-{hi - 1}", stage,
-                                        (f"{prefix}peaks/{n}/block-{start}-templates-{lo}-{hi - 1}.parquet",),
+                                        (_peaks_file(prefix, n, start, lo, hi - 1),),
                                         (*after, f"{layout}/{n}/{label}"), n, span.t0, paths, (lo, hi), (a, b)))
         merge = "merge" if stage == "search" else "inject-merge"
         out += [Unit(f"{merge}/{n}", merge, (f"{prefix}triggers/{n}.parquet",),
@@ -389,8 +389,14 @@ def _catalogue_search(analysis, folder: Path, sample_rate: float, templates=None
                            **settings)
 
 
-def _layout_file(prefix: str, site: str, span_t0: float) -> str:
-    return f"{prefix}layouts/{site}/span-{span_t0:.3f}.json"
+def _layout_file(prefix: str, site: str, span: str) -> str:
+    """Return the file a span's layout unit publishes (``span``: its start, s, with millisecond digits)."""
+    return f"{prefix}layouts/{site}/span-{span}.json"
+
+
+def _peaks_file(prefix: str, site: str, start: str, lo, last) -> str:
+    """Return the file a search unit publishes: the block from ``start`` s, templates ``lo`` to ``last``."""
+    return f"{prefix}peaks/{site}/block-{start}-templates-{lo}-{last}.parquet"
 
 
 def _layout(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
@@ -412,7 +418,7 @@ def _search(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     span = _span_of(analysis, folder, unit)
     search = _catalogue_search(analysis, folder, span.sample_rate, unit.templates)
     prefix = "injections/" if unit.stage == "inject-search" else ""
-    doc = json.loads((folder / _layout_file(prefix, unit.site, span.t0)).read_text(encoding="utf-8"))
+    doc = json.loads((folder / _layout_file(prefix, unit.site, f"{span.t0:.3f}")).read_text(encoding="utf-8"))
     layout = search.layout_from_dict(span, doc)
     bar = None
     if progress:
@@ -449,8 +455,8 @@ def _unit_file(prefix: str, key: str) -> str:
     m = _UNIT_OUTPUT.match(key)
     if m is None:
         m = _LAYOUT_KEY.match(key)
-        return f"{prefix}layouts/{m['site']}/span-{m['span']}.json"
-    return f"{prefix}peaks/{m['site']}/block-{m['start']}-templates-{m['lo']}-{m['last']}.parquet"
+        return _layout_file(prefix, m["site"], m["span"])
+    return _peaks_file(prefix, m["site"], m["start"], m["lo"], m["last"])
 
 
 def _check_unit_files(folder: Path, unit: Unit, prefix: str, upstream) -> tuple[dict, list]:
