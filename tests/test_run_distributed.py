@@ -9,6 +9,7 @@ dot-prefixed names (pyarrow's documented default), a killed process's work is lo
 
 import json
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -292,6 +293,20 @@ def test_units_of_a_stage_share_one_dask_task_prefix(client):
     assert prefixes == ["probe"]
 
 
+def test_local_workers_run_with_the_lengthened_housekeeping_intervals(client):
+    # The settings must reach the spawned worker processes, not only this one; Dask's own
+    # config reader is the outside truth of what each worker runs with.
+    from chirpsift.distributed import HOUSEKEEPING
+
+    def settings():
+        import dask
+
+        return {key: dask.config.get(key) for key in HOUSEKEEPING}
+
+    seen = client.run(settings)
+    assert len(seen) == 2 and all(got == HOUSEKEEPING for got in seen.values())
+
+
 def test_in_process_attempts_are_bounded():
     from chirpsift.distributed import InProcess
 
@@ -381,6 +396,17 @@ def test_batch_job_scripts_are_built_without_submitting(kind):
     assert "--nthreads 4" in worker and "--nworkers 2" in worker  # 8 cores: 2 workers of 4 threads
     assert "--lifetime 3h50m --lifetime-stagger 10m" in worker and "--resources chirpsift=1" in worker
     assert "export CHIRPSIFT_THREADS=4" in script and "source /opt/venv/bin/activate" in script
+    # The job's exports, read by Dask's own config reader in a fresh process, give the
+    # housekeeping intervals local workers get (a batch worker inherits nothing else).
+    from chirpsift.distributed import HOUSEKEEPING
+
+    exports = dict(re.findall(r"export (DASK_\w+)=([^;\s']+)", script))  # HTCondor: one line, ';'-separated
+    assert len(exports) == len(HOUSEKEEPING)
+    code = ("import dask, distributed, json; "
+            f"print(json.dumps({{k: dask.config.get(k) for k in {list(HOUSEKEEPING)!r}}}))")
+    out = subprocess.run([sys.executable, "-c", code], env={**ENV, **exports}, capture_output=True, text=True,
+                         timeout=60)
+    assert out.returncode == 0 and json.loads(out.stdout) == HOUSEKEEPING, out.stderr
     if kind == "slurm":
         for line in ("#SBATCH -p long", "#SBATCH -A grp-gw", "#SBATCH -t 04:00:00", "#SBATCH --cpus-per-task=8",
                      "#SBATCH --exclusive"):

@@ -6,7 +6,8 @@
 ``cluster``
     The one cluster factory (:func:`make_client`): a ``LocalCluster``, a running
     scheduler, HTCondor or SLURM through dask-jobqueue (:func:`batch_cluster` builds
-    their job scripts without submitting).
+    their job scripts without submitting), all with Dask's housekeeping intervals
+    lengthened for long units (:data:`HOUSEKEEPING`).
 ``executor``
     Run named tasks in-process or on Dask with bounded attempts (:func:`executor`).
 
@@ -15,9 +16,9 @@ other than ``"process"`` is used. A workflow over the numpy API: never imports t
 compiled core.
 """
 
-from .cluster import batch_cluster, make_client
+from .cluster import HOUSEKEEPING, batch_cluster, make_client
 from .executor import DaskExecutor, InProcess, Outcome, executor
 from .settings import DEFAULT_TEMPLATES_PER_UNIT, ENGINE_KEYS, ENGINE_KINDS, EngineSettings, engine_settings
 
 __all__ = ["EngineSettings", "ENGINE_KEYS", "ENGINE_KINDS", "DEFAULT_TEMPLATES_PER_UNIT", "engine_settings",
-           "make_client", "batch_cluster", "executor", "InProcess", "DaskExecutor", "Outcome"]
+           "make_client", "batch_cluster", "HOUSEKEEPING", "executor", "InProcess", "DaskExecutor", "Outcome"]
