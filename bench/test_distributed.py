@@ -16,6 +16,9 @@ the default ``seconds-per-unit``):
 - the scheduling overhead per unit: ``(workers x wall - sum of unit compute) / units``
   over the mean compute of a unit (target < 2 %). Idle time at the end, when fewer units
   remain than workers, counts as overhead, so this is an upper bound;
+- the gap between units: the seconds each worker sits between the end of one unit's
+  compute and the start of its next (from Dask's task stream), over the mean compute of
+  a unit: the scheduling cost proper, without the end of the run's tail;
 - the bytes of each unit's task sent to a worker and of its result (measured by
   pickling: no strain or trigger array travels through the scheduler);
 - the per-template throughput (template-seconds of data per second of one thread), the
@@ -105,6 +108,20 @@ def _two_processes_at_once(paths) -> float:
             p.wait()
 
 
+def _gaps_between_units(stream) -> list[float]:
+    """Seconds each worker sat between the end of one unit's compute and the start of its next."""
+    by_worker: dict = {}
+    for task in stream:
+        for part in task["startstops"]:
+            if part["action"] == "compute":
+                by_worker.setdefault(task["worker"], []).append((part["start"], part["stop"]))
+    gaps = []
+    for spans in by_worker.values():
+        spans.sort()
+        gaps += [b[0] - a[1] for a, b in zip(spans, spans[1:])]
+    return gaps or [0.0]
+
+
 def _one_round(root: Path, size: str, block: float | None, client) -> dict:
     """Time the in-process run, two of them at once, then the cluster's, on fresh copies of the scenario."""
     from chirpsift.run import load_analysis, run_analysis
@@ -119,9 +136,13 @@ def _one_round(root: Path, size: str, block: float | None, client) -> dict:
     r1 = run_analysis(a1, stop_after="search")
     t1 = time.perf_counter() - t
     t_pair = _two_processes_at_once(pair)
-    t = time.perf_counter()
-    r2 = run_analysis(a2, stop_after="search", client=client)
-    t2 = time.perf_counter() - t
+    from distributed import get_task_stream
+
+    with get_task_stream(client) as stream:
+        t = time.perf_counter()
+        r2 = run_analysis(a2, stop_after="search", client=client)
+        t2 = time.perf_counter() - t
+    gaps = _gaps_between_units(stream.data)
     units = [k for k in r2.ran if k.startswith(("layout/", "search/"))]
     compute = sum(r2.seconds[k] for k in units)
     mean = compute / len(units)
@@ -130,6 +151,8 @@ def _one_round(root: Path, size: str, block: float | None, client) -> dict:
         "throughput_ratio": t1 / t2, "two_processes_s": t_pair, "two_processes_ratio": 2 * t1 / t_pair,
         "mean_unit_compute_s": mean, "overhead_per_unit_s": (2 * t2 - compute) / len(units),
         "overhead_ratio": (2 * t2 - compute) / len(units) / mean,
+        "gap_between_units_s": float(np.mean(gaps)), "gap_between_units_max_s": float(np.max(gaps)),
+        "gap_ratio": float(np.mean(gaps)) / mean,
         "bytes_sent_per_unit": float(np.mean([r2.sent[k] for k in units])),
         "bytes_received_per_unit": float(np.mean([r2.received[k] for k in units])),
         "layout_s": float(sum(r1.seconds[k] for k in r1.ran if k.startswith("layout/"))),
@@ -165,7 +188,8 @@ def run(size: str = "full", folder: str | None = None, block: float | None = Non
         "templates_per_unit": engine.templates_per_unit, "seconds_per_unit": engine.seconds_per_unit,
         "units": len(units), "search_units": sum(k.startswith("search/") for k in units), "rounds": rounds,
     }
-    for name in ("throughput_ratio", "two_processes_ratio", "overhead_ratio", "two_processes_s",
+    for name in ("throughput_ratio", "two_processes_ratio", "overhead_ratio", "gap_ratio", "gap_between_units_s",
+                 "gap_between_units_max_s", "two_processes_s",
                  "in_process_1_thread_s", "local_2x1_s", "mean_unit_compute_s",
                  "overhead_per_unit_s", "bytes_sent_per_unit", "bytes_received_per_unit", "layout_s",
                  "template_seconds_per_second_1_thread"):
