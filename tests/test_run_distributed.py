@@ -416,6 +416,14 @@ def test_batch_job_scripts_are_built_without_submitting(kind):
         assert "MY.DaskWorkerDisk = 4294967296" in script
 
 
+def test_the_readme_gives_self_started_workers_the_job_scripts_exports():
+    # Consistency test of the docs: workers started by hand get the same lines as batch jobs.
+    from chirpsift.distributed.cluster import _housekeeping_exports
+
+    readme = (Path(TESTS).parent / "README.md").read_text()
+    assert all(f"\n{line}\n" in readme for line in _housekeeping_exports())
+
+
 def test_the_base_install_never_imports_dask(tmp_path):
     path = write_scenario(tmp_path)
     code = ("import sys; from chirpsift.run import load_analysis, plan; import chirpsift.distributed; "
