@@ -1,9 +1,9 @@
 """Scale-out of ``chirpsift run``: 2 Dask worker processes of 1 thread against 1 in-process thread.
 
 One run measures, on the same analysis and the same units (the layout and search stages:
-two sites, one span each, laid out once per span, a bank of binary-neutron-star templates
-split into sub-banks of the default ``templates-per-unit``, one block of time per span at
-the default ``seconds-per-unit``):
+two sites, one span each, laid out once per span from one scan and one gates unit, a
+bank of binary-neutron-star templates split into sub-banks of the default
+``templates-per-unit``, one block of time per span at the default ``seconds-per-unit``):
 
 - the throughput ratio: in-process time at 1 thread over the time of a ``LocalCluster``
   of 2 worker processes x 1 thread (target >= 1.8; the cluster's start, in which each
@@ -143,7 +143,7 @@ def _one_round(root: Path, size: str, block: float | None, client) -> dict:
         r2 = run_analysis(a2, stop_after="search", client=client)
         t2 = time.perf_counter() - t
     gaps = _gaps_between_units(stream.data)
-    units = [k for k in r2.ran if k.startswith(("layout/", "search/"))]
+    units = [k for k in r2.ran if k.startswith(("scan/", "gates/", "layout/", "search/"))]
     compute = sum(r2.seconds[k] for k in units)
     mean = compute / len(units)
     return {
@@ -157,7 +157,7 @@ def _one_round(root: Path, size: str, block: float | None, client) -> dict:
         "bytes_received_per_unit": float(np.mean([r2.received[k] for k in units])),
         "layout_s": float(sum(r1.seconds[k] for k in r1.ran if k.startswith("layout/"))),
         "template_seconds_per_second_1_thread": templates * seconds * len(SITES) / sum(
-            r1.seconds[k] for k in r1.ran if k.startswith(("layout/", "search/"))),
+            r1.seconds[k] for k in r1.ran if k.startswith(("scan/", "gates/", "layout/", "search/"))),
         "identical_outputs": _outputs(root / "in-process") == _outputs(root / "local"),
     }
 

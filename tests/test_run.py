@@ -234,7 +234,7 @@ def test_the_command_runs_and_reports(done, capsys):
     folder, path, _ = done
     assert main(["run", str(path), "--quiet"]) == 0
     text = capsys.readouterr().out
-    assert "0 units run, 14 already complete" in text and "report.html" in text
+    assert f"0 units run, {len(plan(load_analysis(path)))} already complete" in text and "report.html" in text
     assert text.count("where each second went") == 2 and "Cautions:" in text
     top = re.search(r"^\s+1\s+(\d+\.\d+)\s+14.00 \+ 12.00\s", text, flags=re.M)  # the injected binary ranks first
     assert top and abs(float(top.group(1)) - T_SIGNAL) < 0.01
@@ -260,9 +260,10 @@ def test_quiet_progress_prints_a_line_per_n_units_or_per_minute():
 def test_a_run_that_finds_nothing_publishes_empty_tables_and_says_so(tmp_path):
     path = _edit(write_scenario(tmp_path, slides=0), "min-snr = 5.0", "min-snr = 30.0")
     first = run_analysis(load_analysis(path), stop_after="search")
-    assert first.ran[0] == "bank" and len(first.ran) == 7  # Kestrel: one span; Heron: two, split by the gap
-    assert all(k.startswith(("layout/Kestrel/", "layout/Heron/")) for k in first.ran[1:4])
-    assert all(k.startswith(("search/Kestrel/", "search/Heron/")) for k in first.ran[4:])  # one block each
+    # Kestrel: one span; Heron: two, split by the gap; one block each: a scan, gates, layout and search unit per span
+    assert first.ran[0] == "bank" and len(first.ran) == 13
+    for k, stage in enumerate(("scan", "gates", "layout", "search")):
+        assert all(key.startswith((f"{stage}/Kestrel/", f"{stage}/Heron/")) for key in first.ran[1 + 3 * k:4 + 3 * k])
     rest = run_analysis(load_analysis(path))
     assert rest.skipped == first.ran and rest.ran[-1] == "report"
     out = tmp_path / "out"
@@ -321,7 +322,8 @@ def test_span_units_merge_to_the_whole_catalogues_search_and_a_short_span_is_rep
     np.savez(tmp_path / "kestrel" / "kestrel-99.npz", strain=short, sample_rate=FS, t0=T0 + 600.0)
     result = run_analysis(analysis, stop_after="merge")
     label = f"{T0 + 600.0:.3f}"
-    assert result.ran == [f"layout/Kestrel/{label}", f"search/Kestrel/{label}/0-2", "merge/Kestrel"]  # a new span
+    assert result.ran == [f"scan/Kestrel/{label}", f"gates/Kestrel/{label}", f"layout/Kestrel/{label}",
+                          f"search/Kestrel/{label}/0-2", "merge/Kestrel"]  # a new span
     merged, meta = read_triggers(tmp_path / "out" / "triggers" / "Kestrel.parquet")
     cat = read_catalogue(list(analysis.data["Kestrel"].files))
     settings = analysis.search.as_dict()

@@ -141,7 +141,15 @@ def test_the_plan_splits_spans_into_blocks_and_sub_banks(blocked):
         f"layout/Kestrel/{T0:.3f}", f"layout/Heron/{T0:.3f}", f"layout/Heron/{T0 + 320:.3f}"]
     assert f"search/Kestrel/{T0 + 660:.3f}/2-3" in {u.key for u in search}  # the last block, the second sub-bank
     assert {u.templates for u in search} == {(0, 2), (2, 4)}
-    assert result.ran == [u.key for u in units if u.stage in ("bank", "layout", "search", "merge")]
+    ran = [u for u in units if u.stage in ("bank", "scan", "gates", "layout", "search", "merge")]
+    assert sorted(result.ran) == sorted(u.key for u in ran)
+    position = {k: i for i, k in enumerate(result.ran)}
+    assert all(position[k] < position[u.key] for u in ran for k in u.after)  # each after its inputs
+    # the layout's first steps run per block: Kestrel's 12, Heron's 5 + 7 (one scan and one gates unit each)
+    for stage in ("scan", "gates"):
+        assert [u.block for u in units if u.stage == stage and u.site == "Kestrel"] == [
+            (a, a + int(BLOCK * FS)) for a in range(0, int(DURATION * FS), int(BLOCK * FS))]
+        assert sum(u.stage == stage and u.site == "Heron" for u in units) == 12
 
 
 def test_merged_blocks_equal_the_whole_catalogues_search_and_the_chain_across_edges_is_kept(blocked):
@@ -260,3 +268,79 @@ def test_a_merge_planned_before_the_files_changed_names_the_change(blocked):
             execute(merge, analysis)
     finally:
         extra.unlink()
+
+
+def test_a_span_laid_out_block_by_block_equals_the_whole_span_laid_out(tmp_path):
+    # Outside truths: where the non-finite samples were put, and where the glitch is (each
+    # must be excluded or gated); consistency: the layout the run publishes from its
+    # per-block scan and gates units equals CatalogueSearch.lay_out + find_gates of the
+    # whole span, which search_catalogue uses.
+    n = int(DURATION * FS)
+    x = synthetic.colored_gaussian_noise(n, FS, "gen2-zero-detuned", seed=11, f_low=20.0)
+    nan_runs = [(int(119.5 * FS), int(120.5 * FS)), (int(599.9 * FS), int(600.1 * FS))]  # across block edges
+    for a, b in nan_runs:
+        x[a:b] = np.nan
+    # a loud burst at the edge of the second stretch's second whitening block (64 x 2 s from
+    # its start at 120.5 s), so its loud samples come from two gates units
+    t = np.arange(n) / FS
+    glitch = 120.5 + 128.0
+    x += 500 * np.nanstd(x) * np.exp(-0.5 * ((t - glitch) / 0.05) ** 2) * np.sin(2 * np.pi * 60.0 * (t - glitch))
+    for site in ("kestrel", "heron"):  # a run needs two sites; the second holds the same data
+        (tmp_path / site).mkdir()
+        np.savez(tmp_path / site / "k.npz", strain=x, sample_rate=FS, t0=T0)
+    BANK.save(tmp_path / "bank.parquet")
+    (tmp_path / "sites.toml").write_text(Path(EXAMPLE_SITES).read_text())
+    path = tmp_path / "analysis.toml"
+    path.write_text(f"""\
+version = 1
+output = "out"
+
+[sites]
+file = "sites.toml"
+
+[data.Kestrel]
+files = "kestrel/*.npz"
+
+[data.Heron]
+files = "heron/*.npz"
+
+[bank]
+file = "bank.parquet"
+
+[search]
+f-low = {F_LOW}
+welch-duration = 2.0
+segment-duration = {SEGMENT}
+gate-threshold = 20.0
+nonfinite = "skip"
+
+[network]
+slides = 0
+
+[engine]
+seconds-per-unit = {BLOCK}
+""")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = run_analysis(load_analysis(path), stop_after="layout")
+    assert sum(k.startswith("scan/Kestrel/") for k in result.ran) == 12
+    assert sum(k.startswith("gates/Kestrel/") for k in result.ran) == 12
+    published = json.loads((tmp_path / "out" / "layouts" / "Kestrel" / f"span-{T0:.3f}.json").read_text())
+
+    span = read_catalogue(str(tmp_path / "kestrel" / "k.npz")).spans[0]
+    search = CatalogueSearch(FS, BANK, f_low=F_LOW, welch_duration=2.0, segment_duration=SEGMENT,
+                             gate_threshold=20.0, nonfinite="skip")
+    whole = search.find_gates(search.lay_out(span)).as_dict()
+    for key in ("vetoed", "nonfinite", "short", "stretches", "gates"):
+        assert published[key] == whole[key], key
+    assert published["nonfinite"] == [list(r) for r in nan_runs]
+    gates = [(s[0] + a, s[0] + b) for s, gs in zip(published["stretches"], published["gates"]) for a, b in gs]
+    assert len(gates) == 1 and gates[0][0] < glitch * FS < gates[0][1]
+    # each block's units read about their block: the scans tile the span, and a gates unit
+    # reads its whitening blocks (128 s) with their pads, or nothing
+    scans = [json.loads(p.read_text()) for p in sorted((tmp_path / "out" / "scans" / "Kestrel").glob("*.json"))]
+    assert sum(d["samples_read"] for d in scans) == n
+    found = [json.loads(p.read_text()) for p in (tmp_path / "out" / "gates" / "Kestrel").glob("*.json")]
+    assert max(d["samples_read"] for d in found) <= (128 + 2 * 2) * FS + 2
+    # the burst's gate was joined from the loud samples of two units (blocks 240-300 s and 120-180 s)
+    assert sum(any(d["gates"][k] for k in range(len(d["gates"]))) for d in found) == 2

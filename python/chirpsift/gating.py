@@ -6,7 +6,7 @@ import numpy as np
 
 from .spectrum import psd_to_grid, truncate_inverse_psd, welch, whiten
 
-__all__ = ["find_gates", "apply_gates", "GatingWarning"]
+__all__ = ["find_gates", "apply_gates", "join_gates", "whitening_blocks", "loud_samples_of_block", "GatingWarning"]
 
 
 class GatingWarning(UserWarning):
@@ -17,39 +17,70 @@ class GatingWarning(UserWarning):
 BLOCK_SEGMENTS = 64
 
 
-def _loud_samples(strain, sample_rate, threshold, f_low, welch_duration):
-    """Indices whose whitened amplitude exceeds ``threshold``, block by block.
+def whitening_blocks(n: int, sample_rate: float, welch_duration: float) -> list[int]:
+    """Starts of the whitening blocks :func:`find_gates` examines in ``n`` samples.
 
-    Each block of ``BLOCK_SEGMENTS * welch_duration`` is whitened with its own
-    median PSD (so slow changes of the noise level are followed and memory stays
-    bounded on long data), padded by ``welch_duration`` of neighbouring data
-    so the truncated whitening filter's wrap-around never reaches the block.
+    Each block of ``BLOCK_SEGMENTS * welch_duration`` is whitened with its own median
+    PSD, so its loud samples depend on it and its pads alone: blocks can be examined
+    apart (:func:`loud_samples_of_block`) and their gates joined (:func:`join_gates`).
+    """
+    return list(range(0, n, int(round(BLOCK_SEGMENTS * welch_duration * sample_rate))))
+
+
+def loud_samples_of_block(strain, sample_rate, threshold, f_low, welch_duration, start):
+    """Indices whose whitened amplitude exceeds ``threshold`` in the whitening block from ``start``.
+
+    The block (one of :func:`whitening_blocks`) is whitened with its own median PSD
+    (so slow changes of the noise level are followed and memory stays bounded on long
+    data), padded by ``welch_duration`` of neighbouring data so the truncated whitening
+    filter's wrap-around never reaches it. The data's own first and last half filter
+    length are never examined.
     """
     n = strain.shape[0]
     core = int(round(BLOCK_SEGMENTS * welch_duration * sample_rate))
     pad = int(round(welch_duration * sample_rate))
     edge = pad // 2  # the data's own ends: corrupted, never examined
-    loud = []
-    for start in range(0, n, core):
-        lo, hi = max(0, start - pad), min(n, start + core + pad)
-        if (hi - lo) % 2:  # the truncation works on rfft grids of even length
-            if lo > 0:
-                lo -= 1
-            else:
-                hi -= 1
-        block = strain[lo:hi]
-        m = block.shape[0]
-        freqs, psd = welch(block, sample_rate, welch_duration, average="median")
-        grid = psd_to_grid(freqs, psd, sample_rate / m, m // 2 + 1)
-        smooth = truncate_inverse_psd(grid, sample_rate, welch_duration, f_low)
-        white = whiten(block, smooth, sample_rate, f_low)
-        a, b = max(start, edge), min(start + core, n - edge)
-        if b > a:
-            loud.append(np.flatnonzero(np.abs(white[a - lo:b - lo]) > threshold) + a)
-    return np.concatenate(loud) if loud else np.zeros(0, dtype=int)
+    lo, hi = max(0, start - pad), min(n, start + core + pad)
+    if (hi - lo) % 2:  # the truncation works on rfft grids of even length
+        if lo > 0:
+            lo -= 1
+        else:
+            hi -= 1
+    a, b = max(start, edge), min(start + core, n - edge)
+    if b <= a:
+        return np.zeros(0, dtype=np.int64)
+    block = strain[lo:hi]
+    m = block.shape[0]
+    freqs, psd = welch(block, sample_rate, welch_duration, average="median")
+    grid = psd_to_grid(freqs, psd, sample_rate / m, m // 2 + 1)
+    smooth = truncate_inverse_psd(grid, sample_rate, welch_duration, f_low)
+    white = whiten(block, smooth, sample_rate, f_low)
+    return np.flatnonzero(np.abs(white[a - lo:b - lo]) > threshold) + a
 
 
-def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, half_width=0.25):
+def join_gates(gates):
+    """Merge sorted gates ``(start, stop)`` that touch or overlap, as :func:`find_gates` merges them.
+
+    Gates of consecutive whitening blocks, each list already merged, join into the gates
+    of the whole: the rule is applied in start order, and a block's gates start after
+    the previous block's.
+
+    Examples
+    --------
+    >>> from chirpsift.gating import join_gates
+    >>> join_gates([(0, 5), (5, 9), (12, 14)])
+    [(0, 9), (12, 14)]
+    """
+    out: list[tuple[int, int]] = []
+    for a, b in gates:
+        if out and a <= out[-1][1]:
+            out[-1] = (out[-1][0], max(out[-1][1], int(b)))
+        else:
+            out.append((int(a), int(b)))
+    return out
+
+
+def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, half_width=0.25, blocks=None):
     """Sample intervals around whitened samples louder than ``threshold``.
 
     Parameters
@@ -71,6 +102,11 @@ def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, hal
         (they are corrupted by the circular filter).
     half_width : float
         Seconds zeroed on either side of each loud sample.
+    blocks : iterable of int, optional
+        Examine only the whitening blocks starting at these samples (some of
+        :func:`whitening_blocks`, in increasing order; default all). The gates of
+        disjoint sets of blocks, concatenated in block order, give the gates of their
+        union through :func:`join_gates`.
 
     Returns
     -------
@@ -78,16 +114,11 @@ def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, hal
         Merged, sorted half-open sample intervals to zero.
     """
     n = strain.shape[0]
-    loud = _loud_samples(strain, sample_rate, threshold, f_low, welch_duration)
+    if blocks is None:
+        blocks = whitening_blocks(n, sample_rate, welch_duration)
+    loud = [loud_samples_of_block(strain, sample_rate, threshold, f_low, welch_duration, start) for start in blocks]
     hw = int(round(half_width * sample_rate))
-    gates: list[tuple[int, int]] = []
-    for i in loud:
-        a, b = max(0, i - hw), min(n, i + hw + 1)
-        if gates and a <= gates[-1][1]:
-            gates[-1] = (gates[-1][0], max(gates[-1][1], b))
-        else:
-            gates.append((a, b))
-    return gates
+    return join_gates((max(0, i - hw), min(n, i + hw + 1)) for i in (np.concatenate(loud) if loud else []))
 
 
 def apply_gates(strain, sample_rate, gates, taper=0.125, *, start=0):

@@ -217,14 +217,14 @@ def _lay_out(x, sample_rate, t0, settings, psd, longest):
 
 
 # --- gating ---
-def find_stretch_gates(x, sample_rate, settings):
+def find_stretch_gates(x, sample_rate, settings, blocks=None):
     """Return the gates (sample intervals of ``x``) of one stretch ``x``, an array or a
     lazy view that slices into arrays (see :func:`chirpsift.gating.find_gates`); none
-    without a ``gate_threshold``."""
+    without a ``gate_threshold``. ``blocks``: only the whitening blocks starting there."""
     if settings.gate_threshold is None:
         return []
     return find_gates(x, sample_rate, settings.gate_threshold, f_low=settings.f_low,
-                      welch_duration=settings.welch_duration, half_width=settings.gate_half_width)
+                      welch_duration=settings.welch_duration, half_width=settings.gate_half_width, blocks=blocks)
 
 
 def _gate(x, sample_rate, settings):

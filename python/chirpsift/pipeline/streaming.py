@@ -7,11 +7,13 @@ catalogue's files as they are needed, each step a method of :class:`CatalogueSea
 filtering, a site's ranking):
 
 1. per span of abutting files, vetoed times and non-finite runs (found by reading the
-   span in chunks of :data:`SCAN_SAMPLES`) split it into stretches, planned exactly as
-   :func:`chirpsift.search` plans the stretches between non-finite runs (segments from
-   :func:`chirpsift.segments.plan_segments` over the whole stretch);
+   span in chunks of :data:`SCAN_SAMPLES`, all at once or block by block) split it into
+   stretches, planned exactly as :func:`chirpsift.search` plans the stretches between
+   non-finite runs (segments from :func:`chirpsift.segments.plan_segments` over the whole
+   stretch);
 2. gates are found per stretch in the whitening blocks of
-   :func:`chirpsift.gating.find_gates`, read one at a time;
+   :func:`chirpsift.gating.find_gates`, read one at a time (all at once, or the whitening
+   blocks that start in one block of the span, then joined);
 3. each stretch is filtered segment by segment; a segment and the block its PSD is
    estimated from are read (and gated) when the search reaches them, and samples are
    dropped once no later segment needs them;
@@ -34,7 +36,7 @@ import numpy as np
 from ..bank import Bank
 from ..clustering import cluster_in_time
 from ..condition import find_nonfinite_runs, stretches_between, subtract_intervals
-from ..gating import apply_gates
+from ..gating import apply_gates, join_gates, whitening_blocks
 from ..io.catalogue import Catalogue, Span
 from ..io.vetoes import check_vetoes
 from ..segments import DURATION_MARGIN, padding, plan_segments
@@ -59,7 +61,7 @@ from .single_site import (
 )
 
 __all__ = ["search_catalogue", "cluster_across_bank", "CatalogueSearch", "SpanLayout", "Filtered", "PEAK_DTYPE",
-           "SCAN_SAMPLES"]
+           "SCAN_SAMPLES", "join_runs"]
 
 #: Samples read at a time when a span is scanned for non-finite samples.
 SCAN_SAMPLES = 1 << 20
@@ -163,17 +165,25 @@ def _union(*lists) -> list[tuple[int, int]]:
     return out
 
 
-def _nonfinite_runs(span: Span) -> tuple[list[tuple[int, int]], int]:
-    """Non-finite runs of a span, read in chunks; also the samples read."""
+def _nonfinite_runs(span: Span, start: int = 0, stop: int | None = None) -> tuple[list[tuple[int, int]], int]:
+    """Non-finite runs of samples ``[start, stop)`` of a span (default all), read in chunks; also the samples read."""
+    stop = span.n if stop is None else stop
     runs: list[tuple[int, int]] = []
-    for lo in range(0, span.n, SCAN_SAMPLES):
-        hi = min(lo + SCAN_SAMPLES, span.n)
-        for a, b in find_nonfinite_runs(span.read(lo, hi)):
-            if runs and runs[-1][1] == lo + a:  # a run across the chunk boundary
-                runs[-1] = (runs[-1][0], lo + b)
-            else:
-                runs.append((lo + a, lo + b))
-    return runs, span.n
+    for lo in range(start, stop, SCAN_SAMPLES):
+        hi = min(lo + SCAN_SAMPLES, stop)
+        runs = join_runs(runs, [(lo + a, lo + b) for a, b in find_nonfinite_runs(span.read(lo, hi))])
+    return runs, stop - start
+
+
+def join_runs(first, then) -> list[tuple[int, int]]:
+    """Non-finite runs of two abutting pieces of a span, a run across their boundary made one."""
+    runs = list(first)
+    for a, b in then:
+        if runs and runs[-1][1] == a:
+            runs[-1] = (runs[-1][0], b)
+        else:
+            runs.append((a, b))
+    return runs
 
 
 def _nothing_to_search(plans, settings, longest, pads, fixed_length, fs):
@@ -284,7 +294,16 @@ class CatalogueSearch:
         self._psd_cache: dict = {}
 
     # --- 1. the layout of a span ---
-    def lay_out(self, span: Span, vetoes=()) -> SpanLayout:
+    @staticmethod
+    def scan(span: Span, block=None) -> tuple[list[tuple[int, int]], int]:
+        """Non-finite runs of samples ``block = (a, b)`` of a span (default all), read in chunks.
+
+        Returns the runs (sample positions in the span) and the samples read. The runs of
+        blocks that tile the span, joined in order by :func:`join_runs`, are the span's.
+        """
+        return _nonfinite_runs(span, *(block or (0, span.n)))
+
+    def lay_out(self, span: Span, vetoes=(), *, scanned=None, strict=True) -> SpanLayout:
         """Split a span into stretches and plan their segments (reads it once, in chunks).
 
         Parameters
@@ -292,6 +311,11 @@ class CatalogueSearch:
         span : chirpsift.io.catalogue.Span
         vetoes : iterable of (float, float), optional
             Checked veto intervals (s, :func:`chirpsift.io.vetoes.check_vetoes`).
+        scanned : (runs, samples read), optional
+            The span's non-finite runs, already found by :meth:`scan` (then nothing is read).
+        strict : bool
+            Refuse non-finite samples outside the vetoes when ``nonfinite="error"``
+            (``False``: plan the stretches between them all the same).
 
         Returns
         -------
@@ -306,9 +330,9 @@ class CatalogueSearch:
         """
         settings, fs = self.settings, span.sample_rate
         vetoed = span.samples_within(vetoes)
-        runs, read = _nonfinite_runs(span)
+        runs, read = self.scan(span) if scanned is None else scanned
         nonfinite = subtract_intervals(runs, vetoed)
-        if nonfinite and settings.nonfinite == "error":
+        if nonfinite and settings.nonfinite == "error" and strict:
             a, b = nonfinite[0]
             count = sum(y - x for x, y in nonfinite)
             raise ValueError(
@@ -364,15 +388,42 @@ class CatalogueSearch:
                 ExcludedDataWarning, stacklevel=stacklevel + 1)
 
     # --- 2. gates ---
-    def find_gates(self, layout: SpanLayout) -> SpanLayout:
-        """Return ``layout`` with the gates of each stretch (reads each stretch once, by block)."""
-        read, largest, gates = layout.samples_read, layout.largest, []
+    def find_gates(self, layout: SpanLayout, block=None) -> SpanLayout:
+        """Return ``layout`` with the gates of each stretch (reads each stretch once, by whitening block).
+
+        With ``block = (a, b)``, only the whitening blocks
+        (:func:`chirpsift.gating.whitening_blocks`, counted from each stretch's start)
+        that start at a sample ``a <= k < b`` of the span are examined: blocks that tile
+        the span share out the whitening blocks, and their gates, joined stretch by
+        stretch in block order (:meth:`join_gates`), are the gates of the whole.
+        ``samples_read`` and ``largest`` then count this block's reads alone.
+        """
+        read, largest = (0, 0) if block is not None else (layout.samples_read, layout.largest)
+        gates = []
+        fs, settings = self.sample_rate, self.settings
         for s in layout.stretches:
+            starts = None
+            if block is not None:
+                starts = [k for k in whitening_blocks(s.stop - s.start, fs, settings.welch_duration)
+                          if block[0] <= s.start + k < block[1]]
+                if not starts:
+                    gates.append([])
+                    continue
             view = _StretchData(layout.span, s.start, s.stop)
-            gates.append(find_stretch_gates(view, self.sample_rate, self.settings))
+            gates.append(find_stretch_gates(view, fs, settings, blocks=starts))
             read += view.samples_read
             largest = max(largest, view.largest)
         return layout._replace(gates=gates, samples_read=read, largest=largest)
+
+    @staticmethod
+    def join_gates(layout: SpanLayout, parts) -> SpanLayout:
+        """Return ``layout`` with each stretch's gates joined from ``parts``.
+
+        ``parts``: the :meth:`find_gates` results (gates per stretch) of blocks that tile
+        the span, in block order.
+        """
+        gates = [join_gates(g for part in parts for g in part[k]) for k in range(len(layout.stretches))]
+        return layout._replace(gates=gates)
 
     def check_gates(self, layouts, *, allow_empty=False, stacklevel=2) -> None:
         """Warn (:class:`GatingWarning`) when gates take analysed time.

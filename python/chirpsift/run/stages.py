@@ -10,11 +10,17 @@ clock time, no host name in any output), so a unit can be redone at any time.
 unit key                                publishes                                 what
 ======================================  ========================================  ===================================
 ``bank``                                ``bank.parquet``                          the template bank (Bank.save layout)
-``layout/<site>/<t0>``                  ``layouts/<site>/span-<t0>.json``         one span of abutting files read
-                                                                                  once: its stretches, segment plans,
-                                                                                  gates, vetoed and non-finite samples
+``scan/<site>/<start>``                 ``scans/<site>/block-<start>.json``       the non-finite runs of one block of
+                                                                                  time (:meth:`~chirpsift.pipeline.
+                                                                                  CatalogueSearch.scan`)
+``gates/<site>/<start>``                ``gates/<site>/block-<start>.json``       the gates from the whitening blocks
+                                                                                  that start in the block
                                                                                   (:meth:`~chirpsift.pipeline.
-                                                                                  CatalogueSearch.lay_out`)
+                                                                                  CatalogueSearch.find_gates`)
+``layout/<site>/<t0>``                  ``layouts/<site>/span-<t0>.json``         one span of abutting files: its
+                                                                                  stretches, segment plans, gates,
+                                                                                  vetoed and non-finite samples, from
+                                                                                  its blocks' scans and gates
 ``search/<site>/<start>/<lo>-<hi>``     ``peaks/<site>/block-<start>-``           the segments of one block of time
                                         ``templates-<lo>-<hi>.parquet``           (from ``<start>`` s) filtered with
                                                                                   templates lo to hi: their kernel
@@ -26,6 +32,7 @@ unit key                                publishes                               
 ``background``                          ``background.parquet``                    time-slide coincidences
 ``candidates``                          ``candidates.parquet``                    zero-lag coincidences with FARs
 ``injections``                          ``injections/injections.parquet``         simulated binaries
+``inject-gates/<site>/<start>``         ``injections/gates/...``                  a block's gates with the signals
 ``inject-layout/<site>/<t0>``           ``injections/layouts/...``                a span laid out with the signals
 ``inject-search/<site>/<start>/...``    ``injections/peaks/...``                  a block filtered with the signals
 ``inject-merge/<site>``                 ``injections/triggers/<site>.parquet``    the site's blocks in one table
@@ -35,20 +42,26 @@ unit key                                publishes                               
 ======================================  ========================================  ===================================
 
 Unit size: one layout unit per span of abutting files (``<t0>`` its start time, in s with
-millisecond digits), and one search unit per block of ``seconds-per-unit`` seconds of the
-span (``[engine]``; blocks counted from the span's start, ``<start>`` the block's start
-time, the last block shorter) and sub-bank of ``templates-per-unit`` templates
-(``<lo>-<hi>`` the first and last template, counted from 0). The plan follows from the
-files' headers and the bank alone, before any search unit runs.
+millisecond digits); per block of ``seconds-per-unit`` seconds of the span
+(``[engine]``; blocks counted from the span's start, ``<start>`` the block's start time,
+the last block shorter), one scan unit, one gates unit and one search unit per sub-bank
+of ``templates-per-unit`` templates (``<lo>-<hi>`` the first and last template, counted
+from 0). The plan follows from the files' headers and the bank alone, before any unit
+runs.
 
 Each step is a method of :class:`~chirpsift.pipeline.streaming.CatalogueSearch`, the
-steps :func:`~chirpsift.pipeline.search_catalogue` runs in one process. The layout unit
-reads its span once (non-finite samples, then gates per stretch, both in chunks) and
-publishes the plan of the whole span as :func:`~chirpsift.pipeline.search_catalogue`
-makes it (segments planned over each whole stretch from the whole bank's longest
-template). A search unit reads the layout and only its own segments and the blocks their
-PSDs come from; a segment belongs to the block where its valid output starts, so the
-blocks share out every segment once. It publishes the kernel's peaks of its segments
+steps :func:`~chirpsift.pipeline.search_catalogue` runs in one process. A span is laid
+out in three steps, so that no unit reads more than about a block: the scan units read
+their blocks for non-finite samples; each gates unit plans the span's stretches from all
+its scans (reading no strain) and examines the gating whitening blocks that start in its
+block (each whitened with its own PSD, so they can be examined apart); the layout unit
+joins the runs and gates (reading no strain) and publishes the plan of the whole span as
+:func:`~chirpsift.pipeline.search_catalogue` makes it (segments planned over each whole
+stretch from the whole bank's longest template), identical to a layout of the whole span
+in one process. The injection stages reuse the scans (added signals change no sample's
+finiteness) and find their own gates. A search unit reads the layout and only its own
+segments and the blocks their PSDs come from; a segment belongs to the block where its
+valid output starts, so the blocks share out every segment once. It publishes the kernel's peaks of its segments
 before any clustering over the stretch: that clustering keeps a peak when no louder peak
 lies within ``peak-window``, a rule that cannot be applied block by block (a peak
 suppressed within its own block may still suppress one across the block's edge), so the
@@ -82,15 +95,15 @@ from ..network import coincidences
 from ..network.coincidence import CAUTIONS
 from ..network.far import YEAR, false_alarm_rate
 from ..io.vetoes import check_vetoes
-from ..pipeline.streaming import PEAK_DTYPE, CatalogueSearch
+from ..pipeline.streaming import PEAK_DTYPE, CatalogueSearch, join_runs
 from ..spectrum import welch
 
 __all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times", "sub_banks", "blocks",
            "UnitOutputError", "SPECTRUM_CHUNKS", "SPECTRUM_CHUNK_WELCH", "CANDIDATE_EXTRA"]
 
 #: Stages in the order they run.
-STAGES = ("bank", "layout", "search", "merge", "spectrum", "background", "candidates", "injections", "inject-layout",
-          "inject-search", "inject-merge", "found-missed", "sensitivity", "report")
+STAGES = ("bank", "scan", "gates", "layout", "search", "merge", "spectrum", "background", "candidates", "injections",
+          "inject-gates", "inject-layout", "inject-search", "inject-merge", "found-missed", "sensitivity", "report")
 #: Distance bins of the efficiency table.
 EFFICIENCY_BINS = 8
 #: At most this many stretches of analysed data go into a site's spectrum.
@@ -208,26 +221,44 @@ def plan(analysis) -> list[Unit]:
     banks = sub_banks(_bank_size(analysis), analysis.engine.templates_per_unit)
     seconds = analysis.engine.seconds_per_unit
 
+    def span_blocks(span):
+        size = max(1, int(round(seconds * span.sample_rate)))
+        return [(a, b, f"{span.t0 + a / span.sample_rate:.3f}") for a, b in blocks(span.n, size)]
+
     def span_units(layout, stage, prefix, after):
+        gates_stage = "gates" if stage == "search" else "inject-gates"
         out = []
+        # the layout's first steps, per block: non-finite runs (found once, for both flows), then gates
+        for n in names if stage == "search" else ():
+            for span in found[n]:
+                paths = tuple(str(f.path) for f in span.files)
+                out += [Unit(f"scan/{n}/{start}", "scan", (_block_file("", "scans", n, start),), (), n, span.t0,
+                             paths, None, (a, b)) for a, b, start in span_blocks(span)]
+        for n in names:
+            for span in found[n]:
+                paths = tuple(str(f.path) for f in span.files)
+                scans = tuple(f"scan/{n}/{start}" for _, _, start in span_blocks(span))
+                out += [Unit(f"{gates_stage}/{n}/{start}", gates_stage, (_block_file(prefix, "gates", n, start),),
+                             (*after, *scans), n, span.t0, paths, None, (a, b)) for a, b, start in span_blocks(span)]
         for n in names:
             for span in found[n]:
                 label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
+                steps = tuple(f"{kind}/{n}/{start}" for kind in ("scan", gates_stage)
+                              for _, _, start in span_blocks(span))
                 out.append(Unit(f"{layout}/{n}/{label}", layout, (_layout_file(prefix, n, label),),
-                                after, n, span.t0, paths))
+                                (*after, *steps), n, span.t0, paths))
         for n in names:
             for span in found[n]:
                 label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
-                size = max(1, int(round(seconds * span.sample_rate)))
-                for a, b in blocks(span.n, size):
-                    start = f"{span.t0 + a / span.sample_rate:.3f}"
+                for a, b, start in span_blocks(span):
                     for lo, hi in banks:
                         out.append(Unit(f"{stage}/{n}/{start}/{lo}-{hi - 1}", stage,
                                         (_peaks_file(prefix, n, start, lo, hi - 1),),
                                         (*after, f"{layout}/{n}/{label}"), n, span.t0, paths, (lo, hi), (a, b)))
         merge = "merge" if stage == "search" else "inject-merge"
         out += [Unit(f"{merge}/{n}", merge, (f"{prefix}triggers/{n}.parquet",),
-                     ("bank", *(u.key for u in out if u.site == n)), n) for n in names]
+                     ("bank", *(u.key for u in out if u.site == n and u.stage in (layout, stage))), n)
+                for n in names]
         return out
 
     units += span_units("layout", "search", "", ("bank",))
@@ -399,11 +430,80 @@ def _peaks_file(prefix: str, site: str, start: str, lo, last) -> str:
     return f"{prefix}peaks/{site}/block-{start}-templates-{lo}-{last}.parquet"
 
 
+def _block_file(prefix: str, kind: str, site: str, start: str) -> str:
+    """Return the file a scan or gates unit publishes: ``kind`` of the block from ``start`` s."""
+    return f"{prefix}{kind}/{site}/block-{start}.json"
+
+
+def _scan(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    span = _span_of(analysis, folder, unit)
+    runs, read = CatalogueSearch.scan(span, unit.block)
+    write_json_atomic(folder / unit.outputs[0], {
+        "table": "scan", "site": unit.site, "span": span.t0, "n": span.n, "block": list(unit.block),
+        "runs": [list(r) for r in runs], "samples_read": read})
+    return {"runs": len(runs)}
+
+
+def _read_block_docs(folder: Path, unit: Unit, kind: str, span) -> list[dict]:
+    """Return the scan or gates documents of ``unit``'s span, in block order, each checked against its unit."""
+    prefix = "injections/" if kind == "gates" and unit.stage.startswith("inject-") else ""
+    docs = []
+    for key in unit.after:
+        if key.split("/")[0] not in ("scan", "gates", "inject-gates") or (kind == "scan") != key.startswith("scan/"):
+            continue
+        start = key.split("/")[2]
+        rel = _block_file(prefix, "scans" if kind == "scan" else "gates", unit.site, start)
+        try:
+            doc = json.loads((folder / rel).read_text(encoding="utf-8"))
+            a, b = doc["block"]
+            fits = (doc["table"] == kind and doc["span"] == span.t0 and doc["n"] == span.n
+                    and f"{span.t0 + a / span.sample_rate:.3f}" == start)
+        except (OSError, ValueError, KeyError, TypeError) as exc:
+            raise UnitOutputError(f"{unit.key}: {key}: {rel} is not a readable {kind} of its block ({exc}); run "
+                                  "the same command again") from None
+        if not fits:
+            raise UnitOutputError(f"{unit.key}: {key}: {rel} describes another block or span; run the same command "
+                                  "again")
+        docs.append(doc)
+    return docs
+
+
+def _stretches_of(analysis, folder: Path, unit: Unit, span, search, strict: bool):
+    """Return the span's layout without gates, from its blocks' scans (reads no strain)."""
+    runs, read = [], 0
+    for doc in _read_block_docs(folder, unit, "scan", span):
+        runs, read = join_runs(runs, [tuple(r) for r in doc["runs"]]), read + doc["samples_read"]
+    vetoes = check_vetoes(analysis.data[unit.site].vetoes)
+    return search.lay_out(span, vetoes, scanned=(runs, read), strict=strict)
+
+
+def _gates(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
+    span = _span_of(analysis, folder, unit)
+    search = _catalogue_search(analysis, folder, span.sample_rate)
+    # The stretches are planned here as the layout unit plans them; a span refused for its
+    # non-finite samples is refused there, once, by the layout unit.
+    layout = search.find_gates(_stretches_of(analysis, folder, unit, span, search, strict=False), unit.block)
+    write_json_atomic(folder / unit.outputs[0], {
+        "table": "gates", "site": unit.site, "span": span.t0, "n": span.n, "block": list(unit.block),
+        "stretches": [[s.start, s.stop] for s in layout.stretches],
+        "gates": [[list(g) for g in gates] for gates in layout.gates],
+        "samples_read": layout.samples_read, "largest": layout.largest})
+    return {"gates": sum(len(g) for g in layout.gates)}
+
+
 def _layout(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     span = _span_of(analysis, folder, unit)
     search = _catalogue_search(analysis, folder, span.sample_rate)
-    vetoes = analysis.data[unit.site].vetoes
-    layout = search.find_gates(search.lay_out(span, check_vetoes(vetoes)))
+    layout = _stretches_of(analysis, folder, unit, span, search, strict=True)
+    parts, read, largest = [], layout.samples_read, layout.largest
+    stretches = [[s.start, s.stop] for s in layout.stretches]
+    for doc in _read_block_docs(folder, unit, "gates", span):
+        if doc["stretches"] != stretches:
+            raise UnitOutputError(f"{unit.key}: the gates of the block from {doc['block'][0]} were found in other "
+                                  "stretches than the span's; run the same command again")
+        parts.append([[tuple(g) for g in gates] for gates in doc["gates"]])
+        read, largest = read + doc["samples_read"], max(largest, doc["largest"])
+    layout = search.join_gates(layout, parts)._replace(samples_read=read, largest=largest)
     with warnings.catch_warnings():  # the merge warns, once for the site
         warnings.simplefilter("ignore")
         search.check_layouts([layout], allow_empty=True)
@@ -797,7 +897,8 @@ def _report(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     return {}
 
 
-_RUNNERS = {"bank": _bank, "layout": _layout, "inject-layout": _layout, "search": _search, "merge": _merge,
+_RUNNERS = {"bank": _bank, "scan": _scan, "gates": _gates, "inject-gates": _gates,
+            "layout": _layout, "inject-layout": _layout, "search": _search, "merge": _merge,
             "spectrum": _spectrum, "background": _background,
             "candidates": _candidates, "injections": _injections, "inject-search": _search,
             "inject-merge": _merge, "found-missed": _found_missed, "sensitivity": _sensitivity, "report": _report}
