@@ -56,6 +56,37 @@ def _edges(search, span):
     return out
 
 
+def _analysis(folder: Path, search: str, engine: str) -> Path:
+    """Write the bank, the sites and an analysis of Kestrel's and Heron's files with these tables' bodies."""
+    BANK.save(folder / "bank.parquet")
+    (folder / "sites.toml").write_text(Path(EXAMPLE_SITES).read_text())
+    path = folder / "analysis.toml"
+    path.write_text(f"""\
+version = 1
+output = "out"
+
+[sites]
+file = "sites.toml"
+
+[data.Kestrel]
+files = "kestrel/*.npz"
+
+[data.Heron]
+files = "heron/*.npz"
+
+[bank]
+file = "bank.parquet"
+
+[search]
+{search}
+[network]
+slides = 0
+
+[engine]
+{engine}""")
+    return path
+
+
 def _write(folder: Path) -> tuple[Path, list[float]]:
     """Kestrel: one span with the chain at three block edges; Heron: noise in two spans."""
     n = int(DURATION * FS)
@@ -79,37 +110,14 @@ def _write(folder: Path) -> tuple[Path, list[float]]:
     cut, late = int(300 * FS), int(320 * FS)  # a 20 s gap
     np.savez(folder / "heron" / "heron-0.npz", strain=y[:cut], sample_rate=FS, t0=T0)
     np.savez(folder / "heron" / "heron-1.npz", strain=y[late:], sample_rate=FS, t0=T0 + late / FS)
-    BANK.save(folder / "bank.parquet")
-    (folder / "sites.toml").write_text(Path(EXAMPLE_SITES).read_text())
-    path = folder / "analysis.toml"
-    path.write_text(f"""\
-version = 1
-output = "out"
-
-[sites]
-file = "sites.toml"
-
-[data.Kestrel]
-files = "kestrel/*.npz"
-
-[data.Heron]
-files = "heron/*.npz"
-
-[bank]
-file = "bank.parquet"
-
-[search]
+    path = _analysis(folder, f"""\
 f-low = {F_LOW}
 welch-duration = 2.0
 min-snr = 5.0
 peak-window = {WINDOW}
 segment-duration = {SEGMENT}
 bank-cluster = true
-
-[network]
-slides = 0
-
-[engine]
+""", f"""\
 templates-per-unit = 2
 seconds-per-unit = {BLOCK}
 """)
@@ -288,36 +296,13 @@ def test_a_span_laid_out_block_by_block_equals_the_whole_span_laid_out(tmp_path)
     for site in ("kestrel", "heron"):  # a run needs two sites; the second holds the same data
         (tmp_path / site).mkdir()
         np.savez(tmp_path / site / "k.npz", strain=x, sample_rate=FS, t0=T0)
-    BANK.save(tmp_path / "bank.parquet")
-    (tmp_path / "sites.toml").write_text(Path(EXAMPLE_SITES).read_text())
-    path = tmp_path / "analysis.toml"
-    path.write_text(f"""\
-version = 1
-output = "out"
-
-[sites]
-file = "sites.toml"
-
-[data.Kestrel]
-files = "kestrel/*.npz"
-
-[data.Heron]
-files = "heron/*.npz"
-
-[bank]
-file = "bank.parquet"
-
-[search]
+    path = _analysis(tmp_path, f"""\
 f-low = {F_LOW}
 welch-duration = 2.0
 segment-duration = {SEGMENT}
 gate-threshold = 20.0
 nonfinite = "skip"
-
-[network]
-slides = 0
-
-[engine]
+""", f"""\
 seconds-per-unit = {BLOCK}
 """)
     with warnings.catch_warnings():
