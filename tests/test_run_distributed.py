@@ -190,9 +190,14 @@ def test_truncated_corrupt_and_leftover_temporary_unit_files_are_found_and_redon
     raw = bytearray(second.read_bytes())
     raw[100] ^= 0xFF  # same size, one byte flipped
     second.write_bytes(bytes(raw))
+    scan = sorted((folder / "damaged" / "scans" / "Kestrel").glob("*.json"))[0]
+    scan.write_bytes(scan.read_bytes()[:-5])  # a layout step's file, truncated
+    gates = sorted((folder / "damaged" / "gates" / "Heron").glob("*.json"))[-1]
+    gates.write_text(gates.read_text().replace('"gates"', '"gatez"'))  # and one edited
     result = run_analysis(load_analysis(again), client=client)
     keys = {f"search/Heron/{p.stem.split('-')[1]}/{p.stem.split('-')[3]}-{p.stem.split('-')[4]}"
             for p in (first, second)}
+    keys |= {f"scan/Kestrel/{scan.stem[len('block-'):]}", f"gates/Heron/{gates.stem[len('block-'):]}"}
     assert set(result.ran) == keys  # the rest publish the same bytes, so nothing after them reruns
     assert result.removed == [str(leftover.relative_to(folder / "damaged"))]
     assert outputs(folder / "damaged") == expected

@@ -499,8 +499,9 @@ def _layout(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     stretches = [[s.start, s.stop] for s in layout.stretches]
     for doc in _read_block_docs(folder, unit, "gates", span):
         if doc["stretches"] != stretches:
-            raise UnitOutputError(f"{unit.key}: the gates of the block from {doc['block'][0]} were found in other "
-                                  "stretches than the span's; run the same command again")
+            start = f"{span.t0 + doc['block'][0] / span.sample_rate:.3f}"
+            raise UnitOutputError(f"{unit.key}: the gates of the block from {start} s were found in other stretches "
+                                  "than the span's; run the same command again")
         parts.append([[tuple(g) for g in gates] for gates in doc["gates"]])
         read, largest = read + doc["samples_read"], max(largest, doc["largest"])
     layout = search.join_gates(layout, parts)._replace(samples_read=read, largest=largest)
