@@ -467,9 +467,9 @@ const TAP_CHUNK: usize = 512;
 /// 3.7 ms instead of about 1 ms at `N = 2^20`, `L = 2^14`, unpadded).
 const ROW_PAD: usize = 4;
 
-/// Residue rows filled per job: the rows' bins lie `M` apart in `r`, so one job
-/// filling several adjacent residues reads each cache line of `r` once for all.
-const ROWS_PER_JOB: usize = 4;
+/// Rows (residue pairs) filled per job: the rows' bins lie `M` apart in `r`, so one
+/// job filling several adjacent residues reads each cache line of `r` once for all.
+const PAIRS_PER_JOB: usize = 4;
 
 /// Kept buffers and plans of the pruned truncation for one `(N, L)`.
 struct Pruned {
@@ -566,8 +566,11 @@ fn cis_at(coarse: &[Complex<f64>], fine: &[Complex<f64>], shift: u32, m: usize) 
 ///   is real, so `X[N - k] = conj X[k]` and residue `M - k1` is residue `k1` read
 ///   backwards (`|X[M k2 + k1]| = |X_(M-k1)[L - 1 - k2]|`).
 ///
-/// About `(M/2 + 1) L log L` transform work each way instead of `N log N`, plus
-/// `(M/2 + 1) half` twiddled products for the taps.
+/// The residues' rows are real, so two share one complex inverse transform. About
+/// `M/4` transforms of `L` points inverse and `M/2 + 1` forward instead of two of `N`
+/// real points, plus `(M/2 + 1) half` twiddled products for the taps. Measured at
+/// `N = 2^20`, `L = 2^14` on one thread (excluding `1/sqrt(S)`): 6.3 ms against 10.0 ms
+/// for the full-length path (inverse 1.6, taps 0.6, forward 2.6, bins 1.6).
 fn truncate_pruned(r: &mut [f64], l: usize, half: usize, k_low: usize) {
     let n = 2 * (r.len() - 1);
     let m = n / l;
@@ -588,45 +591,64 @@ fn truncate_pruned(r: &mut [f64], l: usize, half: usize, k_low: usize) {
     taps.resize(half + 1, 0.0);
     let pool = Pool::with_items(|| vec![Complex::new(0.0, 0.0); scratch_len], std::mem::take(scratches));
 
-    // residues k1 of the real, even extension of r, a few rows a job so each cache
-    // line of r read serves several rows; their inverse transforms
+    // residues k1 of the real, even extension of r, two real ones a complex row
+    // (2p + i (2p + 1)), a few rows a job so each cache line of r read serves several
+    // rows; their inverse transforms
     let stride = l + ROW_PAD;
+    let residues = m / 2 + 1;
+    let pairs = residues.div_ceil(2);
     let r_in: &[f64] = r;
-    rows.par_chunks_mut(ROWS_PER_JOB * stride).enumerate().for_each_init(
-        || pool.take(),
-        |scratch, (g, group)| {
-            let k1_first = g * ROWS_PER_JOB;
-            let n_rows = group.len() / stride;
-            for k2 in 0..l {
-                let k0 = m * k2 + k1_first;
-                for j in 0..n_rows {
-                    let k = k0 + j;
-                    group[j * stride + k2] = Complex::new(r_in[k.min(n - k)], 0.0);
+    rows[..pairs * stride]
+        .par_chunks_mut(PAIRS_PER_JOB * stride)
+        .enumerate()
+        .for_each_init(
+            || pool.take(),
+            |scratch, (g, group)| {
+                let first = 2 * g * PAIRS_PER_JOB;
+                let n_rows = group.len() / stride;
+                let last_odd = first + 2 * n_rows > residues; // the last pair's odd residue is absent
+                for k2 in 0..l {
+                    let k0 = m * k2 + first;
+                    for j in 0..n_rows {
+                        let k = k0 + 2 * j;
+                        let im = if last_odd && j + 1 == n_rows { 0.0 } else { r_in[(k + 1).min(n - k - 1)] };
+                        group[j * stride + k2] = Complex::new(r_in[k.min(n - k)], im);
+                    }
                 }
-            }
-            for row in group.chunks_exact_mut(stride) {
-                inverse.process_with_scratch(&mut row[..l], scratch);
-            }
-        },
-    );
+                for row in group.chunks_exact_mut(stride) {
+                    inverse.process_with_scratch(&mut row[..l], scratch);
+                }
+            },
+        );
 
-    // the kept taps, each a sum over residues in ascending order
-    let inv_n = 1.0 / n as f64;
+    // the kept taps, each a sum over residues in ascending order. The transform C of
+    // a + i b (a, b real) gives 2 Z_a[t] = C[t] + conj C[-t], 2 Z_b[t] = -i (C[t] - conj C[-t]).
+    let scale = 0.5 / n as f64;
+    let weight = |k1: usize| if k1 == 0 || 2 * k1 == m { 1.0 } else { 2.0 };
     let rows_in: &[Complex<f64>] = rows;
     taps.par_chunks_mut(TAP_CHUNK).enumerate().for_each(|(c, acc)| {
         let t0 = c * TAP_CHUNK;
         acc.fill(0.0);
-        for k1 in 0..=m / 2 {
-            let weight = if k1 == 0 || 2 * k1 == m { 1.0 } else { 2.0 };
-            let z = &rows_in[k1 * stride + t0..k1 * stride + t0 + acc.len()];
-            let mut i = t0 * k1;
-            for (a, z) in acc.iter_mut().zip(z) {
-                let e = cis_at(coarse, fine, shift, i);
-                *a += weight * (e.re * z.re - e.im * z.im);
-                i += k1;
+        for p in 0..pairs {
+            let (ka, kb) = (2 * p, 2 * p + 1);
+            let row = &rows_in[p * stride..p * stride + l];
+            let (wa, wb) = (weight(ka), weight(kb));
+            let with_b = kb < residues;
+            for (j, a) in acc.iter_mut().enumerate() {
+                let t = t0 + j;
+                let cp = row[t];
+                let cm = row[if t == 0 { 0 } else { l - t }].conj();
+                let (za, db) = (cp + cm, cp - cm);
+                let e = cis_at(coarse, fine, shift, t * ka);
+                *a += wa * (e.re * za.re - e.im * za.im);
+                if with_b {
+                    // 2 Z_b = (db.im, -db.re)
+                    let e = cis_at(coarse, fine, shift, t * kb);
+                    *a += wb * (e.re * db.im + e.im * db.re);
+                }
             }
         }
-        acc.iter_mut().for_each(|a| *a *= inv_n);
+        acc.iter_mut().for_each(|a| *a *= scale);
     });
 
     // pre-twiddled taps of each residue and their forward transform
@@ -1056,12 +1078,15 @@ mod tests {
     #[test]
     fn truncation_matches_its_definition_by_direct_sums() {
         // Both paths against the definition evaluated term by term, at strain scale:
-        // power-of-two N, even M; non-power-of-two N; odd M; T >= N / 2 (full path).
+        // power-of-two N, even M; non-power-of-two N; odd M; an even count of residues
+        // 0..=M/2 (M = 6, M = 2; the others odd); T >= N / 2 (full path).
         for (n, max_len, f_low) in [
             (1024usize, 100usize, 15.0),
             (768, 64, 0.0),
             (486, 50, 20.0),
             (480, 37, 10.0),
+            (768, 100, 10.0),
+            (512, 200, 10.0),
             (256, 200, 15.0),
         ] {
             let fs = 1024.0;
@@ -1122,3 +1147,4 @@ mod tests {
     }
 
 }
+
