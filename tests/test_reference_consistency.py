@@ -126,3 +126,28 @@ def test_correlate_shapes(mode):
         a, b = fast.correlate(d, t, mode), ref.correlate(d, t, mode)
         assert a.shape == b.shape and a.dtype == b.dtype
         np.testing.assert_allclose(a, b, rtol=0, atol=1e-12 * np.abs(b).max())
+
+
+@pytest.mark.parametrize("n,t_spec", [(2**20, 4.0),        # pruned: L = 2^14, M = 64
+                                      (3 * 2**15, 1.0),    # pruned, not a power of two: L = 2^12
+                                      (2**12, 0.6)])       # 2458 taps >= N/2: full-length path
+def test_truncate_inverse_psd_search_lengths(n, t_spec):
+    # numpy's irfft/rfft (the reference twin) against the core's pruned transforms at
+    # search lengths and strain scale, and the same bits on 1, 2 and 3 threads
+    fs, f_low = 4096.0, 15.0
+    s = _psd(n // 2 + 1, fs / n)
+    s[n // 5:n // 5 + 3] = np.inf
+    b = ref.truncate_inverse_psd(s, fs, t_spec, f_low)
+    before = fast.get_threads()
+    try:
+        runs = []
+        for k in (1, 2, 3):
+            fast.set_threads(k)
+            runs.append(fast.truncate_inverse_psd(s, fs, t_spec, f_low))
+    finally:
+        fast.set_threads(before)
+    assert runs[1].tobytes() == runs[0].tobytes() and runs[2].tobytes() == runs[0].tobytes()
+    a = runs[0]
+    np.testing.assert_array_equal(np.isinf(a), np.isinf(b))
+    fin = np.isfinite(b)
+    assert np.max(np.abs(a[fin] - b[fin])) <= 1e-12 * np.max(np.abs(b[fin]))

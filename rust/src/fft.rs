@@ -37,6 +37,14 @@ macro_rules! planned {
 planned!(f32);
 planned!(f64);
 
+/// Unnormalised forward complex transform: `X_k = sum_j x_j exp(-2 pi i j k / n)`.
+pub fn forward<T: Planned>(n: usize) -> Arc<dyn Fft<T>> {
+    T::complex_planner()
+        .lock()
+        .unwrap_or_else(|e| e.into_inner())
+        .plan_fft_forward(n)
+}
+
 /// Unnormalised inverse complex transform: `x_j = sum_k X_k exp(+2 pi i j k / n)`.
 pub fn inverse<T: Planned>(n: usize) -> Arc<dyn Fft<T>> {
     T::complex_planner()
