@@ -46,7 +46,7 @@ DEFAULT_TEMPLATES_PER_UNIT = 256
 #: Seconds of one site's data per search unit (a block of time of a span) unless the
 #: analysis file says otherwise: one day, so that a span of months is searched in parallel
 #: over time, while a unit of 256 binary-neutron-star templates still computes for minutes
-#: (about 280 s on one thread at the W1 rate in the README), long beside its scheduling
+#: (about 390 s on one thread at the W1 rate in the README), long beside its scheduling
 #: and its reading of one day of samples.
 DEFAULT_SECONDS_PER_UNIT = 86400.0
 
