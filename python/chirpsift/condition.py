@@ -13,7 +13,8 @@ import numpy as np
 
 from ._validate import integer, real_array
 
-__all__ = ["check_strain", "find_nonfinite_runs", "stretches_between", "finite_stretches", "subtract_intervals"]
+__all__ = ["check_strain", "find_nonfinite_runs", "stretches_between", "finite_stretches", "subtract_intervals",
+           "merge_intervals"]
 
 
 def check_strain(strain, name: str = "strain") -> np.ndarray:
@@ -141,6 +142,28 @@ def finite_stretches(data) -> list[tuple[int, int]]:
     """
     arr = np.asarray(data)
     return stretches_between(arr.shape[0] if arr.ndim == 1 else 0, find_nonfinite_runs(arr))
+
+
+def merge_intervals(intervals) -> list:
+    """Join half-open intervals, given in order of their starts, that overlap or touch.
+
+    The one rule by which pieces found apart become one list: non-finite runs of
+    abutting chunks or blocks, excluded intervals of several kinds, the gates of
+    consecutive whitening blocks.
+
+    Examples
+    --------
+    >>> from chirpsift.condition import merge_intervals
+    >>> merge_intervals([(0, 5), (5, 9), (8, 10), (12, 14)])
+    [(0, 10), (12, 14)]
+    """
+    out: list = []
+    for a, b in intervals:
+        if out and a <= out[-1][1]:
+            out[-1] = (out[-1][0], max(out[-1][1], b))
+        else:
+            out.append((a, b))
+    return out
 
 
 def subtract_intervals(intervals, removed) -> list[tuple[float, float]]:

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from .condition import merge_intervals
 from .spectrum import psd_to_grid, truncate_inverse_psd, welch, whiten
 
-__all__ = ["find_gates", "apply_gates", "join_gates", "whitening_blocks", "loud_samples_of_block", "GatingWarning"]
+__all__ = ["find_gates", "apply_gates", "whitening_blocks", "loud_samples_of_block", "GatingWarning"]
 
 
 class GatingWarning(UserWarning):
@@ -22,7 +23,8 @@ def whitening_blocks(n: int, sample_rate: float, welch_duration: float) -> list[
 
     Each block of ``BLOCK_SEGMENTS * welch_duration`` is whitened with its own median
     PSD, so its loud samples depend on it and its pads alone: blocks can be examined
-    apart (:func:`loud_samples_of_block`) and their gates joined (:func:`join_gates`).
+    apart (:func:`loud_samples_of_block`) and their gates joined
+    (:func:`chirpsift.condition.merge_intervals`).
     """
     return list(range(0, n, int(round(BLOCK_SEGMENTS * welch_duration * sample_rate))))
 
@@ -58,28 +60,6 @@ def loud_samples_of_block(strain, sample_rate, threshold, f_low, welch_duration,
     return np.flatnonzero(np.abs(white[a - lo:b - lo]) > threshold) + a
 
 
-def join_gates(gates):
-    """Merge sorted gates ``(start, stop)`` that touch or overlap, as :func:`find_gates` merges them.
-
-    Gates of consecutive whitening blocks, each list already merged, join into the gates
-    of the whole: the rule is applied in start order, and a block's gates start after
-    the previous block's.
-
-    Examples
-    --------
-    >>> from chirpsift.gating import join_gates
-    >>> join_gates([(0, 5), (5, 9), (12, 14)])
-    [(0, 9), (12, 14)]
-    """
-    out: list[tuple[int, int]] = []
-    for a, b in gates:
-        if out and a <= out[-1][1]:
-            out[-1] = (out[-1][0], max(out[-1][1], int(b)))
-        else:
-            out.append((int(a), int(b)))
-    return out
-
-
 def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, half_width=0.25, blocks=None):
     """Sample intervals around whitened samples louder than ``threshold``.
 
@@ -106,7 +86,7 @@ def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, hal
         Examine only the whitening blocks starting at these samples (some of
         :func:`whitening_blocks`, in increasing order; default all). The gates of
         disjoint sets of blocks, concatenated in block order, give the gates of their
-        union through :func:`join_gates`.
+        union through :func:`chirpsift.condition.merge_intervals`.
 
     Returns
     -------
@@ -118,7 +98,8 @@ def find_gates(strain, sample_rate, threshold, *, f_low, welch_duration=4.0, hal
         blocks = whitening_blocks(n, sample_rate, welch_duration)
     loud = [loud_samples_of_block(strain, sample_rate, threshold, f_low, welch_duration, start) for start in blocks]
     hw = int(round(half_width * sample_rate))
-    return join_gates((max(0, i - hw), min(n, i + hw + 1)) for i in (np.concatenate(loud) if loud else []))
+    loud = np.concatenate(loud).tolist() if loud else []
+    return merge_intervals((max(0, i - hw), min(n, i + hw + 1)) for i in loud)
 
 
 def apply_gates(strain, sample_rate, gates, taper=0.125, *, start=0):

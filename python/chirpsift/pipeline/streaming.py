@@ -35,8 +35,8 @@ import numpy as np
 
 from ..bank import Bank
 from ..clustering import cluster_in_time
-from ..condition import find_nonfinite_runs, stretches_between, subtract_intervals
-from ..gating import apply_gates, join_gates, whitening_blocks
+from ..condition import find_nonfinite_runs, merge_intervals, stretches_between, subtract_intervals
+from ..gating import apply_gates, whitening_blocks
 from ..io.catalogue import Catalogue, Span
 from ..io.vetoes import check_vetoes
 from ..segments import DURATION_MARGIN, padding, plan_segments
@@ -61,7 +61,7 @@ from .single_site import (
 )
 
 __all__ = ["search_catalogue", "cluster_across_bank", "CatalogueSearch", "SpanLayout", "Filtered", "PEAK_DTYPE",
-           "SCAN_SAMPLES", "join_runs"]
+           "SCAN_SAMPLES"]
 
 #: Samples read at a time when a span is scanned for non-finite samples.
 SCAN_SAMPLES = 1 << 20
@@ -155,35 +155,14 @@ class SpanLayout(NamedTuple):
                 "samples_read": self.samples_read, "largest": self.largest}
 
 
-def _union(*lists) -> list[tuple[int, int]]:
-    out: list[tuple[int, int]] = []
-    for a, b in sorted(iv for lst in lists for iv in lst):
-        if out and a <= out[-1][1]:
-            out[-1] = (out[-1][0], max(out[-1][1], b))
-        else:
-            out.append((a, b))
-    return out
-
-
 def _nonfinite_runs(span: Span, start: int = 0, stop: int | None = None) -> tuple[list[tuple[int, int]], int]:
     """Non-finite runs of samples ``[start, stop)`` of a span (default all), read in chunks; also the samples read."""
     stop = span.n if stop is None else stop
     runs: list[tuple[int, int]] = []
     for lo in range(start, stop, SCAN_SAMPLES):
         hi = min(lo + SCAN_SAMPLES, stop)
-        runs = join_runs(runs, [(lo + a, lo + b) for a, b in find_nonfinite_runs(span.read(lo, hi))])
-    return runs, stop - start
-
-
-def join_runs(first, then) -> list[tuple[int, int]]:
-    """Non-finite runs of two abutting pieces of a span, a run across their boundary made one."""
-    runs = list(first)
-    for a, b in then:
-        if runs and runs[-1][1] == a:
-            runs[-1] = (runs[-1][0], b)
-        else:
-            runs.append((a, b))
-    return runs
+        runs += [(lo + a, lo + b) for a, b in find_nonfinite_runs(span.read(lo, hi))]
+    return merge_intervals(runs), stop - start  # a run across a chunk boundary made one
 
 
 def _nothing_to_search(plans, settings, longest, pads, fixed_length, fs):
@@ -299,7 +278,8 @@ class CatalogueSearch:
         """Non-finite runs of samples ``block = (a, b)`` of a span (default all), read in chunks.
 
         Returns the runs (sample positions in the span) and the samples read. The runs of
-        blocks that tile the span, joined in order by :func:`join_runs`, are the span's.
+        blocks that tile the span, joined in order by :func:`chirpsift.condition.merge_intervals`,
+        are the span's.
         """
         return _nonfinite_runs(span, *(block or (0, span.n)))
 
@@ -341,7 +321,7 @@ class CatalogueSearch:
                 "search the finite stretches between them"
             )
         short, stretches = [], []
-        for a, b in stretches_between(span.n, _union(vetoed, nonfinite)):
+        for a, b in stretches_between(span.n, merge_intervals(sorted([*vetoed, *nonfinite]))):
             stretch = plan_stretch(a, b, self.fixed_length, self.longest, settings, fs, self.pads)
             if stretch is None:
                 short.append((a, b))
@@ -422,7 +402,7 @@ class CatalogueSearch:
         ``parts``: the :meth:`find_gates` results (gates per stretch) of blocks that tile
         the span, in block order.
         """
-        gates = [join_gates(g for part in parts for g in part[k]) for k in range(len(layout.stretches))]
+        gates = [merge_intervals(g for part in parts for g in part[k]) for k in range(len(layout.stretches))]
         return layout._replace(gates=gates)
 
     def check_gates(self, layouts, *, allow_empty=False, stacklevel=2) -> None:

@@ -61,11 +61,11 @@ stretch from the whole bank's longest template), identical to a layout of the wh
 in one process. The injection stages reuse the scans (added signals change no sample's
 finiteness) and find their own gates. A search unit reads the layout and only its own
 segments and the blocks their PSDs come from; a segment belongs to the block where its
-valid output starts, so the blocks share out every segment once. It publishes the kernel's peaks of its segments
-before any clustering over the stretch: that clustering keeps a peak when no louder peak
-lies within ``peak-window``, a rule that cannot be applied block by block (a peak
-suppressed within its own block may still suppress one across the block's edge), so the
-merge gathers every block's and sub-bank's peaks of a stretch and clusters and ranks
+valid output starts, so the blocks share out every segment once. It publishes the
+kernel's peaks of its segments before any clustering over the stretch: that clustering
+keeps a peak when no louder peak lies within ``peak-window``, a rule that cannot be
+applied block by block (a peak suppressed within its own block may still suppress one
+across the block's edge), so the merge gathers every block's and sub-bank's peaks of a stretch and clusters and ranks
 them at once, as the search of the whole stretch does. The merged triggers are therefore
 bit-identical to one search of the whole catalogue with the whole bank, and so to an
 in-memory search of each span, for any block and sub-bank size. A span with nothing long
@@ -95,7 +95,8 @@ from ..network import coincidences
 from ..network.coincidence import CAUTIONS
 from ..network.far import YEAR, false_alarm_rate
 from ..io.vetoes import check_vetoes
-from ..pipeline.streaming import PEAK_DTYPE, CatalogueSearch, join_runs
+from ..condition import merge_intervals
+from ..pipeline.streaming import PEAK_DTYPE, CatalogueSearch
 from ..spectrum import welch
 
 __all__ = ["Unit", "STAGES", "plan", "unit_inputs", "execute", "catalogue_of", "read_times", "sub_banks", "blocks",
@@ -133,14 +134,14 @@ class Unit:
     site : str or None
         The site of a per-site unit.
     span : float or None
-        Start time (s) of the span a layout or search unit covers.
+        Start time (s) of the span a scan, gates, layout or search unit covers.
     files : tuple of str
-        The strain files a layout or search unit reads (its span's).
+        The strain files such a unit reads (its span's).
     templates : (int, int) or None
         The templates ``lo <= k < hi`` of the bank a search unit filters.
     block : (int, int) or None
-        The samples ``a <= k < b`` of the span where the valid output of the segments a
-        search unit filters starts (its block of time).
+        The samples ``a <= k < b`` of the span a scan or gates unit covers, and where the
+        valid output of the segments a search unit filters starts (its block of time).
     """
 
     key: str
@@ -225,32 +226,31 @@ def plan(analysis) -> list[Unit]:
         size = max(1, int(round(seconds * span.sample_rate)))
         return [(a, b, f"{span.t0 + a / span.sample_rate:.3f}") for a, b in blocks(span.n, size)]
 
+    # per site, per span: its label, files and blocks
+    spans = {n: [(span, f"{span.t0:.3f}", tuple(str(f.path) for f in span.files), span_blocks(span))
+                 for span in found[n]] for n in names}
+
     def span_units(layout, stage, prefix, after):
         gates_stage = "gates" if stage == "search" else "inject-gates"
         out = []
         # the layout's first steps, per block: non-finite runs (found once, for both flows), then gates
         for n in names if stage == "search" else ():
-            for span in found[n]:
-                paths = tuple(str(f.path) for f in span.files)
+            for span, _, paths, parts in spans[n]:
                 out += [Unit(f"scan/{n}/{start}", "scan", (_block_file("", "scans", n, start),), (), n, span.t0,
-                             paths, None, (a, b)) for a, b, start in span_blocks(span)]
+                             paths, None, (a, b)) for a, b, start in parts]
         for n in names:
-            for span in found[n]:
-                paths = tuple(str(f.path) for f in span.files)
-                scans = tuple(f"scan/{n}/{start}" for _, _, start in span_blocks(span))
+            for span, _, paths, parts in spans[n]:
+                scans = tuple(f"scan/{n}/{start}" for _, _, start in parts)
                 out += [Unit(f"{gates_stage}/{n}/{start}", gates_stage, (_block_file(prefix, "gates", n, start),),
-                             (*after, *scans), n, span.t0, paths, None, (a, b)) for a, b, start in span_blocks(span)]
+                             (*after, *scans), n, span.t0, paths, None, (a, b)) for a, b, start in parts]
         for n in names:
-            for span in found[n]:
-                label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
-                steps = tuple(f"{kind}/{n}/{start}" for kind in ("scan", gates_stage)
-                              for _, _, start in span_blocks(span))
+            for span, label, paths, parts in spans[n]:
+                steps = tuple(f"{kind}/{n}/{start}" for kind in ("scan", gates_stage) for _, _, start in parts)
                 out.append(Unit(f"{layout}/{n}/{label}", layout, (_layout_file(prefix, n, label),),
                                 (*after, *steps), n, span.t0, paths))
         for n in names:
-            for span in found[n]:
-                label, paths = f"{span.t0:.3f}", tuple(str(f.path) for f in span.files)
-                for a, b, start in span_blocks(span):
+            for span, label, paths, parts in spans[n]:
+                for a, b, start in parts:
                     for lo, hi in banks:
                         out.append(Unit(f"{stage}/{n}/{start}/{lo}-{hi - 1}", stage,
                                         (_peaks_file(prefix, n, start, lo, hi - 1),),
@@ -398,7 +398,7 @@ def _bank(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
 
 
 def _span_of(analysis, folder: Path, unit: Unit):
-    """Return the span a layout or search unit reads (with the signals added for the injection stages)."""
+    """Return the span a scan, gates, layout or search unit reads (with the signals added for the injection stages)."""
     whole = catalogue_of(analysis.data[unit.site])
     span = next((s for s in whole.spans if s.t0 == unit.span), None)
     if span is None:
@@ -449,7 +449,7 @@ def _read_block_docs(folder: Path, unit: Unit, kind: str, span) -> list[dict]:
     prefix = "injections/" if kind == "gates" and unit.stage.startswith("inject-") else ""
     docs = []
     for key in unit.after:
-        if key.split("/")[0] not in ("scan", "gates", "inject-gates") or (kind == "scan") != key.startswith("scan/"):
+        if key.split("/")[0] not in (("scan",) if kind == "scan" else ("gates", "inject-gates")):
             continue
         start = key.split("/")[2]
         rel = _block_file(prefix, "scans" if kind == "scan" else "gates", unit.site, start)
@@ -470,11 +470,10 @@ def _read_block_docs(folder: Path, unit: Unit, kind: str, span) -> list[dict]:
 
 def _stretches_of(analysis, folder: Path, unit: Unit, span, search, strict: bool):
     """Return the span's layout without gates, from its blocks' scans (reads no strain)."""
-    runs, read = [], 0
-    for doc in _read_block_docs(folder, unit, "scan", span):
-        runs, read = join_runs(runs, [tuple(r) for r in doc["runs"]]), read + doc["samples_read"]
+    docs = _read_block_docs(folder, unit, "scan", span)
+    runs = merge_intervals(tuple(r) for doc in docs for r in doc["runs"])  # a run across a block edge made one
     vetoes = check_vetoes(analysis.data[unit.site].vetoes)
-    return search.lay_out(span, vetoes, scanned=(runs, read), strict=strict)
+    return search.lay_out(span, vetoes, scanned=(runs, sum(doc["samples_read"] for doc in docs)), strict=strict)
 
 
 def _gates(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
@@ -625,6 +624,12 @@ def _expected_columns() -> list[tuple[str, str]]:
     return [(name, str(pa.from_numpy_dtype(np.dtype(kind)))) for name, kind in _PEAK_SCHEMA]
 
 
+#: The run information of the site's search a merged trigger table carries, in this order.
+_SUMMARY_KEYS = ("settings", "analysed", "live_time", "analysed_fraction", "live_time_table", "gates", "gated_time",
+                 "excluded", "vetoed", "gaps", "short_stretches", "stretches", "segments", "segment_duration",
+                 "sample_rate", "templates")
+
+
 def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) -> dict:
     prefix = "injections/" if unit.stage == "inject-merge" else ""
     docs, found = _check_unit_files(folder, unit, prefix, upstream)
@@ -683,27 +688,13 @@ def _merge(analysis, folder: Path, unit: Unit, progress: bool, upstream=None) ->
         search.check_layouts(layouts, allow_empty=True)
         search.check_gates(layouts, allow_empty=True)
         triggers, info = search.finish(catalogue, layouts, ranked)
+    info["live_time_table"] = info["live_time_table"].as_dict()
     meta = {
         "table": "triggers",
         "site": unit.site,
         "spans": [[p.span.t0, p.span.end] for p in layouts],
         "files": [str(f.path) for f in catalogue.files],
-        "settings": info["settings"],
-        "analysed": info["analysed"],
-        "live_time": info["live_time"],
-        "analysed_fraction": info["analysed_fraction"],
-        "live_time_table": info["live_time_table"].as_dict(),
-        "gates": info["gates"],
-        "gated_time": info["gated_time"],
-        "excluded": info["excluded"],
-        "vetoed": info["vetoed"],
-        "gaps": info["gaps"],
-        "short_stretches": info["short_stretches"],
-        "stretches": info["stretches"],
-        "segments": info["segments"],
-        "segment_duration": info["segment_duration"],
-        "sample_rate": info["sample_rate"],
-        "templates": info["templates"],
+        **{k: info[k] for k in _SUMMARY_KEYS},
         "units": len(found),
         "max_template_duration": info["max_template_duration"],
         "warnings": [f"{w.category.__name__}: {w.message}" for w in caught],
