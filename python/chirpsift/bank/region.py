@@ -42,6 +42,23 @@ def _chirp_times(m1, m2):
     return 1.0 / (eta * total ** (5.0 / 3.0)), 1.0 / (eta * total ** (2.0 / 3.0))
 
 
+def _draw_until(n: int, draw, attempts: int):
+    """Return the first ``n`` binaries kept from calls of ``draw()``, heavier first.
+
+    ``draw()`` returns binaries ``(m1, m2, chi1, chi2)`` and a mask of those to keep; it
+    is called until ``n`` are kept or ``attempts`` calls are made.
+    """
+    parts, have = [], 0
+    for _ in range(attempts):
+        drawn, keep = draw()
+        parts.append(tuple(x[keep] for x in drawn))
+        have += int(keep.sum())
+        if have >= n:
+            break
+    drawn = np.stack([np.concatenate([p[i] for p in parts])[:n] for i in range(4)])
+    return tuple(heavier_first(drawn))
+
+
 def heavier_first(p: np.ndarray) -> np.ndarray:
     """Label binaries so the first component is the heavier, the spins following their masses.
 
@@ -179,19 +196,15 @@ class Region:
             Each of length ``n`` (``strict``), labelled so ``m1 >= m2`` (spins alike).
         """
         rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
-        parts, have = [], 0
-        for _ in range(1000):
+
+        def draw():
             a = rng.uniform(*self.m1, n)
             b = rng.uniform(*self.m2, n)
             sa = rng.uniform(*self.chi1, n)
             sb = rng.uniform(*self.chi2, n)
-            keep = self._cuts(a, b)
-            parts.append(tuple(x[keep] for x in (a, b, sa, sb)))
-            have += int(keep.sum())
-            if not strict or have >= n:
-                break
-        drawn = np.stack([np.concatenate([p[i] for p in parts])[:n] for i in range(4)])
-        return tuple(heavier_first(drawn))
+            return (a, b, sa, sb), self._cuts(a, b)
+
+        return _draw_until(n, draw, 1000 if strict else 1)
 
     def sample_in_chirp_times(self, n: int, *, seed=0):
         """Draw binaries uniformly in the chirp times ``(tau0, tau3)`` and spins, inside the region.
@@ -226,8 +239,8 @@ class Region:
                                 b0 + (b1 - b0) * edge])
         u_box, v_box = _chirp_times(box_a, box_b)
         (u_lo, u_hi), (v_lo, v_hi) = (u_box.min(), u_box.max()), (v_box.min(), v_box.max())
-        parts, have = [], 0
-        for _ in range(10_000):
+
+        def draw():
             u = rng.uniform(u_lo, u_hi, 4 * n)
             v = rng.uniform(v_lo, v_hi, 4 * n)
             total = v / u
@@ -238,13 +251,9 @@ class Region:
             a, b = np.where(swap, light, heavy), np.where(swap, heavy, light)
             sa = rng.uniform(*self.chi1, 4 * n)
             sb = rng.uniform(*self.chi2, 4 * n)
-            keep = (eta <= 0.25) & self.contains(a, b, sa, sb)
-            parts.append(tuple(x[keep] for x in (a, b, sa, sb)))
-            have += int(keep.sum())
-            if have >= n:
-                break
-        drawn = np.stack([np.concatenate([p[i] for p in parts])[:n] for i in range(4)])
-        return tuple(heavier_first(drawn))
+            return (a, b, sa, sb), (eta <= 0.25) & self.contains(a, b, sa, sb)
+
+        return _draw_until(n, draw, 10_000)
 
     def as_dict(self) -> dict:
         """Return the region as plain lists (for file metadata and JSON)."""
