@@ -359,6 +359,21 @@ const LANES: usize = 4;
 
 /// `(max |4 df d_k / S_k|^2, max 1/S_k)` over one task's bins.
 fn maxima(d: &[Complex64], s: &[f64], k4: f64) -> (f64, f64) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the feature the function enables was detected just above.
+            return unsafe { avx2::maxima(d, s, k4) };
+        }
+    }
+    maxima_lanes(d, s, k4)
+}
+
+/// [`maxima`]'s arithmetic, inlined into each caller so that each compiles it for
+/// its own instruction set (the same operations in the same order: the same bits);
+/// so too the other passes' `_lanes`.
+#[inline(always)]
+fn maxima_lanes(d: &[Complex64], s: &[f64], k4: f64) -> (f64, f64) {
     let (mut q2, mut w) = ([0.0f64; LANES], [0.0f64; LANES]);
     let mut lanes = |d: &[Complex64], s: &[f64]| {
         for l in 0..d.len() {
@@ -376,6 +391,24 @@ fn maxima(d: &[Complex64], s: &[f64], k4: f64) -> (f64, f64) {
 
 /// [`maxima`] of `d / sample_rate`, with `d` scaled in place and `1/S` kept in `inv`.
 fn scale_and_maxima(d: &mut [Complex64], s: &[f64], inv: &mut [f64], sample_rate: f64, k4: f64) -> (f64, f64) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the feature the function enables was detected just above.
+            return unsafe { avx2::scale_and_maxima(d, s, inv, sample_rate, k4) };
+        }
+    }
+    scale_and_maxima_lanes(d, s, inv, sample_rate, k4)
+}
+
+#[inline(always)]
+fn scale_and_maxima_lanes(
+    d: &mut [Complex64],
+    s: &[f64],
+    inv: &mut [f64],
+    sample_rate: f64,
+    k4: f64,
+) -> (f64, f64) {
     let (mut q2, mut w) = ([0.0f64; LANES], [0.0f64; LANES]);
     let mut lanes = |d: &mut [Complex64], s: &[f64], inv: &mut [f64]| {
         for l in 0..d.len() {
@@ -418,6 +451,26 @@ const GROUP: usize = 4;
 /// chunks (`k0` a multiple of [`MOMENT_CHUNK`]). `w` is the PSD (`FROM_PSD`) or `1/S`.
 /// Returns the bins written (all of `q` and `u`).
 fn write_outputs<const FROM_PSD: bool>(
+    q: &mut [MaybeUninit<Complex32>],
+    u: &mut [MaybeUninit<f32>],
+    m: &mut [[f64; 3]],
+    d: &[Complex64],
+    w: &[f64],
+    k0: usize,
+    sc: &Scales,
+) -> usize {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the feature the function enables was detected just above.
+            return unsafe { avx2::write_outputs::<FROM_PSD>(q, u, m, d, w, k0, sc) };
+        }
+    }
+    write_outputs_lanes::<FROM_PSD>(q, u, m, d, w, k0, sc)
+}
+
+#[inline(always)]
+fn write_outputs_lanes<const FROM_PSD: bool>(
     q: &mut [MaybeUninit<Complex32>],
     u: &mut [MaybeUninit<f32>],
     m: &mut [[f64; 3]],
@@ -529,6 +582,7 @@ impl MomentTable {
 
 /// `[sum w, sum w f, sum w f^2]` of one chunk's weights `w` from bin `k0` on, in
 /// bin order.
+#[inline(always)]
 fn moment_sums(w: &[f32], k0: usize, df: f64) -> [f64; 3] {
     let mut m = [0.0; 3];
     for (k, &wk) in (k0..).zip(w) {
@@ -543,20 +597,65 @@ fn moment_sums(w: &[f32], k0: usize, df: f64) -> [f64; 3] {
 
 /// [`moment_sums`] of [`GROUP`] whole chunks from bin `k0` on, side by side: each
 /// chunk's sums in its own bin order, as there.
+#[inline(always)]
 fn moment_group(w: &[f32], k0: usize, df: f64, out: &mut [[f64; 3]]) {
-    let mut m = [[0.0f64; 3]; GROUP];
+    let (mut m0, mut m1, mut m2) = ([0.0f64; GROUP], [0.0f64; GROUP], [0.0f64; GROUP]);
     let base: [f64; GROUP] = std::array::from_fn(|c| (k0 + c * MOMENT_CHUNK) as f64);
     for j in 0..MOMENT_CHUNK {
+        let b: [f64; GROUP] = std::array::from_fn(|c| w[c * MOMENT_CHUNK + j] as f64);
         for c in 0..GROUP {
             // `base + j` is the integer `k`, exactly (k < 2^53), so f = k df as there.
             let f = (base[c] + j as f64) * df;
-            let b = w[c * MOMENT_CHUNK + j] as f64;
-            m[c][0] += b;
-            m[c][1] += b * f;
-            m[c][2] += b * f * f;
+            m0[c] += b[c];
+            m1[c] += b[c] * f;
+            m2[c] += b[c] * f * f;
         }
     }
-    out.copy_from_slice(&m);
+    for (c, o) in out.iter_mut().enumerate() {
+        *o = [m0[c], m1[c], m2[c]];
+    }
+}
+
+/// The per-bin passes compiled for AVX2 (no fused multiply-adds: the results are
+/// those of the portable code, bit for bit).
+#[cfg(target_arch = "x86_64")]
+mod avx2 {
+    use super::*;
+
+    /// # Safety
+    /// The processor must have AVX2.
+    #[target_feature(enable = "avx2")]
+    pub(super) unsafe fn maxima(d: &[Complex64], s: &[f64], k4: f64) -> (f64, f64) {
+        maxima_lanes(d, s, k4)
+    }
+
+    /// # Safety
+    /// The processor must have AVX2.
+    #[target_feature(enable = "avx2")]
+    pub(super) unsafe fn scale_and_maxima(
+        d: &mut [Complex64],
+        s: &[f64],
+        inv: &mut [f64],
+        sample_rate: f64,
+        k4: f64,
+    ) -> (f64, f64) {
+        scale_and_maxima_lanes(d, s, inv, sample_rate, k4)
+    }
+
+    /// # Safety
+    /// The processor must have AVX2.
+    #[target_feature(enable = "avx2")]
+    pub(super) unsafe fn write_outputs<const FROM_PSD: bool>(
+        q: &mut [MaybeUninit<Complex32>],
+        u: &mut [MaybeUninit<f32>],
+        m: &mut [[f64; 3]],
+        d: &[Complex64],
+        w: &[f64],
+        k0: usize,
+        sc: &Scales,
+    ) -> usize {
+        write_outputs_lanes::<FROM_PSD>(q, u, m, d, w, k0, sc)
+    }
 }
 
 /// Centre frequency of chunk `c` (Hz).
