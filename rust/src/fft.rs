@@ -5,6 +5,7 @@
 
 use num_complex::Complex;
 use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
+use crate::scratch::Kept;
 use rustfft::{Fft, FftNum, FftPlanner};
 use std::sync::{Arc, Mutex, OnceLock};
 
@@ -12,8 +13,8 @@ use std::sync::{Arc, Mutex, OnceLock};
 pub trait Planned: FftNum + realfft::FftNum {
     fn complex_planner() -> &'static Mutex<FftPlanner<Self>>;
     fn real_planner() -> &'static Mutex<RealFftPlanner<Self>>;
-    /// Scratches returned by [`KeptScratch`], at most [`KEPT_SCRATCHES`].
-    fn kept() -> &'static Mutex<Vec<RealScratch<Self>>>;
+    /// Scratches returned by [`KeptScratch`].
+    fn kept() -> &'static Kept<RealScratch<Self>>;
 }
 
 macro_rules! planned {
@@ -27,8 +28,8 @@ macro_rules! planned {
                 static P: OnceLock<Mutex<RealFftPlanner<$t>>> = OnceLock::new();
                 P.get_or_init(|| Mutex::new(RealFftPlanner::new()))
             }
-            fn kept() -> &'static Mutex<Vec<RealScratch<$t>>> {
-                static K: Mutex<Vec<RealScratch<$t>>> = Mutex::new(Vec::new());
+            fn kept() -> &'static Kept<RealScratch<$t>> {
+                static K: Kept<RealScratch<$t>> = Kept::new();
                 &K
             }
         }
@@ -114,27 +115,20 @@ impl<T: Planned> RealScratch<T> {
     }
 }
 
-/// Full-length scratches kept between calls, per float type.
+/// Full-length scratches kept between calls, per float type ([`Kept`]).
 ///
 /// A segment's transforms (the spectrum chain's two, the data transform) need about
 /// three segment-lengths of buffers each time; allocated afresh, the system hands
 /// over new pages whose faults and zeroing cost as much as a third of a transform.
-/// Keeping two (the chain and the data transform may run side by side) holds about
-/// 48 MiB at 2^20 samples; a scratch of another length evicts the oldest.
-pub const KEPT_SCRATCHES: usize = 2;
-
+/// Keeping two holds about 48 MiB at 2^20 samples; a scratch of another length
+/// evicts the oldest.
 /// A [`RealScratch`] of length `n` taken from the kept ones (or made), and given
 /// back when dropped. Its buffers hold whatever the last user left: fill before use.
 pub struct KeptScratch<T: Planned>(Option<RealScratch<T>>);
 
 impl<T: Planned> KeptScratch<T> {
     pub fn take(n: usize) -> Self {
-        let found = {
-            let mut kept = T::kept().lock().unwrap_or_else(|e| e.into_inner());
-            kept.iter()
-                .position(|s| s.time.len() == n)
-                .map(|i| kept.remove(i))
-        };
+        let found = T::kept().take(|s| s.time.len() == n);
         KeptScratch(Some(found.unwrap_or_else(|| RealScratch::new(n))))
     }
 }
@@ -155,11 +149,7 @@ impl<T: Planned> std::ops::DerefMut for KeptScratch<T> {
 impl<T: Planned> Drop for KeptScratch<T> {
     fn drop(&mut self) {
         if let Some(s) = self.0.take() {
-            let mut kept = T::kept().lock().unwrap_or_else(|e| e.into_inner());
-            if kept.len() >= KEPT_SCRATCHES {
-                kept.remove(0);
-            }
-            kept.push(s);
+            T::kept().give_back(s);
         }
     }
 }
@@ -224,8 +214,8 @@ mod tests {
                 assert!((a / n as f64 - b).abs() < 1e-12);
             }
         }
-        let kept = f64::kept().lock().unwrap().iter().filter(|s| s.time.len() == n).count();
-        assert!(kept >= 1 && f64::kept().lock().unwrap().len() <= KEPT_SCRATCHES);
+        let (this_length, all) = f64::kept().count(|s| s.time.len() == n);
+        assert!(this_length >= 1 && all <= crate::scratch::KEPT);
     }
 
     #[test]

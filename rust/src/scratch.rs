@@ -47,6 +47,42 @@ impl<T, F: Fn() -> T> Pool<T, F> {
     }
 }
 
+/// Items kept from one call to the next, at most [`KEPT`], the oldest evicted
+/// first: a segment-length buffer made afresh each call has its pages faulted in and
+/// zeroed again, as much as a third of a transform.
+pub struct Kept<T>(Mutex<Vec<T>>);
+
+/// Items a [`Kept`] list holds at most: two, since a segment's spectrum chain and its
+/// data transform run side by side.
+pub const KEPT: usize = 2;
+
+impl<T> Kept<T> {
+    pub const fn new() -> Self {
+        Kept(Mutex::new(Vec::new()))
+    }
+
+    /// The first kept item that `fits`, no longer kept.
+    pub fn take(&self, fits: impl Fn(&T) -> bool) -> Option<T> {
+        let mut kept = self.0.lock().unwrap_or_else(|e| e.into_inner());
+        kept.iter().position(fits).map(|i| kept.remove(i))
+    }
+
+    /// Keep `item`, evicting the oldest kept one beyond [`KEPT`].
+    pub fn give_back(&self, item: T) {
+        let mut kept = self.0.lock().unwrap_or_else(|e| e.into_inner());
+        if kept.len() >= KEPT {
+            kept.remove(0);
+        }
+        kept.push(item);
+    }
+
+    /// How many kept items `fit`, and how many are kept in all.
+    pub fn count(&self, fits: impl Fn(&T) -> bool) -> (usize, usize) {
+        let kept = self.0.lock().unwrap_or_else(|e| e.into_inner());
+        (kept.iter().filter(|t| fits(t)).count(), kept.len())
+    }
+}
+
 /// A buffer on loan from a [`Pool`].
 pub struct Lease<'a, T, F: Fn() -> T> {
     pool: &'a Pool<T, F>,
@@ -83,6 +119,18 @@ mod tests {
     use super::*;
     use rayon::prelude::*;
     use std::sync::atomic::{AtomicUsize, Ordering};
+
+    #[test]
+    fn kept_items_are_found_and_the_oldest_evicted() {
+        let kept = Kept::new();
+        for v in [1, 2, 3] {
+            kept.give_back(v);
+        }
+        assert_eq!(kept.count(|_| true), (KEPT, KEPT));
+        assert_eq!(kept.take(|&v| v == 1), None); // evicted first
+        assert_eq!(kept.take(|&v| v == 2), Some(2));
+        assert_eq!(kept.count(|&v| v == 3), (1, 1));
+    }
 
     #[test]
     fn buffers_are_reused_across_jobs() {

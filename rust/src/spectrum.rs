@@ -7,11 +7,11 @@
 use crate::error::{ensure, Error, Result};
 use crate::fft::{KeptScratch, RealScratch};
 use crate::grid::bin_at_or_above;
-use crate::scratch::Pool;
+use crate::scratch::{Kept, Pool};
 use num_complex::Complex;
 use rayon::prelude::*;
 use rustfft::Fft;
-use std::sync::{Arc, Mutex};
+use std::sync::Arc;
 
 /// How periodograms of the Welch segments are combined.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -590,26 +590,14 @@ struct Pruned {
 }
 
 /// [`Pruned`] states kept between calls (about 8.6 MiB each at `N = 2^20`,
-/// `L = 2^14`); two, as for [`KeptScratch`], since chains may run side by side.
-static KEPT_PRUNED: Mutex<Vec<Pruned>> = Mutex::new(Vec::new());
+/// `L = 2^14`), since chains may run side by side.
+static KEPT_PRUNED: Kept<Pruned> = Kept::new();
 
 impl Pruned {
     fn take(n: usize, l: usize) -> Pruned {
-        let found = {
-            let mut kept = KEPT_PRUNED.lock().unwrap_or_else(|e| e.into_inner());
-            kept.iter()
-                .position(|p| p.n == n && p.l == l)
-                .map(|i| kept.remove(i))
-        };
-        found.unwrap_or_else(|| Pruned::new(n, l))
-    }
-
-    fn give_back(self) {
-        let mut kept = KEPT_PRUNED.lock().unwrap_or_else(|e| e.into_inner());
-        if kept.len() >= crate::fft::KEPT_SCRATCHES {
-            kept.remove(0);
-        }
-        kept.push(self);
+        KEPT_PRUNED
+            .take(|p| p.n == n && p.l == l)
+            .unwrap_or_else(|| Pruned::new(n, l))
     }
 
     fn new(n: usize, l: usize) -> Pruned {
@@ -793,7 +781,7 @@ fn truncate_pruned(r: &mut [f64], l: usize, half: usize, k_low: usize) {
         invert_truncated(out, k_low.saturating_sub(k0));
     });
     *scratches = pool.into_items();
-    st.give_back();
+    KEPT_PRUNED.give_back(st);
 }
 
 /// [`truncate_inverse_psd`] of each row of `psd` (`n_freq` bins a row), rows in parallel.
