@@ -111,7 +111,6 @@ impl Prepared {
         let q_max = q2_max.sqrt();
         let q_scale = if q_max > 0.0 && q_max.is_finite() { q_max } else { 1.0 };
         let scales = Scales {
-            k4: 4.0 * df,
             q_scale,
             w_max,
             df,
@@ -437,7 +436,6 @@ fn fold_lanes(q2: [f64; LANES], w: [f64; LANES]) -> (f64, f64) {
 
 /// The factors of the second pass.
 struct Scales {
-    k4: f64,
     q_scale: f64,
     w_max: f64,
     df: f64,
@@ -493,7 +491,7 @@ fn write_outputs_lanes<const FROM_PSD: bool>(
         let buf = &mut buf[..d.len()];
         for ((((q, u), b), &d), &w) in q.iter_mut().zip(u.iter_mut()).zip(buf.iter_mut()).zip(d).zip(w) {
             let i = if FROM_PSD { inverse_psd_bin(w) } else { w };
-            let c = d * (sc.k4 * i / sc.q_scale);
+            let c = d * (4.0 * sc.df * i / sc.q_scale);
             q.write(Complex32::new(c.re as f32, c.im as f32));
             *b = (i / sc.w_max) as f32;
             u.write(*b);
