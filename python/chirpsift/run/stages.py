@@ -224,7 +224,7 @@ def plan(analysis) -> list[Unit]:
 
     def span_blocks(span):
         size = max(1, int(round(seconds * span.sample_rate)))
-        return [(a, b, f"{span.t0 + a / span.sample_rate:.3f}") for a, b in blocks(span.n, size)]
+        return [(a, b, _block_label(span, a)) for a, b in blocks(span.n, size)]
 
     # per site, per span: its label, files and blocks
     spans = {n: [(span, f"{span.t0:.3f}", tuple(str(f.path) for f in span.files), span_blocks(span))
@@ -430,6 +430,11 @@ def _peaks_file(prefix: str, site: str, start: str, lo, last) -> str:
     return f"{prefix}peaks/{site}/block-{start}-templates-{lo}-{last}.parquet"
 
 
+def _block_label(span, a: int) -> str:
+    """Return the label of the block of ``span`` from sample ``a``: its start time, s, with millisecond digits."""
+    return f"{span.t0 + a / span.sample_rate:.3f}"
+
+
 def _block_file(prefix: str, kind: str, site: str, start: str) -> str:
     """Return the file a scan or gates unit publishes: ``kind`` of the block from ``start`` s."""
     return f"{prefix}{kind}/{site}/block-{start}.json"
@@ -457,7 +462,7 @@ def _read_block_docs(folder: Path, unit: Unit, kind: str, span) -> list[dict]:
             doc = json.loads((folder / rel).read_text(encoding="utf-8"))
             a, b = doc["block"]
             fits = (doc["table"] == kind and doc["span"] == span.t0 and doc["n"] == span.n
-                    and f"{span.t0 + a / span.sample_rate:.3f}" == start)
+                    and _block_label(span, a) == start)
         except (OSError, ValueError, KeyError, TypeError) as exc:
             raise UnitOutputError(f"{unit.key}: {key}: {rel} is not a readable {kind} of its block ({exc}); run "
                                   "the same command again") from None
@@ -498,7 +503,7 @@ def _layout(analysis, folder: Path, unit: Unit, progress: bool) -> dict:
     stretches = [[s.start, s.stop] for s in layout.stretches]
     for doc in _read_block_docs(folder, unit, "gates", span):
         if doc["stretches"] != stretches:
-            start = f"{span.t0 + doc['block'][0] / span.sample_rate:.3f}"
+            start = _block_label(span, doc['block'][0])
             raise UnitOutputError(f"{unit.key}: the gates of the block from {start} s were found in other stretches "
                                   "than the span's; run the same command again")
         parts.append([[tuple(g) for g in gates] for gates in doc["gates"]])
